@@ -1,0 +1,3 @@
+from chargeplan.cli import main
+
+main()

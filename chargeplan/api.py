@@ -1,0 +1,34 @@
+"""The library's front door: read a battery file and plan it, in one call each."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from chargeplan.loading import read_mapping, validate
+from chargeplan.model.battery import BatteryFile
+from chargeplan.plan import ChargePlan
+from chargeplan.profiles import ProfileSet
+
+__all__ = ["load_battery_file", "plan_file"]
+
+
+def load_battery_file(path: str | Path) -> BatteryFile:
+    """Read and validate a battery file (YAML or JSON); errors name the file and field."""
+    return validate(BatteryFile, read_mapping(path, what="battery"), file=str(path))
+
+
+def plan_file(path: str | Path, *, profiles: ProfileSet | None = None) -> ChargePlan:
+    """Plan the battery described in ``path``.
+
+    Examples
+    --------
+    >>> from chargeplan.api import plan_file
+    >>> from chargeplan.demo import example_paths
+    >>> plan = plan_file(example_paths()[1])
+    >>> [stage.kind.value for stage in plan.stages]
+    ['bulk', 'absorption', 'storage_hold']
+    """
+    from chargeplan.engine.planner import plan_charge
+
+    battery_file = load_battery_file(path)
+    return plan_charge(battery_file, profiles=profiles, file=str(path))

@@ -1,0 +1,52 @@
+"""The cautions every human-readable output carries, by chemistry family.
+
+Built in, not in the profiles, so no user profile can remove them. A profile's
+own ``cautions`` are added after these.
+"""
+
+from __future__ import annotations
+
+__all__ = ["DEFERRAL", "cautions_for"]
+
+LEAD_ACID = (
+    "Charging lead-acid makes hydrogen, which explodes at 4 % in air: charge only in a "
+    "ventilated place (IEC 62485-2 cl. 7) and keep sparks, flames and smoking at least 0.5 m "
+    "away.",
+    "Connect the leads before switching the charger on, and switch it off before "
+    "disconnecting, so no spark is struck at the terminals.",
+    "Battery acid burns skin and eyes: wear eye protection and acid-resistant gloves, and keep "
+    "water or an eyewash at hand.",
+    "Never charge a frozen battery: if the case bulges or the electrolyte may be frozen, let it "
+    "thaw at room temperature first.",
+    "Stop charging if the battery gets hot, swells, hisses or smells of rotten eggs.",
+)
+
+VENTED = (
+    "Flooded cells vent hydrogen and acid mist freely, most of all during absorption and "
+    "equalization: keep the vent caps in place and the room aired.",
+)
+
+LITHIUM = (
+    "Lithium cells can go into thermal runaway and burn fiercely: charge on a non-combustible "
+    "surface, away from anything that burns, and do not leave the charge unattended.",
+    "Never charge lithium below 0 °C cell temperature: lithium metal plates on the anode and "
+    "can short the cell later. Bring a cold battery indoors and wait until the cells are above "
+    "0 °C.",
+    "Use a lithium charge mode only: no equalization, desulfation, recovery or other "
+    "high-voltage stage, and no float or trickle on NMC.",
+    "Do not charge a swollen, damaged, leaking or hot pack; move it outdoors onto sand or "
+    "concrete.",
+)
+
+DEFERRAL = (
+    "This plan does not replace the battery maker's datasheet, local codes or licensed "
+    "practice: where they differ from it, they win."
+)
+
+
+def cautions_for(family: str, *, vented: bool, extra: list[str] | tuple[str, ...] = ()) -> list[str]:
+    """The cautions for a chemistry family, the profile's own, then the deferral line."""
+    base = list(LITHIUM if family == "lithium" else LEAD_ACID)
+    if vented:
+        base += VENTED
+    return [*base, *extra, DEFERRAL]

@@ -1,0 +1,207 @@
+"""The command line: parse, make one library call, print, map errors to exit codes.
+
+Exit codes (DESIGN.md): 0 ok; 1 the plan is refused for safety; 2 bad input;
+3 internal error. No domain logic lives here; heavy imports wait for the command
+that needs them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from enum import Enum
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+app = typer.Typer(
+    name="chargeplan",
+    help="Plan battery charging (lead-acid and lithium) and write charger setpoint files.",
+    add_completion=False,
+    no_args_is_help=True,
+    pretty_exceptions_enable=False,
+    rich_markup_mode=None,
+)
+
+
+class Format(str, Enum):
+    text = "text"
+    json = "json"
+
+
+ProfilePaths = Annotated[
+    list[Path] | None,
+    typer.Option("--profiles", help="a profile file or folder of your own (repeatable)"),
+]
+
+
+@contextmanager
+def _errors() -> Iterator[None]:
+    """Map chargeplan's errors to one line on stderr and the contract's exit code."""
+    from chargeplan.errors import ChargeplanError, InputError, PlanRefused
+
+    try:
+        yield
+    except typer.Exit:
+        raise
+    except PlanRefused as error:
+        typer.echo(f"refused: {error.reason} [{error.rule_id}]", err=True)
+        raise typer.Exit(error.exit_code) from None
+    except InputError as error:
+        typer.echo(f"error: {error}", err=True)
+        raise typer.Exit(error.exit_code) from None
+    except ChargeplanError as error:
+        typer.echo(f"internal error: {error}", err=True)
+        raise typer.Exit(error.exit_code) from None
+    except Exception as error:
+        typer.echo(f"internal error: {type(error).__name__}: {error} (please report this with "
+                   "the input that caused it)", err=True)
+        raise typer.Exit(3) from None
+
+
+def _profile_set(paths: list[Path] | None):  # -> ProfileSet
+    from chargeplan.profiles import ProfileSet
+
+    return ProfileSet(list(paths or []))
+
+
+def _emit(text: str, output: Path | None, force: bool) -> None:
+    if output is None:
+        typer.echo(text, nl=False)
+        return
+    from chargeplan.render.write import write_atomic
+
+    write_atomic(output, text, force=force)
+    typer.echo(f"wrote {output}", err=True)
+
+
+@app.command()
+def plan(
+    file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
+    format: Annotated[Format, typer.Option("--format", "-f", help="text or json")] = Format.text,
+    explain: Annotated[bool, typer.Option(help="add the rule and arithmetic behind each "
+                                               "setpoint")] = False,
+    output: Annotated[Path | None, typer.Option("--output", "-o", help="write to this file")] = None,
+    force: Annotated[bool, typer.Option(help="replace the output file if it exists")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Plan the charge of one battery."""
+    with _errors():
+        from chargeplan.api import plan_file
+
+        result = plan_file(file, profiles=_profile_set(profiles) if profiles else None)
+        if format is Format.json:
+            from chargeplan.render.setpoints import to_json
+
+            _emit(to_json(result), output, force)
+        else:
+            from chargeplan.render.text import render_text
+
+            _emit(render_text(result, explain=explain), output, force)
+
+
+@app.command()
+def demo(
+    explain: Annotated[bool, typer.Option(help="add the trace behind each setpoint")] = False,
+) -> None:
+    """Plan the bundled example batteries and print each plan."""
+    with _errors():
+        from chargeplan.api import plan_file
+        from chargeplan.demo import example_paths
+        from chargeplan.render.text import render_text
+
+        paths = example_paths()
+        for index, path in enumerate(paths):
+            typer.echo(f"# example {index + 1} of {len(paths)}: {path.name}\n")
+            typer.echo(render_text(plan_file(path), explain=explain))
+
+
+@app.command("profiles")
+def profiles_command(
+    profile_id: Annotated[str | None, typer.Argument(help="show one profile in full")] = None,
+    profiles: ProfilePaths = None,
+) -> None:
+    """List the chemistry profiles, or show one with every value and its source."""
+    with _errors():
+        found = _profile_set(profiles)
+        if profile_id is None:
+            for pid in found.ids:
+                p = found.get(pid)
+                typer.echo(f"{p.id:<10} {p.family:<10} {p.name}  [{found.source_of(pid)}]")
+            return
+        p = found.get(profile_id)
+        typer.echo(f"{p.id}: {p.name} ({p.family}; envelope of {p.chemistry}; "
+                   f"{found.source_of(profile_id)})")
+        if p.summary:
+            typer.echo(p.summary)
+        for key, value, source in p.sourced_values():
+            typer.echo(f"  {key:<42} {value:<14} {source}")
+        stages = ", ".join(p.envelope.forbidden_stages) or "none"
+        typer.echo(f"  {'envelope.forbidden_stages':<42} {stages}")
+        typer.echo(f"  {'equalization.allowed':<42} {str(p.equalization.allowed).lower()}")
+        typer.echo(f"  {'desulfation.allowed':<42} {str(p.desulfation.allowed).lower()}")
+
+
+@app.command("rules")
+def rules_command(
+    rule_id: Annotated[str | None, typer.Argument(help="a rule id or name to explain")] = None,
+) -> None:
+    """List the rules in the order they run, or explain one."""
+    with _errors():
+        from chargeplan.engine import rules as _registered  # noqa: F401
+        from chargeplan.engine.registry import RULES
+
+        if rule_id is not None:
+            try:
+                entry = next(r for r in RULES.manifest() if rule_id in (r["id"], r["name"]))
+            except StopIteration:
+                from chargeplan.errors import InputError
+
+                raise InputError(f"no rule '{rule_id}'", field="rule",
+                                 fix="run 'chargeplan rules' for the list") from None
+            for key in ("id", "name", "phase", "statement", "detail", "source"):
+                if entry[key]:
+                    typer.echo(f"{key:<10} {entry[key]}")
+            return
+        for entry in RULES.manifest():
+            typer.echo(f"{entry['id']}  {entry['name']:<30} {entry['phase']}")
+            typer.echo(f"       {entry['statement']}")
+            typer.echo(f"       source: {entry['source']}")
+
+
+@app.command()
+def schema(
+    out: Annotated[Path | None, typer.Option("--out", help="write the schemas into this "
+                                                           "folder")] = None,
+    force: Annotated[bool, typer.Option(help="replace schema files that exist")] = False,
+) -> None:
+    """Write the JSON Schemas, or check that the shipped ones match the code."""
+    with _errors():
+        from chargeplan.profiles import data_dir
+        from chargeplan.schema import schema_texts, write_schemas
+
+        if out is not None:
+            for path in write_schemas(out, force=force):
+                typer.echo(f"wrote {path}")
+            return
+        shipped = data_dir("schemas")
+        stale = []
+        for name, text in schema_texts().items():
+            path = shipped / name
+            same = path.is_file() and path.read_text(encoding="utf-8") == text
+            typer.echo(f"{name:<24} {'matches the code' if same else 'differs from the code'}")
+            if not same:
+                stale.append(name)
+        if stale:
+            typer.echo("regenerate with: chargeplan schema --out schemas --force", err=True)
+            raise typer.Exit(1)
+
+
+def main() -> None:
+    """Console entry point."""
+    app(prog_name="chargeplan")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,109 @@
+"""The working state rules read and write while a plan is made."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from chargeplan.errors import InputError, PlanRefused
+from chargeplan.model.battery import BatteryFile
+from chargeplan.model.profile import Profile
+from chargeplan.plan import (
+    Compensation,
+    Finding,
+    Interlocks,
+    Severity,
+    Stage,
+    StageKind,
+    TraceEntry,
+)
+
+__all__ = ["Context", "Settings"]
+
+
+@dataclass(slots=True)
+class Settings:
+    """Setpoints per cell (V/cell) and per battery (A, s) at the reference temperature."""
+
+    absorption_v_cell: float
+    float_v_cell: float | None
+    storage_v_cell: float
+    equalization_v_cell: float | None
+    desulfation_v_cell: float | None
+    precharge_below_v_cell: float
+    precharge_a: float
+    bulk_a: float
+    tail_a: float
+    max_a: float  # the envelope's (or the maker's) highest charge current
+    equalization_a: float | None
+    desulfation_a: float | None
+    absorption_time_s: float
+    equalization_time_s: float | None
+    desulfation_time_s: float | None
+    coefficient_v_per_k_cell: float  # 0 for lithium
+    max_cell_v: float  # the profile envelope's (never above the built-in one)
+
+
+@dataclass(slots=True)
+class Context:
+    """Everything the rules know, and what they have decided so far."""
+
+    battery_file: BatteryFile
+    profile: Profile
+    file: str | None = None
+    cells: int = 0
+    nominal_voltage_v: float = 0.0
+    capacity_ah: float = 0.0
+    temperature_c: float = 25.0
+    soc_pct: float | None = None  # measured or given; None when unknown
+    rest_cell_v: float | None = None
+    freezing_point_c: float | None = None
+    target: str = "full"  # "full" or "storage"
+    finish: str = "stop"  # "hold" or "stop"
+    settings: Settings | None = None
+    stages: list[Stage] = field(default_factory=list)
+    compensation: Compensation | None = None
+    interlocks: Interlocks | None = None
+    findings: list[Finding] = field(default_factory=list)
+    trace: list[TraceEntry] = field(default_factory=list)
+    cautions: list[str] = field(default_factory=list)
+    rule_id: str = ""  # the rule now running, set by the planner
+
+    # -- what the battery is -------------------------------------------------
+    @property
+    def lithium(self) -> bool:
+        return self.profile.family == "lithium"
+
+    @property
+    def storage_s(self) -> float | None:
+        storage = self.battery_file.storage
+        return storage.duration_s if storage is not None else None
+
+    @property
+    def soc_for_timers_pct(self) -> float:
+        """The state of charge timers plan from: the known one, else flat (the longest)."""
+        return self.soc_pct if self.soc_pct is not None else 0.0
+
+    def stage(self, kind: StageKind) -> Stage | None:
+        return next((s for s in self.stages if s.kind == kind), None)
+
+    # -- what the rules say --------------------------------------------------
+    def note(self, target: str, text: str) -> None:
+        """Record a decision and its arithmetic in the trace."""
+        self.trace.append(TraceEntry(self.rule_id, target, text))
+
+    def info(self, message: str) -> None:
+        self.findings.append(Finding(Severity.INFO, self.rule_id, message))
+
+    def warn(self, message: str) -> None:
+        self.findings.append(Finding(Severity.WARNING, self.rule_id, message))
+
+    def refuse(self, reason: str) -> PlanRefused:
+        """A refusal to raise: ``raise ctx.refuse("...")``."""
+        self.findings.append(Finding(Severity.REFUSAL, self.rule_id, reason))
+        return PlanRefused(
+            reason, rule_id=self.rule_id, findings=self.findings, trace=self.trace
+        )
+
+    def bad_input(self, field: str, problem: str, fix: str) -> InputError:
+        """An input error found by a rule: ``raise ctx.bad_input(...)``."""
+        return InputError(problem, file=self.file, field=field, fix=fix)

@@ -1,0 +1,295 @@
+"""Derive: what the battery is and whether it may be charged at all."""
+
+from __future__ import annotations
+
+from chargeplan.engine.context import Context
+from chargeplan.engine.fmt import cell_volts, celsius, num, volts
+from chargeplan.engine.registry import rule
+from chargeplan.physics.electrolyte import (
+    freezing_point_tm5_1185,
+    specific_gravity_bci,
+    state_of_charge_from_gravity_bci,
+)
+from chargeplan.physics.ocv import soc_from_ocv
+
+#: How far a trade name may sit from cells x nominal cell voltage ("12 V" for 12.8 V LFP).
+NOMINAL_TOLERANCE = {"lead_acid": 0.05, "lithium": 0.08}
+
+
+@rule("CP101", "cells.count", source="IEC 62485-2 (2.0 V per lead-acid cell); common practice: "
+      "trade names round lithium pack voltages (12.8 V LiFePO4 is sold as '12 V')")
+def cells_count(ctx: Context) -> None:
+    """Cells in series follow from the nominal voltage and the chemistry's cell voltage.
+
+    Both given must agree; a nominal voltage that two cell counts could make
+    (48 V LiFePO4: 15 or 16 cells) must be settled by giving cells_in_series.
+    """
+    battery = ctx.battery_file.battery
+    cell_v = ctx.profile.nominal_cell_voltage.value
+    tolerance = NOMINAL_TOLERANCE[ctx.profile.family]
+    chem = ctx.profile.id
+    if battery.cells_in_series is not None:
+        n = battery.cells_in_series
+        if battery.nominal_voltage_v is not None:
+            made = n * cell_v
+            if abs(made - battery.nominal_voltage_v) > tolerance * battery.nominal_voltage_v:
+                raise ctx.bad_input(
+                    "battery.cells_in_series",
+                    f"{n} cells of {chem} make {volts(made)} nominal, not "
+                    f"{volts(battery.nominal_voltage_v)}",
+                    "correct nominal_voltage or cells_in_series (or the chemistry)",
+                )
+        ctx.cells = n
+        ctx.nominal_voltage_v = battery.nominal_voltage_v or n * cell_v
+        ctx.note("cells_in_series", f"{n} cells in series, as given")
+        return
+    nominal = battery.nominal_voltage_v
+    assert nominal is not None  # the model requires one of the two
+    fits = [
+        n
+        for n in range(max(1, int(nominal / cell_v * 0.8)), int(nominal / cell_v * 1.2) + 2)
+        if abs(n * cell_v - nominal) <= tolerance * nominal
+    ]
+    if not fits:
+        raise ctx.bad_input(
+            "battery.nominal_voltage",
+            f"no whole number of {chem} cells ({cell_volts(cell_v)} each) makes about "
+            f"{volts(nominal)}",
+            "give cells_in_series, or check the chemistry",
+        )
+    if len(fits) > 1:
+        options = " or ".join(str(n) for n in fits)
+        raise ctx.bad_input(
+            "battery.nominal_voltage",
+            f"{volts(nominal)} of {chem} could be {options} cells in series",
+            f"give cells_in_series ({options}); the label or the battery's maker says which",
+        )
+    ctx.cells = fits[0]
+    ctx.nominal_voltage_v = nominal
+    ctx.note(
+        "cells_in_series",
+        f"{fits[0]} cells = {volts(nominal)} / {cell_volts(cell_v)}, rounded "
+        f"(within {num(tolerance * 100, 0)} % of {volts(fits[0] * cell_v)})",
+    )
+
+
+@rule("CP102", "capacity.rating", source="common practice: lithium batteries sold as "
+      "'lead-equivalent' carry a label capacity that is not their own")
+def capacity_rating(ctx: Context) -> None:
+    """Plan from the battery's actual capacity; a lead-equivalent lithium label needs the actual one."""
+    battery = ctx.battery_file.battery
+    if battery.rating == "lead-equivalent":
+        if battery.actual_capacity_ah is None:
+            if ctx.lithium:
+                raise ctx.refuse(
+                    "this lithium battery is rated lead-equivalent and its actual capacity is "
+                    "not given, so no safe charge current can be set; give "
+                    "battery.actual_capacity from the maker's datasheet"
+                )
+            ctx.capacity_ah = battery.capacity_ah
+            ctx.note("capacity", f"{num(battery.capacity_ah)} Ah (lead-acid: label = actual)")
+            return
+        ctx.capacity_ah = battery.actual_capacity_ah
+        ctx.note(
+            "capacity",
+            f"{num(battery.actual_capacity_ah)} Ah actual (label {num(battery.capacity_ah)} Ah "
+            "lead-equivalent)",
+        )
+        return
+    if battery.actual_capacity_ah is not None:
+        raise ctx.bad_input(
+            "battery.actual_capacity",
+            "is only used with rating: lead-equivalent",
+            "remove it, or set rating: lead-equivalent",
+        )
+    ctx.capacity_ah = battery.capacity_ah
+    ctx.note("capacity", f"{num(battery.capacity_ah)} Ah")
+
+
+@rule("CP103", "state.reading", source="BU-808a Low-voltage cut-off (lithium below 1.5 V/cell); "
+      "Battery Council International OCV table; common practice: a 12 V lead-acid battery "
+      "resting near 10.5 V has a shorted cell")
+def state_reading(ctx: Context) -> None:
+    """A rest voltage must make sense for the chemistry and cell count before anything is charged.
+
+    Reversed leads, a dead or shorted cell and a wrong cell count are refused;
+    otherwise the reading gives the state of charge from the profile's table.
+    """
+    state = ctx.battery_file.state
+    table = ctx.profile.rest_voltage.table
+    rest = ctx.profile.rest_voltage
+    n = ctx.cells
+    ctx.temperature_c = ctx.battery_file.conditions.battery_temperature_c
+    if state.specific_gravity is not None or state.specific_gravity_spread is not None:
+        if not ctx.profile.vented:
+            field = "specific_gravity" if state.specific_gravity is not None else (
+                "specific_gravity_spread")
+            raise ctx.bad_input(
+                f"state.{field}",
+                f"{ctx.profile.name} cells are sealed and cannot be read with a hydrometer",
+                "give state.rest_voltage instead",
+            )
+    if state.state_of_charge_pct is not None:
+        ctx.soc_pct = state.state_of_charge_pct
+        ctx.note("state_of_charge", f"{num(ctx.soc_pct, 0)} %, as given")
+    if state.specific_gravity is not None:
+        soc = float(state_of_charge_from_gravity_bci(state.specific_gravity))
+        ctx.soc_pct = soc if ctx.soc_pct is None else min(soc, ctx.soc_pct)
+        ctx.note(
+            "state_of_charge",
+            f"{num(soc, 0)} % from specific gravity {state.specific_gravity:.3f} "
+            "(Battery Council International table)",
+        )
+    if state.rest_voltage_v is None:
+        if ctx.soc_pct is None:
+            ctx.info("no rest voltage or state of charge given: timers assume a flat battery")
+        return
+    v = state.rest_voltage_v
+    per_cell = v / n
+    ctx.rest_cell_v = per_cell
+    if v < 0:
+        raise ctx.refuse(
+            f"the rest voltage reads {volts(v)}: the leads are reversed (or the battery is "
+            "connected backwards); connect red to + and black to -, then measure again"
+        )
+    if per_cell < rest.dead_below.value:
+        raise ctx.refuse(
+            f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, below "
+            f"{cell_volts(rest.dead_below.value)}: a dead or shorted cell, an open connection "
+            f"or a tripped protection circuit; do not charge it, have it tested"
+            + ("" if not ctx.lithium else " (BU-808a: never revive lithium cells that sat "
+               "below 1.5 V/cell)")
+        )
+    if per_cell > rest.highest_plausible.value:
+        cell_v = ctx.profile.nominal_cell_voltage.value
+        guess = round(v / cell_v)
+        raise ctx.refuse(
+            f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, more than a rested "
+            f"{n}-cell {ctx.profile.id} battery can read ({cell_volts(rest.highest_plausible.value)}"
+            f" at most): it reads like {guess} cells; check cells_in_series and the chemistry"
+        )
+    empty_v, full_v = table[0][1], table[-1][1]
+    if n >= 2 and per_cell < empty_v and empty_v <= v / (n - 1) <= full_v + 0.05:
+        if not state.cells_verified:
+            what = "a shorted cell" if not ctx.lithium else "a dead cell"
+            raise ctx.refuse(
+                f"the rest voltage {volts(v)} reads like {n - 1} healthy cells, not {n}: "
+                f"{what} is likely, and charging would overcharge the others; check each cell "
+                "(hydrometer or cell voltages); if all read alike the battery is only deeply "
+                "discharged: set state.cells_verified: true to plan a recovery"
+            )
+        ctx.warn(
+            f"rest voltage {volts(v)} could be one shorted cell; planned as deeply discharged "
+            "because state.cells_verified is true: watch for one cell gassing or heating early"
+        )
+    soc = float(soc_from_ocv(per_cell, table))
+    ctx.note(
+        "state_of_charge",
+        f"{num(soc, 0)} % from rest voltage {volts(v)} = {cell_volts(per_cell)} "
+        f"({ctx.profile.rest_voltage.table_source.split(';')[0]})",
+    )
+    ctx.soc_pct = soc if ctx.soc_pct is None else min(soc, ctx.soc_pct)
+    if ctx.profile.id == "lifepo4" or ctx.profile.chemistry == "lifepo4":
+        if 20 < soc < 90:
+            ctx.info(
+                "LiFePO4's flat voltage curve makes a rest voltage a rough guide between 20 "
+                "and 90 %; timers allow for it"
+            )
+
+
+@rule("CP104", "temperature.window", source="BU-410 Charging at High and Low Temperatures, "
+      "Table 1: lead-acid -20 to 50 degC, lithium-ion 0 to 45 degC and never below 0 degC")
+def temperature_window(ctx: Context) -> None:
+    """Charge only inside the chemistry's charge-temperature window; lithium never below 0 °C."""
+    t = ctx.temperature_c
+    low = max(ctx.profile.temperature.charge_min.value,
+              ctx.profile.envelope.charge_temperature_min.value)
+    high = min(ctx.profile.temperature.charge_max.value,
+               ctx.profile.envelope.charge_temperature_max.value)
+    ctx.note("temperature", f"battery at {celsius(t)}; charge window {celsius(low)} to "
+                            f"{celsius(high)}")
+    if t < low:
+        if ctx.lithium:
+            raise ctx.refuse(
+                f"the battery is at {celsius(t)}: lithium must never be charged below "
+                f"{celsius(low)} (metallic lithium plates on the anode); bring it into a warm "
+                "room and wait until the cells themselves are above "
+                f"{celsius(max(low, 0.0) + 5)} before charging"
+            )
+        raise ctx.refuse(
+            f"the battery is at {celsius(t)}, below the {celsius(low)} lowest charge temperature "
+            f"of {ctx.profile.name}; warm it first"
+        )
+    if t > high:
+        raise ctx.refuse(
+            f"the battery is at {celsius(t)}, above the {celsius(high)} highest charge "
+            f"temperature of {ctx.profile.name}; let it cool in the shade before charging"
+        )
+
+
+#: Margin above the freezing point where a warning is given.
+FREEZE_WARNING_K = 5.0
+
+
+@rule("CP105", "temperature.frozen", source="US Army TM 5-1185 Table III (freezing point by "
+      "specific gravity); Battery Council International table (specific gravity by state of "
+      "charge); common practice: never charge a frozen battery")
+def temperature_frozen(ctx: Context) -> None:
+    """Never charge a frozen lead-acid battery: refuse at or below its electrolyte's freezing point.
+
+    The freezing point comes from the measured specific gravity, else from the
+    state of charge; with neither, the battery is assumed flat (the warmest
+    freezing point).
+    """
+    if ctx.lithium:
+        return
+    state = ctx.battery_file.state
+    if state.specific_gravity is not None:
+        gravity = float(state.specific_gravity)
+        basis = f"specific gravity {gravity:.3f}"
+    else:
+        soc = ctx.soc_for_timers_pct
+        gravity = float(specific_gravity_bci(soc))
+        basis = (f"{num(soc, 0)} % state of charge (specific gravity {gravity:.3f})"
+                 if ctx.soc_pct is not None
+                 else f"no reading, so a flat battery (specific gravity {gravity:.3f})")
+    freeze = float(freezing_point_tm5_1185(gravity))
+    ctx.freezing_point_c = freeze
+    ctx.note("freezing_point", f"electrolyte freezes at {celsius(freeze)} at {basis} "
+                               "(TM 5-1185 Table III)")
+    t = ctx.temperature_c
+    if t <= freeze:
+        raise ctx.refuse(
+            f"the battery is at {celsius(t)}, at or below its electrolyte's freezing point "
+            f"{celsius(freeze)} ({basis}): it may be frozen, and a frozen battery can burst or "
+            "explode on charge; let it thaw at room temperature for a day, check the case for "
+            "cracks and bulges, then plan again"
+        )
+    if t <= freeze + FREEZE_WARNING_K:
+        ctx.warn(
+            f"the battery at {celsius(t)} is within {num(FREEZE_WARNING_K, 0)} K of its "
+            f"electrolyte's freezing point {celsius(freeze)}: check for ice or a bulging case "
+            "before connecting"
+        )
+
+
+@rule("CP106", "target.full_or_storage", source="BU-702 How to Store Batteries: lithium at "
+      "40-50 % for storage, no trickle; lead-acid stored fully charged on float")
+def target(ctx: Context) -> None:
+    """Charge to full, except lithium going into storage: charge that only to its storage level."""
+    storage = ctx.storage_s
+    after = ctx.profile.charge.storage_after.value
+    if storage is not None and storage >= after:
+        ctx.target = "storage" if ctx.lithium else "full"
+        ctx.finish = "stop" if ctx.lithium else "hold"
+        ctx.note(
+            "target",
+            f"storage of {num(storage / 86400, 0)} d (at least {num(after / 86400, 0)} d): "
+            + ("charge to the storage level, then stop"
+               if ctx.lithium else "charge to full, then hold on the storage voltage"),
+        )
+    else:
+        ctx.target = "full"
+        ctx.finish = "stop" if ctx.lithium else "hold"
+        ctx.note("target", "charge to full, then " + ("stop (no float for lithium)"
+                                                     if ctx.lithium else "float"))

@@ -1,0 +1,137 @@
+"""Fit: the plan meets the charger channel it will run on."""
+
+from __future__ import annotations
+
+from chargeplan.engine.context import Context
+from chargeplan.engine.fmt import amps, volts
+from chargeplan.engine.registry import rule
+from chargeplan.plan import HIGH_VOLTAGE_STAGES, Exit, ExitKind, StageKind
+
+#: Stages a plan can do without; a channel that cannot run them drops them with a warning.
+OPTIONAL = HIGH_VOLTAGE_STAGES
+
+
+def _permits_high_voltage(ctx: Context) -> bool:
+    p = ctx.profile
+    return (
+        not ctx.lithium
+        and p.equalization.allowed
+        and p.desulfation.allowed
+        and not (set(p.envelope.forbidden_stages) & {"equalization", "desulfation"})
+    )
+
+
+@rule("CP401", "charger.high_voltage_stages", source="common practice: a lead-acid charger's "
+      "equalization or desulfation stage damages lithium, gel and most AGM batteries")
+def charger_high_voltage_stages(ctx: Context) -> None:
+    """A channel that cannot switch off its high-voltage stages is refused for any battery they would harm."""
+    channel = ctx.battery_file.charger
+    if channel is None:
+        ctx.info("no charger channel given: check that yours can do every stage below and "
+                 "has no high-voltage stage it cannot switch off")
+        return
+    if channel.can_disable_high_voltage_stages or _permits_high_voltage(ctx):
+        return
+    name = f" '{channel.name}'" if channel.name else ""
+    if ctx.lithium:
+        reason = (
+            f"the channel{name} cannot switch off its equalization or desulfation stages, "
+            "which damage lithium batteries and can start a fire; use a channel with a "
+            "lithium mode, or one whose high-voltage stages can be switched off"
+        )
+    else:
+        reason = (
+            f"the channel{name} cannot switch off its equalization or desulfation stages, "
+            f"which {ctx.profile.name} batteries must not get; use a channel that can switch "
+            "them off"
+        )
+    raise ctx.refuse(reason)
+
+
+@rule("CP402", "charger.voltage_range", source="common practice: a channel must reach every "
+      "stage's voltage and regulate as low as the float")
+def charger_voltage_range(ctx: Context) -> None:
+    """Refuse a channel that cannot reach a stage's voltage or go as low as the float; drop optional stages it cannot reach."""
+    channel = ctx.battery_file.charger
+    if channel is None:
+        return
+    kept = []
+    for stage in ctx.stages:
+        if stage.voltage_v > channel.max_voltage_v + 1e-9:
+            if stage.kind in OPTIONAL:
+                ctx.warn(f"{stage.kind.label} left out: it needs {volts(stage.voltage_v)} and "
+                         f"the channel reaches {volts(channel.max_voltage_v)}")
+                continue
+            raise ctx.refuse(
+                f"the channel reaches {volts(channel.max_voltage_v)} but the "
+                f"{stage.kind.label} stage needs {volts(stage.voltage_v)}; use a channel that "
+                "reaches it (or check the battery's cell count)"
+            )
+        regulated = stage.kind in (StageKind.FLOAT, StageKind.STORAGE_HOLD, StageKind.ABSORPTION)
+        if regulated and stage.voltage_v < channel.min_voltage_v - 1e-9:
+            raise ctx.refuse(
+                f"the channel cannot regulate below {volts(channel.min_voltage_v)} but the "
+                f"{stage.kind.label} stage needs {volts(stage.voltage_v)}; use a channel that "
+                "goes low enough"
+            )
+        kept.append(stage)
+    ctx.stages = kept
+
+
+@rule("CP403", "charger.current_range", source="common practice: a channel's current limit "
+      "stretches the charge; its smallest current bounds pre-charge and tail-current exits")
+def charger_current_range(ctx: Context) -> None:
+    """Hold currents to the channel's maximum (the charge takes longer); respect its minimum."""
+    channel = ctx.battery_file.charger
+    if channel is None:
+        return
+    top, bottom = channel.max_current_a, channel.min_current_a
+    kept = []
+    for stage in ctx.stages:
+        if stage.current_a > top:
+            ctx.note(f"{stage.kind.value}.current", f"{amps(top)}, the channel's maximum "
+                                                   f"(plan asked {amps(stage.current_a)})")
+            if stage.kind == StageKind.BULK:
+                ctx.warn(f"bulk held to the channel's {amps(top)} instead of "
+                         f"{amps(stage.current_a)}: the charge takes longer")
+            stage.current_a = top
+        if stage.current_a < bottom:
+            if stage.kind == StageKind.PRECHARGE and ctx.lithium:
+                raise ctx.refuse(
+                    f"the channel's smallest current {amps(bottom)} is above the "
+                    f"{amps(stage.current_a)} pre-charge a deeply discharged lithium battery "
+                    "needs; use a channel that goes lower"
+                )
+            if stage.kind in OPTIONAL:
+                ctx.warn(f"{stage.kind.label} left out: it runs at {amps(stage.current_a)}, below"
+                         f" the channel's smallest current {amps(bottom)}")
+                continue
+            ctx.warn(f"{stage.kind.label} raised to the channel's smallest current "
+                     f"{amps(bottom)} (plan asked {amps(stage.current_a)})")
+            stage.current_a = bottom
+        exits = []
+        for e in stage.exits:
+            if e.kind == ExitKind.CURRENT_BELOW and e.value < bottom:
+                ctx.warn(f"{stage.kind.label} ends at the channel's smallest current "
+                         f"{amps(bottom)} instead of {amps(e.value)}: a little short of full")
+                e = Exit(e.kind, bottom, e.then)
+            exits.append(e)
+        stage.exits = exits
+        kept.append(stage)
+    ctx.stages = kept
+
+
+@rule("CP404", "charger.probe", source="common practice: compensation needs the battery's "
+      "temperature; a channel without a probe runs at the setpoints for the temperature planned")
+def charger_probe(ctx: Context) -> None:
+    """Without a temperature probe, setpoints hold for the planned temperature only."""
+    channel = ctx.battery_file.charger
+    probe = channel is not None and channel.temperature_probe
+    if probe:
+        return
+    if ctx.compensation is not None:
+        ctx.warn("no temperature probe: the voltages are set for the battery's temperature "
+                 "now; plan again if it changes by more than 5 K")
+    if ctx.lithium:
+        ctx.warn("no temperature probe: nothing stops the charge if the cells fall below "
+                 "0 °C; check the battery's temperature before and during charging")

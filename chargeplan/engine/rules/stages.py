@@ -1,0 +1,386 @@
+"""Set: the settings (profile plus maker overrides) and the stages in order."""
+
+from __future__ import annotations
+
+from chargeplan.engine.context import Context, Settings
+from chargeplan.engine.fmt import amps, cell_volts, duration, num, volts
+from chargeplan.engine.registry import rule
+from chargeplan.physics.ocv import soc_from_ocv
+from chargeplan.plan import Exit, ExitKind, Stage, StageKind
+
+
+@rule("CP201", "settings.overrides", source="common practice: the maker's datasheet overrides "
+      "generic values, inside the chemistry's hard envelope")
+def settings_overrides(ctx: Context) -> None:
+    """Start from the profile and apply the maker's values, each inside the hard envelope."""
+    p = ctx.profile
+    c = p.charge
+    n, cap = ctx.cells, ctx.capacity_ah
+    o = ctx.battery_file.battery.overrides
+    env_v = p.envelope.max_cell_voltage.value
+    env_a = p.envelope.max_current.value * cap
+    s = Settings(
+        absorption_v_cell=c.absorption_voltage.value,
+        float_v_cell=c.float_voltage.value if c.float_voltage else None,
+        storage_v_cell=c.storage_voltage.value,
+        equalization_v_cell=p.equalization.voltage.value if p.equalization.voltage else None,
+        desulfation_v_cell=p.desulfation.voltage.value if p.desulfation.voltage else None,
+        precharge_below_v_cell=c.precharge_below.value,
+        precharge_a=c.precharge_current.value * cap,
+        bulk_a=c.bulk_current.value * cap,
+        tail_a=c.tail_current.value * cap,
+        max_a=env_a,
+        equalization_a=p.equalization.current.value * cap if p.equalization.current else None,
+        desulfation_a=p.desulfation.current.value * cap if p.desulfation.current else None,
+        absorption_time_s=c.absorption_time_max.value,
+        equalization_time_s=p.equalization.duration.value if p.equalization.duration else None,
+        desulfation_time_s=p.desulfation.duration.value if p.desulfation.duration else None,
+        coefficient_v_per_k_cell=(p.temperature.compensation.coefficient.value / 1000
+                                  if p.temperature.compensation else 0.0),
+        max_cell_v=env_v,
+    )
+    ctx.note("settings", f"from profile '{p.id}': absorption {cell_volts(s.absorption_v_cell)}, "
+                         f"bulk {amps(s.bulk_a)} ({num(c.bulk_current.value)} It x "
+                         f"{num(cap)} Ah), tail {amps(s.tail_a)}")
+
+    def field(name: str) -> str:
+        return f"battery.overrides.{name}"
+
+    def cell_voltage(name: str, attr: str, stage: str) -> None:
+        given = getattr(o, name)
+        if given is None:
+            return
+        if attr == "float_v_cell" and "float" in p.envelope.forbidden_stages:
+            raise ctx.bad_input(field(name), f"{p.name} must never be floated",
+                                "remove the float_voltage override")
+        if attr == "equalization_v_cell" and not p.equalization.allowed:
+            raise ctx.bad_input(field(name), f"{p.name} is not equalized by this profile",
+                                "remove the override, or use a profile that allows "
+                                "equalization")
+        per_cell = given.cell_volts(n)
+        if per_cell > env_v + 1e-9:
+            raise ctx.bad_input(
+                field(name),
+                f"{given} is {cell_volts(per_cell)}, above the {p.id} hard envelope's "
+                f"{cell_volts(env_v)}",
+                "check the datasheet value (per cell or per battery?); chargeplan never plans "
+                "above the envelope",
+            )
+        setattr(s, attr, per_cell)
+        ctx.note(f"{stage}.voltage", f"maker's {cell_volts(per_cell)} ({given}) replaces the "
+                                     "profile's value")
+
+    cell_voltage("absorption_voltage", "absorption_v_cell", "absorption")
+    cell_voltage("float_voltage", "float_v_cell", "float")
+    cell_voltage("storage_voltage", "storage_v_cell", "storage_hold")
+    cell_voltage("equalization_voltage", "equalization_v_cell", "equalization")
+    if s.float_v_cell is not None and s.float_v_cell >= s.absorption_v_cell:
+        raise ctx.bad_input(field("float_voltage"), "must be below the absorption voltage",
+                            "check both values against the datasheet")
+    if s.storage_v_cell > s.absorption_v_cell:
+        raise ctx.bad_input(field("storage_voltage"), "must not exceed the absorption voltage",
+                            "check both values against the datasheet")
+
+    def current(name: str, attr: str) -> None:
+        given = getattr(o, name)
+        if given is None:
+            return
+        value = given.amps(cap)
+        if value > env_a + 1e-9:
+            raise ctx.bad_input(
+                field(name),
+                f"{given} is {amps(value)}, above the {p.id} hard envelope's "
+                f"{num(p.envelope.max_current.value)} It = {amps(env_a)}",
+                "check the datasheet value; chargeplan never plans above the envelope",
+            )
+        setattr(s, attr, value)
+        ctx.note(name, f"maker's {amps(value)} ({given}) replaces the profile's value")
+
+    current("max_charge_current", "max_a")
+    current("bulk_current", "bulk_a")
+    current("tail_current", "tail_a")
+    current("precharge_current", "precharge_a")
+    if s.bulk_a > s.max_a:
+        s.bulk_a = s.max_a
+        ctx.note("bulk.current", f"bulk held to the maximum charge current {amps(s.max_a)}")
+    if s.precharge_a > s.bulk_a:
+        raise ctx.bad_input(field("precharge_current"), "is above the bulk current",
+                            "a pre-charge current is a small fraction of the bulk current")
+    if s.tail_a >= s.bulk_a:
+        raise ctx.bad_input(field("tail_current"), "must be below the bulk current",
+                            "the tail current is a few percent of the capacity, e.g. '0.02 It'")
+    if o.absorption_time_s is not None:
+        s.absorption_time_s = o.absorption_time_s
+        ctx.note("absorption.duration", f"maker's {duration(o.absorption_time_s)}")
+    if o.temperature_coefficient_mv_per_k_per_cell is not None:
+        if ctx.lithium:
+            raise ctx.bad_input(field("temperature_coefficient"),
+                                "lithium voltages are not temperature compensated",
+                                "remove the override")
+        s.coefficient_v_per_k_cell = o.temperature_coefficient_mv_per_k_per_cell / 1000
+        ctx.note("compensation", f"maker's {num(o.temperature_coefficient_mv_per_k_per_cell)} "
+                                 "mV/K/cell")
+    ctx.settings = s
+
+
+def _settings(ctx: Context) -> Settings:
+    assert ctx.settings is not None, "CP201 runs first"
+    return ctx.settings
+
+
+@rule("CP202", "stages.precharge", source="BU-808a Low-voltage cut-off: pre-charge lithium "
+      "below about 3.0 V/cell (NMC) or 2.5 V/cell (LFP) at about 0.1 C with a timer; common "
+      "practice: soft-start lead-acid below about 1.75 V/cell")
+def stages_precharge(ctx: Context) -> None:
+    """A deeply discharged battery, or one whose voltage is unknown, starts with a small current.
+
+    The stage ends as soon as the voltage passes the threshold, so a battery
+    above it moves straight on.
+    """
+    s = _settings(ctx)
+    threshold = s.precharge_below_v_cell * ctx.cells
+    if ctx.rest_cell_v is not None and ctx.rest_cell_v >= s.precharge_below_v_cell:
+        ctx.note("precharge", f"none: rest {cell_volts(ctx.rest_cell_v)} is above "
+                              f"{cell_volts(s.precharge_below_v_cell)}")
+        return
+    if ctx.rest_cell_v is None and ctx.soc_pct is not None and ctx.soc_pct > 0:
+        ctx.note("precharge", f"none: {num(ctx.soc_pct, 0)} % state of charge given")
+        return
+    if ctx.target == "storage" and ctx.soc_pct is not None and ctx.soc_pct >= 100:
+        return
+    why = ("the voltage is not known" if ctx.rest_cell_v is None
+           else f"rest {cell_volts(ctx.rest_cell_v)} is below {cell_volts(s.precharge_below_v_cell)}")
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.PRECHARGE,
+            voltage_v=threshold,
+            current_a=s.precharge_a,
+            exits=[Exit(ExitKind.VOLTAGE_REACHED, threshold)],
+            purpose="lift a deeply discharged battery gently; a fault if the timer runs out",
+        )
+    )
+    ctx.note("precharge.voltage", f"pre-charge until {volts(threshold)} = "
+                                  f"{cell_volts(s.precharge_below_v_cell)} x {ctx.cells} "
+                                  f"because {why}")
+    ctx.note("precharge.current", f"{amps(s.precharge_a)}")
+
+
+@rule("CP203", "stages.desulfation", source="common practice: a current-limited recovery stage "
+      "for lead-acid left partly charged for weeks (BU-804b Sulfation and How to Prevent it); "
+      "never for gel or lithium")
+def stages_desulfation(ctx: Context) -> None:
+    """Lead-acid that sat well below full for weeks gets a current-limited desulfation stage first.
+
+    Only where the profile allows it; never for gel, never for lithium.
+    """
+    p = ctx.profile
+    d = p.desulfation
+    if ctx.lithium or not d.allowed or "desulfation" in p.envelope.forbidden_stages:
+        ctx.note("desulfation", f"none: not allowed for {p.name}")
+        return
+    assert d.state_of_charge_below and d.idle_after and d.voltage and d.current and d.duration
+    idle = ctx.battery_file.state.since_last_charge_s
+    if ctx.soc_pct is None or idle is None:
+        ctx.note("desulfation", "none: needs a state of charge and state.since_last_charge "
+                                "to tell whether the battery is sulfated")
+        return
+    below, after = d.state_of_charge_below.value, d.idle_after.value
+    if not (ctx.soc_pct < below and idle >= after):
+        ctx.note("desulfation", f"none: {num(ctx.soc_pct, 0)} % after "
+                                f"{num(idle / 86400, 0)} d (needs below {num(below, 0)} % for "
+                                f"{num(after / 86400, 0)} d or more)")
+        return
+    s = _settings(ctx)
+    assert s.desulfation_v_cell is not None and s.desulfation_a is not None
+    assert s.desulfation_time_s is not None
+    ceiling = s.desulfation_v_cell * ctx.cells
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.DESULFATION,
+            voltage_v=ceiling,
+            current_a=s.desulfation_a,
+            exits=[Exit(ExitKind.DURATION, s.desulfation_time_s)],
+            purpose="break down hardened sulfate at a small current before the normal charge",
+        )
+    )
+    ctx.note("desulfation.voltage", f"ceiling {volts(ceiling)} = {cell_volts(s.desulfation_v_cell)}"
+                                    f" x {ctx.cells}, at {amps(s.desulfation_a)} for "
+                                    f"{duration(s.desulfation_time_s)}, because "
+                                    f"{num(ctx.soc_pct, 0)} % for {num(idle / 86400, 0)} d")
+    ctx.warn("desulfation planned: stay nearby, and stop if the battery gets hot or gasses "
+             "hard")
+
+
+def _storage_soc(ctx: Context) -> float:
+    s = _settings(ctx)
+    return float(soc_from_ocv(s.storage_v_cell, ctx.profile.rest_voltage.table))
+
+
+@rule("CP204", "stages.bulk_absorption", source="BU-403 Charging Lead Acid; BU-409 Charging "
+      "Lithium-ion: constant current to the voltage limit, then constant voltage until the "
+      "current falls to the tail current")
+def stages_bulk_absorption(ctx: Context) -> None:
+    """Constant current to the absorption voltage, then hold it until the tail current or the time limit.
+
+    Lithium going into storage stops at its storage voltage instead of full.
+    """
+    s = _settings(ctx)
+    n = ctx.cells
+    if ctx.target == "storage":
+        hold_v = s.storage_v_cell * n
+        level = _storage_soc(ctx)
+        if ctx.soc_pct is not None and ctx.soc_pct >= level:
+            ctx.stages = [st for st in ctx.stages if st.kind != StageKind.PRECHARGE]
+            ctx.info(
+                f"already at about {num(ctx.soc_pct, 0)} %, at or above the storage level of "
+                f"about {num(level, 0)} %: the charger will deliver little or nothing; to store "
+                f"it lower, discharge it to {volts(hold_v)} with a load"
+            )
+        else:
+            ctx.stages.append(
+                Stage(
+                    kind=StageKind.BULK,
+                    voltage_v=hold_v,
+                    current_a=s.bulk_a,
+                    exits=[Exit(ExitKind.VOLTAGE_REACHED, hold_v)],
+                    purpose="constant current up to the storage voltage",
+                )
+            )
+        ctx.stages.append(
+            Stage(
+                kind=StageKind.STORAGE_HOLD,
+                voltage_v=hold_v,
+                current_a=s.bulk_a,
+                exits=[
+                    Exit(ExitKind.CURRENT_BELOW, s.tail_a, then="stop"),
+                    Exit(ExitKind.DURATION, s.absorption_time_s, then="stop"),
+                ],
+                purpose="settle at the storage voltage, then switch off (no trickle)",
+            )
+        )
+        ctx.note("storage_hold.voltage", f"{volts(hold_v)} = {cell_volts(s.storage_v_cell)} x {n}"
+                                         f" (about {num(level, 0)} % state of charge)")
+        return
+    abs_v = s.absorption_v_cell * n
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.BULK,
+            voltage_v=abs_v,
+            current_a=s.bulk_a,
+            exits=[Exit(ExitKind.VOLTAGE_REACHED, abs_v)],
+            purpose="constant current until the absorption voltage is reached",
+        )
+    )
+    ctx.note("bulk.current", f"{amps(s.bulk_a)}")
+    then = "stop" if ctx.lithium else "next"
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.ABSORPTION,
+            voltage_v=abs_v,
+            current_a=s.bulk_a,
+            exits=[
+                Exit(ExitKind.CURRENT_BELOW, s.tail_a, then=then),
+                Exit(ExitKind.DURATION, s.absorption_time_s, then=then),
+            ],
+            purpose="constant voltage until the current tails off",
+        )
+    )
+    ctx.note("absorption.voltage", f"{volts(abs_v)} = {cell_volts(s.absorption_v_cell)} x {n}")
+    ctx.note("absorption.exit", f"tail current {amps(s.tail_a)} or "
+                                f"{duration(s.absorption_time_s)}, whichever first")
+
+
+@rule("CP205", "stages.equalization", source="IEEE 450-1987 cl. 4.4 (equalize when cells drift "
+      "or every 18 months); Battery University, equalizing charge (SG spread 0.030, about "
+      "2.50 V/cell); flooded only")
+def stages_equalization(ctx: Context) -> None:
+    """Equalize a flooded battery only when its cells have drifted or it is due, and the profile allows it.
+
+    Never gel, never lithium; AGM only where its profile allows.
+    """
+    p = ctx.profile
+    e = p.equalization
+    state = ctx.battery_file.state
+    if state.equalize is False:
+        ctx.note("equalization", "none: state.equalize is false")
+        return
+    allowed = (e.allowed and not ctx.lithium
+               and "equalization" not in p.envelope.forbidden_stages)
+    if not allowed:
+        if state.equalize:
+            ctx.warn(f"equalization asked for but never done on {p.name}: left out")
+        ctx.note("equalization", f"none: not allowed for {p.name}")
+        return
+    assert e.gravity_spread_trigger and e.interval
+    reasons = []
+    if state.equalize:
+        reasons.append("asked for (state.equalize)")
+    spread = state.specific_gravity_spread
+    if spread is not None and spread >= e.gravity_spread_trigger.value - 1e-9:
+        reasons.append(f"cells differ by {spread:.3f} specific gravity "
+                       f"(>= {e.gravity_spread_trigger.value:.3f})")
+    since = state.since_equalization_s
+    if since is not None and since >= e.interval.value:
+        reasons.append(f"{num(since / 86400, 0)} d since the last one "
+                       f"(due every {num(e.interval.value / 86400, 0)} d)")
+    if not reasons:
+        ctx.note("equalization", "none: not warranted (no drift given, not due)")
+        return
+    s = _settings(ctx)
+    assert s.equalization_v_cell is not None and s.equalization_a is not None
+    assert s.equalization_time_s is not None
+    v = s.equalization_v_cell * ctx.cells
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.EQUALIZATION,
+            voltage_v=v,
+            current_a=s.equalization_a,
+            exits=[Exit(ExitKind.DURATION, s.equalization_time_s)],
+            purpose="a controlled overcharge to bring drifted cells back together",
+        )
+    )
+    ctx.note("equalization.voltage", f"{volts(v)} = {cell_volts(s.equalization_v_cell)} x "
+                                     f"{ctx.cells} because " + "; ".join(reasons))
+    ctx.warn("equalization planned: heavy gassing; ventilate well, check the electrolyte level "
+             "before and after, and stay nearby")
+
+
+@rule("CP206", "stages.finish", source="IEC 62485-2 Table 1 (float voltages); BU-403 (float "
+      "after charge); BU-702 and BU-808a (no float or trickle for lithium)")
+def stages_finish(ctx: Context) -> None:
+    """Lead-acid ends on float, or on a storage hold for the storage time; lithium stops."""
+    if ctx.lithium:
+        ctx.note("finish", "stop: lithium is not floated")
+        return
+    s = _settings(ctx)
+    storage = ctx.storage_s
+    if storage is not None and storage >= ctx.profile.charge.storage_after.value:
+        v = s.storage_v_cell * ctx.cells
+        ctx.stages.append(
+            Stage(
+                kind=StageKind.STORAGE_HOLD,
+                voltage_v=v,
+                current_a=s.bulk_a,
+                exits=[],
+                purpose=f"hold on the storage voltage through the {num(storage / 86400, 0)} d "
+                "of storage",
+            )
+        )
+        ctx.note("storage_hold.voltage", f"{volts(v)} = {cell_volts(s.storage_v_cell)} x "
+                                         f"{ctx.cells} for {num(storage / 86400, 0)} d")
+        return
+    if s.float_v_cell is None:
+        ctx.finish = "stop"
+        ctx.note("finish", f"stop: {ctx.profile.name} has no float voltage")
+        return
+    v = s.float_v_cell * ctx.cells
+    ctx.stages.append(
+        Stage(
+            kind=StageKind.FLOAT,
+            voltage_v=v,
+            current_a=s.bulk_a,
+            exits=[],
+            purpose="hold full until disconnected",
+        )
+    )
+    ctx.note("float.voltage", f"{volts(v)} = {cell_volts(s.float_v_cell)} x {ctx.cells}")

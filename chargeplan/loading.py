@@ -1,0 +1,204 @@
+"""Reading input files safely, and turning validation errors into one-line messages.
+
+YAML is read with ruamel.yaml's safe loader, which refuses tags that would build
+Python objects (``!!python/object`` and friends). JSON is read with the standard
+library, refusing ``NaN`` and ``Infinity``. Every failure is an
+:class:`~chargeplan.errors.InputError` naming the file, the field and the fix.
+"""
+
+from __future__ import annotations
+
+import difflib
+import json
+from pathlib import Path
+from typing import Any, TypeVar
+
+from pydantic import BaseModel, ValidationError
+
+from chargeplan.errors import InputError
+
+__all__ = ["MAX_INPUT_BYTES", "input_error", "read_mapping", "validate"]
+
+M = TypeVar("M", bound=BaseModel)
+
+#: The largest input file read, in bytes. Battery and profile files are a few kB.
+MAX_INPUT_BYTES = 5 * 1024 * 1024
+
+
+def _reject_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a number chargeplan accepts")
+
+
+def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
+    """Read a YAML or JSON file whose top level is a mapping."""
+    path = Path(path)
+    shown = str(path)
+    try:
+        size = path.stat().st_size
+    except FileNotFoundError:
+        raise InputError("no such file", file=shown, fix="check the path") from None
+    except OSError as error:
+        raise InputError(f"cannot read it ({error.strerror})", file=shown,
+                         fix="check the path and its permissions") from None
+    if path.is_dir():
+        raise InputError("is a folder, not a file", file=shown, fix=f"give the {what} file")
+    if size > MAX_INPUT_BYTES:
+        raise InputError(
+            f"is {size / 1e6:.1f} MB, larger than any {what} file should be "
+            f"({MAX_INPUT_BYTES // (1024 * 1024)} MB at most)",
+            file=shown,
+            fix=f"check that this is the {what} file",
+        )
+    try:
+        raw = path.read_bytes()
+    except OSError as error:
+        raise InputError(f"cannot read it ({error.strerror})", file=shown,
+                         fix="check the path and its permissions") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError("is not UTF-8 text", file=shown,
+                         fix=f"give a YAML or JSON {what} file") from None
+    if "\x00" in text:
+        raise InputError("is binary, not text", file=shown,
+                         fix=f"give a YAML or JSON {what} file")
+    if not text.strip():
+        raise InputError("is empty", file=shown, fix=f"write the {what} in YAML or JSON")
+    if path.suffix.lower() == ".json":
+        data = _parse_json(text, shown)
+    else:
+        data = _parse_yaml(text, shown)
+    if not isinstance(data, dict):
+        raise InputError(
+            f"the top level is a {type(data).__name__}, not a mapping of keys",
+            file=shown,
+            fix=f"start the {what} file with its sections, e.g. 'battery:'",
+        )
+    return data
+
+
+def _parse_json(text: str, shown: str) -> Any:
+    try:
+        return json.loads(text, parse_constant=_reject_constant)
+    except json.JSONDecodeError as error:
+        raise InputError(
+            f"line {error.lineno}, column {error.colno}: not valid JSON ({error.msg})",
+            file=shown,
+            fix="fix the JSON syntax there",
+        ) from None
+    except ValueError as error:
+        raise InputError(str(error), file=shown, fix="write a finite number with its unit") from None
+    except RecursionError:
+        raise InputError("is nested too deeply", file=shown, fix="flatten the file") from None
+
+
+def _parse_yaml(text: str, shown: str) -> Any:
+    from ruamel.yaml import YAML
+    from ruamel.yaml.error import MarkedYAMLError, YAMLError
+
+    yaml = YAML(typ="safe", pure=True)
+    try:
+        return yaml.load(text)
+    except MarkedYAMLError as error:
+        mark = error.problem_mark or error.context_mark
+        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark else ""
+        problem = (error.problem or error.context or "not valid YAML").strip()
+        if "could not determine a constructor" in problem or "tag" in problem:
+            raise InputError(
+                f"{where}YAML tags that build objects are refused ({problem})",
+                file=shown,
+                fix="remove the '!!' tag and write plain values",
+            ) from None
+        raise InputError(f"{where}{problem}", file=shown, fix="fix the YAML syntax there") from None
+    except YAMLError as error:
+        raise InputError(f"not valid YAML ({str(error).splitlines()[0]})", file=shown,
+                         fix="fix the YAML syntax") from None
+    except RecursionError:
+        raise InputError("is nested too deeply", file=shown, fix="flatten the file") from None
+
+
+def _location(loc: tuple[int | str, ...]) -> str:
+    text = ""
+    for part in loc:
+        if isinstance(part, int):
+            text += f"[{part}]"
+        else:
+            text += f".{part}" if text else str(part)
+    return text
+
+
+def _known_keys(model: type[BaseModel], loc: tuple[int | str, ...]) -> list[str]:
+    """The file keys allowed at ``loc``'s parent, for spelling suggestions."""
+    current: Any = model
+    for part in loc[:-1]:
+        if isinstance(part, int) or not (isinstance(current, type) and issubclass(current, BaseModel)):
+            return []
+        field = next(
+            (f for name, f in current.model_fields.items() if (f.alias or name) == part), None
+        )
+        if field is None:
+            return []
+        annotation = field.annotation
+        candidates = [annotation, *getattr(annotation, "__args__", ())]
+        current = next(
+            (c for c in candidates if isinstance(c, type) and issubclass(c, BaseModel)), None
+        )
+    if isinstance(current, type) and issubclass(current, BaseModel):
+        return [f.alias or name for name, f in current.model_fields.items()]
+    return []
+
+
+def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) -> InputError:
+    """The first problem of a validation error as one line; the count of the rest."""
+    problems = error.errors(include_url=False)
+    first = problems[0]
+    loc = tuple(first["loc"])
+    field = _location(loc) or None
+    kind = first["type"]
+    message = str(first["msg"]).removeprefix("Value error, ").removeprefix("Assertion failed, ")
+    fix: str | None
+    if kind == "missing":
+        message, fix = "is missing", f"add {field}" + _example_hint(field)
+    elif kind == "extra_forbidden":
+        known = _known_keys(model, loc)
+        close = difflib.get_close_matches(str(loc[-1]), known, n=1)
+        message = "is not a known field"
+        fix = f"did you mean '{close[0]}'?" if close else "remove it or check its spelling"
+        if known and not close:
+            fix += f" (known here: {', '.join(known)})"
+    elif "; " in message:
+        message, fix = message.split("; ", 1)
+    else:
+        fix = "correct the value"
+    more = len(problems) - 1
+    if more:
+        fix = f"{fix} (and {more} more problem{'s' if more > 1 else ''} after this)"
+    return InputError(message, file=file, field=field, fix=fix)
+
+
+_EXAMPLES = {
+    "capacity": "capacity: 9 Ah",
+    "chemistry": "chemistry: agm",
+    "name": "name: Mower battery, bay 3",
+    "battery_temperature": "battery_temperature: 20 degC",
+    "conditions": "conditions: {battery_temperature: 20 degC}",
+    "battery": "battery: {name: ..., chemistry: agm, nominal_voltage: 12 V, capacity: 9 Ah}",
+    "duration": "duration: 120 d",
+    "max_voltage": "max_voltage: 16 V",
+    "max_current": "max_current: 4 A",
+}
+
+
+def _example_hint(field: str | None) -> str:
+    if not field:
+        return ""
+    example = _EXAMPLES.get(field.rsplit(".", 1)[-1])
+    return f", e.g. '{example}'" if example else ""
+
+
+def validate(model: type[M], data: dict[str, Any], *, file: str) -> M:
+    """Validate ``data`` as ``model``; a failure is an InputError naming file and field."""
+    try:
+        return model.model_validate(data)
+    except ValidationError as error:
+        raise input_error(error, file=file, model=model) from None

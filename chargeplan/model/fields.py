@@ -1,0 +1,206 @@
+"""Field types for input models: quantity strings checked for their dimension.
+
+A quantity field reads a string with its unit ("12.6 V", "5 degC", "0.1 It") through
+the one pint registry and stores a plain float in the kind's canonical unit (see
+:data:`chargeplan.units.DIMENSIONS`); the attribute name carries that unit
+(``capacity_ah``, ``battery_temperature_c``), the file key does not (``capacity``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Annotated, Any
+
+from pydantic import AfterValidator, BeforeValidator, ConfigDict, WithJsonSchema
+from pydantic import BaseModel as _BaseModel
+
+from chargeplan.units import DIMENSIONS, describe_dimension, parse_quantity
+
+__all__ = [
+    "CellOrPackVoltage",
+    "CurrentOrRate",
+    "CurrentSpec",
+    "InputModel",
+    "Text",
+    "VoltageSpec",
+    "quantity",
+]
+
+_NUMBER_WITH_UNIT = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*\S.*$"
+
+
+class InputModel(_BaseModel):
+    """Base of input models: unknown keys are errors, keys are the file's keys."""
+
+    model_config = ConfigDict(
+        extra="forbid",
+        populate_by_name=True,
+        frozen=True,
+        str_strip_whitespace=True,
+    )
+
+
+def _schema(kind: str, description: str | None = None) -> dict[str, Any]:
+    return {
+        "type": "string",
+        "pattern": _NUMBER_WITH_UNIT,
+        "description": description or f"{describe_dimension(kind)} (unit required)",
+        "examples": [DIMENSIONS[kind][1]],
+    }
+
+
+def _bounded(kind: str, low: float | None, high: float | None, unit: str):
+    def check(value: float) -> float:
+        if low is not None and value < low:
+            raise ValueError(f"{value:g} {unit} is below the least sensible {low:g} {unit}")
+        if high is not None and value > high:
+            raise ValueError(f"{value:g} {unit} is above the largest sensible {high:g} {unit}")
+        return value
+
+    return check
+
+
+def quantity(
+    kind: str,
+    *,
+    ge: float | None = None,
+    le: float | None = None,
+    description: str | None = None,
+) -> Any:
+    """An annotated float read from a quantity string of dimension ``kind``.
+
+    ``ge``/``le`` bound the value in the kind's canonical unit.
+    """
+    unit = DIMENSIONS[kind][0]
+    return Annotated[
+        float,
+        BeforeValidator(lambda raw: parse_quantity(raw, kind)),
+        AfterValidator(_bounded(kind, ge, le, unit)),
+        WithJsonSchema(_schema(kind, description)),
+    ]
+
+
+
+def _text(raw: object) -> str:
+    if not isinstance(raw, str):
+        raise ValueError("expected text")
+    value = raw.strip()
+    if not value:
+        raise ValueError("is empty; write some text")
+    if any(ord(ch) < 32 and ch not in "\t" for ch in value):
+        raise ValueError("contains control characters; write plain text")
+    return value
+
+
+Text = Annotated[
+    str,
+    BeforeValidator(_text),
+    WithJsonSchema({"type": "string", "minLength": 1, "maxLength": 200}),
+]
+
+
+@dataclass(frozen=True, slots=True)
+class CurrentSpec:
+    """A current given in amperes or as a C-rate (It) of the battery's capacity."""
+
+    amperes: float | None = None
+    c_rate: float | None = None
+
+    def amps(self, capacity_ah: float) -> float:
+        if self.amperes is not None:
+            return self.amperes
+        assert self.c_rate is not None
+        return self.c_rate * capacity_ah
+
+    def __str__(self) -> str:
+        return f"{self.amperes:g} A" if self.amperes is not None else f"{self.c_rate:g} It"
+
+
+def _current_or_rate(raw: object) -> CurrentSpec:
+    if isinstance(raw, CurrentSpec):
+        return raw
+    try:
+        value = parse_quantity(raw, "current")
+        result = CurrentSpec(amperes=value)
+    except ValueError as as_current:
+        try:
+            result = CurrentSpec(c_rate=parse_quantity(raw, "c_rate"))
+        except ValueError:
+            raise ValueError(
+                f"{str(as_current).split('; write')[0]}; write a current such as '2.5 A' "
+                "or a C-rate such as '0.1 It'"
+            ) from None
+    magnitude = result.amperes if result.amperes is not None else result.c_rate
+    assert magnitude is not None
+    if not magnitude > 0:
+        raise ValueError(f"'{raw}' must be above zero")
+    if result.amperes is not None and result.amperes > 10_000:
+        raise ValueError(f"'{raw}' is above the largest sensible 10000 A")
+    if result.c_rate is not None and result.c_rate > 20:
+        raise ValueError(f"'{raw}' is above the largest sensible 20 It")
+    return result
+
+
+CurrentOrRate = Annotated[
+    CurrentSpec,
+    BeforeValidator(_current_or_rate),
+    WithJsonSchema(
+        {
+            "type": "string",
+            "pattern": _NUMBER_WITH_UNIT,
+            "description": "a current such as '2.5 A', or a C-rate such as '0.1 It' "
+            "(It = capacity / 1 h, IEC 61434)",
+            "examples": ["2.5 A", "0.1 It"],
+        }
+    ),
+]
+
+
+@dataclass(frozen=True, slots=True)
+class VoltageSpec:
+    """A voltage for the whole battery ('14.7 V') or per cell ('2.45 V/cell')."""
+
+    volts: float
+    per_cell: bool
+
+    def cell_volts(self, cells_in_series: int) -> float:
+        return self.volts if self.per_cell else self.volts / cells_in_series
+
+    def __str__(self) -> str:
+        return f"{self.volts:g} V/cell" if self.per_cell else f"{self.volts:g} V"
+
+
+def _pack_or_cell(raw: object) -> VoltageSpec:
+    if isinstance(raw, VoltageSpec):
+        return raw
+    try:
+        result = VoltageSpec(parse_quantity(raw, "voltage"), per_cell=False)
+    except ValueError as as_pack:
+        try:
+            result = VoltageSpec(parse_quantity(raw, "cell_voltage"), per_cell=True)
+        except ValueError:
+            raise ValueError(
+                f"{str(as_pack).split('; write')[0]}; write a battery voltage such as "
+                "'14.7 V' or a voltage per cell such as '2.45 V/cell'"
+            ) from None
+    if not (result.volts > 0 and math.isfinite(result.volts)):
+        raise ValueError(f"'{raw}' must be above zero")
+    if result.volts > 1000:
+        raise ValueError(f"'{raw}' is above the largest sensible 1000 V")
+    return result
+
+
+CellOrPackVoltage = Annotated[
+    VoltageSpec,
+    BeforeValidator(_pack_or_cell),
+    WithJsonSchema(
+        {
+            "type": "string",
+            "pattern": _NUMBER_WITH_UNIT,
+            "description": "a battery voltage such as '14.7 V' or a voltage per cell "
+            "such as '2.45 V/cell'",
+            "examples": ["14.7 V", "2.45 V/cell"],
+        }
+    ),
+]

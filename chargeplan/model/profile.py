@@ -1,0 +1,254 @@
+"""A chemistry profile: per-cell values, C-rate currents, temperatures, the hard envelope.
+
+Every number is a ``{value, source}`` pair; the source names the standard and
+clause, the handbook and table, or says "common practice" or "from memory".
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, ClassVar, Literal
+
+from pydantic import BeforeValidator, Field, WithJsonSchema, create_model, model_validator
+
+from chargeplan.model.fields import InputModel, Text, quantity
+
+__all__ = [
+    "Compensation",
+    "Desulfation",
+    "Envelope",
+    "Equalization",
+    "Profile",
+    "RestVoltage",
+    "Sourced",
+    "Temperature",
+]
+
+Family = Literal["lead_acid", "lithium"]
+StageName = Literal[
+    "precharge", "desulfation", "bulk", "absorption", "equalization", "float", "storage_hold"
+]
+
+
+def _source_text(raw: object) -> str:
+    if not isinstance(raw, str) or len(raw.strip()) < 6:
+        raise ValueError(
+            "every value needs a source: a standard and clause, a handbook and table, "
+            "'common practice' or 'from memory'"
+        )
+    return raw.strip()
+
+
+Source = Annotated[
+    str, BeforeValidator(_source_text), WithJsonSchema({"type": "string", "minLength": 6})
+]
+
+
+class Sourced(InputModel):
+    """Base of the ``{value, source}`` pairs; ``unit`` is the unit ``value`` is held in."""
+
+    unit: ClassVar[str] = ""
+    value: object
+    source: Source
+
+    def shown(self) -> str:
+        """The value with its unit, for listings: '2.43 V/cell', '8 h', '-3 mV/K/cell'."""
+        value = float(self.value)  # type: ignore[arg-type]
+        if self.unit == "s":
+            hours = value / 3600
+            return f"{hours / 24:g} d" if hours >= 48 else f"{hours:g} h"
+        return f"{value:g} {self.unit}".strip()
+
+
+def _sourced(name: str, value_type: object, unit: str) -> type[Sourced]:
+    model = create_model(  # type: ignore[call-overload]
+        name, __base__=Sourced, value=(value_type, ...)
+    )
+    model.unit = unit
+    return model  # type: ignore[no-any-return]
+
+
+CellVoltage = _sourced("SourcedCellVoltage", quantity("cell_voltage", ge=0.5, le=5.0), "V/cell")
+CRate = _sourced("SourcedCRate", quantity("c_rate", ge=0.001, le=20), "It")
+Duration = _sourced("SourcedDuration", quantity("duration", ge=0, le=10 * 365 * 86_400), "s")
+Temp = _sourced("SourcedTemperature", quantity("temperature", ge=-60, le=100), "degC")
+Coefficient = _sourced("SourcedCoefficient", quantity("coefficient", ge=-10, le=0), "mV/K/cell")
+Percent = _sourced("SourcedPercent", quantity("fraction", ge=0, le=100), "%")
+Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0)], "")
+Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")
+
+
+class Charge(InputModel):
+    """The normal charge, per cell and as C-rates, at the reference temperature."""
+
+    precharge_below: CellVoltage  # type: ignore[valid-type]
+    precharge_current: CRate  # type: ignore[valid-type]
+    bulk_current: CRate  # type: ignore[valid-type]
+    absorption_voltage: CellVoltage  # type: ignore[valid-type]
+    tail_current: CRate  # type: ignore[valid-type]
+    absorption_time_max: Duration  # type: ignore[valid-type]
+    float_voltage: CellVoltage | None = None  # type: ignore[valid-type]
+    storage_voltage: CellVoltage  # type: ignore[valid-type]
+    storage_after: Duration  # type: ignore[valid-type]
+    charge_factor: Factor  # type: ignore[valid-type]
+    timer_margin: Factor  # type: ignore[valid-type]
+
+
+class Equalization(InputModel):
+    allowed: bool
+    voltage: CellVoltage | None = None  # type: ignore[valid-type]
+    current: CRate | None = None  # type: ignore[valid-type]
+    duration: Duration | None = None  # type: ignore[valid-type]
+    gravity_spread_trigger: Gravity | None = None  # type: ignore[valid-type]
+    interval: Duration | None = None  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _complete_when_allowed(self) -> Equalization:
+        if self.allowed:
+            missing = [
+                name
+                for name in ("voltage", "current", "duration", "gravity_spread_trigger", "interval")
+                if getattr(self, name) is None
+            ]
+            if missing:
+                raise ValueError(f"allowed equalization needs {', '.join(missing)}")
+        return self
+
+
+class Desulfation(InputModel):
+    allowed: bool
+    voltage: CellVoltage | None = None  # type: ignore[valid-type]
+    current: CRate | None = None  # type: ignore[valid-type]
+    duration: Duration | None = None  # type: ignore[valid-type]
+    state_of_charge_below: Percent | None = None  # type: ignore[valid-type]
+    idle_after: Duration | None = None  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _complete_when_allowed(self) -> Desulfation:
+        if self.allowed:
+            missing = [
+                name
+                for name in ("voltage", "current", "duration", "state_of_charge_below", "idle_after")
+                if getattr(self, name) is None
+            ]
+            if missing:
+                raise ValueError(f"allowed desulfation needs {', '.join(missing)}")
+        return self
+
+
+class Compensation(InputModel):
+    coefficient: Coefficient  # type: ignore[valid-type]
+    reference: Temp  # type: ignore[valid-type]
+    range_min: Temp  # type: ignore[valid-type]
+    range_max: Temp  # type: ignore[valid-type]
+
+
+class Zone(InputModel):
+    """A cool zone (current cut below a temperature) or a warm zone (voltage cut above)."""
+
+    boundary: Temp  # type: ignore[valid-type]
+    current: CRate | None = None  # type: ignore[valid-type]
+    voltage: CellVoltage | None = None  # type: ignore[valid-type]
+
+
+class Temperature(InputModel):
+    charge_min: Temp  # type: ignore[valid-type]
+    charge_max: Temp  # type: ignore[valid-type]
+    compensation: Compensation | None = None
+    cool_zone: Zone | None = None
+    warm_zone: Zone | None = None
+
+
+class RestVoltage(InputModel):
+    """Rested open-circuit voltage per cell: the state-of-charge table and plausibility."""
+
+    table: list[tuple[float, float]] = Field(
+        description="[state of charge %, open-circuit V/cell] rows, rising"
+    )
+    table_source: Source
+    dead_below: CellVoltage  # type: ignore[valid-type]
+    highest_plausible: CellVoltage  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _rising(self) -> RestVoltage:
+        rows = self.table
+        if len(rows) < 2:
+            raise ValueError("table needs at least two rows")
+        for (soc_a, v_a), (soc_b, v_b) in zip(rows, rows[1:], strict=False):
+            if not (soc_b > soc_a and v_b > v_a):
+                raise ValueError("table rows must rise in both state of charge and voltage")
+        if rows[0][0] != 0 or rows[-1][0] != 100:
+            raise ValueError("table must run from 0 to 100 % state of charge")
+        return self
+
+
+class Envelope(InputModel):
+    """The hard limits no plan may cross; safety.verify checks every plan against them."""
+
+    max_cell_voltage: CellVoltage  # type: ignore[valid-type]
+    max_current: CRate  # type: ignore[valid-type]
+    charge_temperature_min: Temp  # type: ignore[valid-type]
+    charge_temperature_max: Temp  # type: ignore[valid-type]
+    forbidden_stages: list[StageName] = Field(default_factory=list)
+
+
+class Profile(InputModel):
+    id: Annotated[str, Field(pattern=r"^[a-z][a-z0-9_-]{0,39}$")]
+    chemistry: Annotated[str, Field(pattern=r"^[a-z][a-z0-9_-]{0,39}$")] = Field(
+        description="the built-in chemistry whose hard envelope bounds this profile"
+    )
+    family: Family
+    name: Text
+    summary: str = ""
+    vented: bool = Field(description="true for flooded cells that gas freely and take water")
+    nominal_cell_voltage: CellVoltage  # type: ignore[valid-type]
+    charge: Charge
+    equalization: Equalization
+    desulfation: Desulfation
+    temperature: Temperature
+    rest_voltage: RestVoltage
+    envelope: Envelope
+    cautions: list[str] = Field(default_factory=list)
+
+    @model_validator(mode="after")
+    def _consistent(self) -> Profile:
+        c = self.charge
+        if c.float_voltage is not None and c.float_voltage.value >= c.absorption_voltage.value:
+            raise ValueError("charge.float_voltage must be below charge.absorption_voltage")
+        if c.precharge_below.value >= c.absorption_voltage.value:
+            raise ValueError("charge.precharge_below must be below charge.absorption_voltage")
+        if c.precharge_current.value > c.bulk_current.value:
+            raise ValueError("charge.precharge_current must not exceed charge.bulk_current")
+        if c.tail_current.value >= c.bulk_current.value:
+            raise ValueError("charge.tail_current must be below charge.bulk_current")
+        t = self.temperature
+        if t.charge_min.value >= t.charge_max.value:
+            raise ValueError("temperature.charge_min must be below temperature.charge_max")
+        if self.family == "lithium":
+            if t.compensation is not None:
+                raise ValueError("lithium voltages are not temperature compensated; "
+                                 "remove temperature.compensation")
+            for stage in ("equalization", "desulfation"):
+                if getattr(self, stage).allowed:
+                    raise ValueError(f"{stage} is never allowed for lithium; set allowed: false")
+        elif t.compensation is None:
+            raise ValueError("lead-acid profiles need temperature.compensation")
+        return self
+
+    def sourced_values(self) -> list[tuple[str, str, str]]:
+        """Every sourced number as (dotted key, value with unit, source), in file order."""
+        rows: list[tuple[str, str, str]] = []
+
+        def walk(node: object, prefix: str) -> None:
+            if isinstance(node, Sourced):
+                rows.append((prefix, node.shown(), node.source))
+            elif isinstance(node, InputModel):
+                for name in type(node).model_fields:
+                    walk(getattr(node, name), f"{prefix}.{name}" if prefix else name)
+
+        walk(self, "")
+        rows.insert(
+            [r[0] for r in rows].index("envelope.max_cell_voltage"),
+            ("rest_voltage.table", f"{len(self.rest_voltage.table)} rows",
+             self.rest_voltage.table_source),
+        )
+        return rows

@@ -1,0 +1,134 @@
+"""The neutral setpoint document: the integer form of a plan that chargers and firmware load.
+
+Every number is an integer in the unit its key names (``voltage_mV``,
+``current_mA``, ``duration_s``, ``temperature_dC`` in tenths of a degree C).
+``digest`` is ``sha256:`` and the hex SHA-256 of the canonical JSON of the
+document without its ``digest`` key (keys sorted, no spaces, UTF-8), so a loader
+can tell a file that was edited by hand.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+__all__ = [
+    "FORMAT",
+    "VERSION",
+    "CompensationTable",
+    "CoolZone",
+    "CurrentExit",
+    "DocumentBattery",
+    "DurationExit",
+    "SetpointDocument",
+    "SetpointInterlocks",
+    "SetpointStage",
+    "VoltageExit",
+    "WarmZone",
+]
+
+FORMAT = "chargeplan-setpoints"
+VERSION = 1
+
+StageKindName = Literal[
+    "precharge", "desulfation", "bulk", "absorption", "equalization", "float", "storage_hold"
+]
+Then = Literal["next", "stop"]
+
+
+class _Doc(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+
+class VoltageExit(_Doc):
+    """Ends when the terminal voltage rises to ``voltage_mV``."""
+
+    condition: Literal["voltage_reached"]
+    voltage_mV: int = Field(ge=0)
+    then: Then
+
+
+class CurrentExit(_Doc):
+    """Ends when the current falls below ``current_mA`` (the tail current)."""
+
+    condition: Literal["current_below"]
+    current_mA: int = Field(ge=0)
+    then: Then
+
+
+class DurationExit(_Doc):
+    """Ends when the stage has run ``duration_s``."""
+
+    condition: Literal["duration"]
+    duration_s: int = Field(ge=0)
+    then: Then
+
+
+StageExit = Annotated[VoltageExit | CurrentExit | DurationExit, Field(discriminator="condition")]
+
+
+class SetpointStage(_Doc):
+    kind: StageKindName
+    voltage_mV: int = Field(gt=0, description="limit (constant current) or regulation voltage")
+    current_mA: int = Field(gt=0, description="current limit")
+    timer_s: int | None = Field(
+        ge=0, description="safety timer: still in this stage then is a fault; null for none"
+    )
+    compensated: bool = Field(description="the voltage follows temperature_compensation")
+    exits: list[StageExit] = Field(description="the stage ends on whichever comes first")
+
+
+class CoolZone(_Doc):
+    below_dC: int
+    current_max_mA: int = Field(ge=0)
+
+
+class WarmZone(_Doc):
+    above_dC: int
+    cell_voltage_max_mV: int = Field(ge=0)
+
+
+class SetpointInterlocks(_Doc):
+    charge_temperature_min_dC: int
+    charge_temperature_max_dC: int
+    cell_voltage_max_mV: int = Field(gt=0)
+    battery_voltage_max_mV: int = Field(gt=0)
+    current_max_mA: int = Field(gt=0)
+    cool_zone: CoolZone | None
+    warm_zone: WarmZone | None
+
+
+class CompensationTable(_Doc):
+    """Lead-acid compensation: add coefficient x cells x (T - reference) to compensated stages,
+    with T held inside range_min_dC..range_max_dC."""
+
+    coefficient_uV_per_K_per_cell: int
+    reference_dC: int
+    range_min_dC: int
+    range_max_dC: int
+
+
+class DocumentBattery(_Doc):
+    name: str
+    chemistry: str
+    profile: str
+    cells_in_series: int = Field(ge=1)
+    capacity_mAh: int = Field(gt=0)
+    nominal_voltage_mV: int = Field(gt=0)
+
+
+class SetpointDocument(_Doc):
+    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 1)."""
+
+    format: Literal["chargeplan-setpoints"]
+    version: Literal[1]
+    generator: str
+    battery: DocumentBattery
+    cells_in_series: int = Field(ge=1)
+    planned_temperature_dC: int
+    stages: list[SetpointStage] = Field(min_length=1)
+    finish: Literal["stop", "hold"]
+    interlocks: SetpointInterlocks
+    temperature_compensation: CompensationTable | None
+    digest: str = Field(pattern=r"^sha256:[0-9a-f]{64}$")

@@ -1,0 +1,1 @@
+"""Numerical kernels: plain floats and numpy arrays, units in the names (``_v``, ``_c``)."""

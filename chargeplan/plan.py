@@ -1,0 +1,168 @@
+"""Output models: a charge plan with its stages, exits, interlocks, findings and trace.
+
+Plain dataclasses of floats whose names carry their unit (``voltage_v``,
+``current_a``, ``duration_s``, ``temperature_c``). The setpoint document
+(:mod:`chargeplan.render.setpoints`) is the integer form of the same plan.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import StrEnum
+
+__all__ = [
+    "ChargePlan",
+    "Compensation",
+    "Exit",
+    "ExitKind",
+    "Finding",
+    "Interlocks",
+    "PlannedBattery",
+    "Severity",
+    "Stage",
+    "StageKind",
+    "TraceEntry",
+]
+
+
+class StageKind(StrEnum):
+    """Stage kinds, in the trade's words."""
+
+    PRECHARGE = "precharge"
+    DESULFATION = "desulfation"
+    BULK = "bulk"
+    ABSORPTION = "absorption"
+    EQUALIZATION = "equalization"
+    FLOAT = "float"
+    STORAGE_HOLD = "storage_hold"
+
+    @property
+    def label(self) -> str:
+        return {"precharge": "pre-charge", "storage_hold": "storage hold"}.get(
+            self.value, self.value
+        )
+
+
+#: Stages that hold a lead-acid battery above its absorption voltage.
+HIGH_VOLTAGE_STAGES = frozenset({StageKind.EQUALIZATION, StageKind.DESULFATION})
+
+
+class ExitKind(StrEnum):
+    """What ends a stage."""
+
+    VOLTAGE_REACHED = "voltage_reached"  # terminal voltage rises to the value
+    CURRENT_BELOW = "current_below"  # current falls below the value (tail current)
+    DURATION = "duration"  # the stage has run this long
+
+
+@dataclass(frozen=True, slots=True)
+class Exit:
+    kind: ExitKind
+    value: float  # V, A or s by kind
+    then: str = "next"  # "next" stage or "stop" charging
+
+    @property
+    def unit(self) -> str:
+        return {"voltage_reached": "V", "current_below": "A", "duration": "s"}[self.kind]
+
+
+@dataclass(slots=True)
+class Stage:
+    kind: StageKind
+    voltage_v: float  # the limit (constant current) or regulation voltage (constant voltage)
+    current_a: float  # the current limit
+    exits: list[Exit] = field(default_factory=list)
+    timer_s: float | None = None  # safety timer: still running then = fault, stop charging
+    purpose: str = ""
+    compensated: bool = False  # voltage follows the temperature compensation
+
+
+@dataclass(frozen=True, slots=True)
+class Compensation:
+    """Lead-acid voltage compensation, for firmware with a probe."""
+
+    coefficient_v_per_k_per_cell: float
+    reference_c: float
+    range_min_c: float
+    range_max_c: float
+
+
+@dataclass(slots=True)
+class Interlocks:
+    charge_temperature_min_c: float
+    charge_temperature_max_c: float
+    cell_voltage_max_v: float
+    battery_voltage_max_v: float
+    current_max_a: float
+    cool_zone_below_c: float | None = None  # below this, current at most cool_zone_current_max_a
+    cool_zone_current_max_a: float | None = None
+    warm_zone_above_c: float | None = None  # above this, cell voltage at most warm_zone_cell_...
+    warm_zone_cell_voltage_max_v: float | None = None
+
+
+class Severity(StrEnum):
+    INFO = "info"
+    WARNING = "warning"
+    REFUSAL = "refusal"
+
+
+@dataclass(frozen=True, slots=True)
+class Finding:
+    severity: Severity
+    rule_id: str
+    message: str
+
+
+@dataclass(frozen=True, slots=True)
+class TraceEntry:
+    rule_id: str
+    target: str  # what was decided: "absorption.voltage", "cells_in_series", ...
+    text: str  # the decision and its arithmetic
+
+
+@dataclass(frozen=True, slots=True)
+class PlannedBattery:
+    name: str
+    profile_id: str
+    chemistry: str
+    family: str
+    profile_name: str
+    cells_in_series: int
+    capacity_ah: float
+    nominal_voltage_v: float
+    temperature_c: float
+    state_of_charge_pct: float | None  # None when nothing was measured
+    storage_s: float | None
+
+
+@dataclass(slots=True)
+class ChargePlan:
+    battery: PlannedBattery
+    stages: list[Stage]
+    interlocks: Interlocks
+    compensation: Compensation | None
+    findings: list[Finding]
+    trace: list[TraceEntry]
+    cautions: list[str]
+    finish: str  # what happens after the last stage: "hold" or "stop"
+
+    def stage(self, kind: StageKind | str) -> Stage | None:
+        """The first stage of ``kind``, or None."""
+        for stage in self.stages:
+            if stage.kind == kind:
+                return stage
+        return None
+
+    @property
+    def kinds(self) -> list[StageKind]:
+        return [stage.kind for stage in self.stages]
+
+    def summary(self) -> str:
+        """The plan in one sentence."""
+        steps = " → ".join(stage.kind.label for stage in self.stages)
+        tail = "then stop" if self.finish == "stop" else "and hold"
+        b = self.battery
+        return (
+            f"{b.profile_name}, {b.cells_in_series} cells, {b.capacity_ah:g} Ah at "
+            f"{b.temperature_c:g} °C: {steps}, {tail}."
+        )

@@ -1,0 +1,231 @@
+"""The chemistry profiles: the bundled ones, users' own, and the hard envelopes.
+
+Bundled profiles ship as package data and are loaded by package-relative path.
+A user profile (a file, or a folder of them) names the built-in ``chemistry``
+whose hard envelope bounds it; it is rejected if any value or its own envelope
+would cross that envelope. A new chemistry needs a built-in profile.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from functools import lru_cache
+from importlib.resources import files
+from pathlib import Path
+
+from chargeplan.errors import InputError, InternalError
+from chargeplan.loading import read_mapping, validate
+from chargeplan.model.profile import Profile
+
+__all__ = [
+    "BUILTIN_IDS",
+    "HardEnvelope",
+    "ProfileSet",
+    "data_dir",
+    "hard_envelope",
+    "load_builtin",
+    "load_profile_file",
+]
+
+#: The chemistries chargeplan ships, each with its hard envelope.
+BUILTIN_IDS = ("flooded", "agm", "gel", "lifepo4", "nmc")
+
+
+def data_dir(name: str) -> Path:
+    """A data folder shipped with the package ('profiles' or 'schemas').
+
+    An installed wheel carries them under ``chargeplan/_data``; a source checkout
+    (or editable install) has them at the top of the repository.
+    """
+    packaged = files("chargeplan") / "_data" / name
+    if packaged.is_dir():
+        return Path(str(packaged))
+    source = Path(__file__).resolve().parent.parent / name
+    if source.is_dir():
+        return source
+    raise InternalError(f"chargeplan's {name} folder is missing from the installation")
+
+
+@lru_cache(maxsize=None)
+def load_builtin(profile_id: str) -> Profile:
+    """A bundled profile by id; an unknown id lists the valid ones."""
+    if profile_id not in BUILTIN_IDS:
+        raise InputError(
+            f"'{profile_id}' is not a bundled profile",
+            field="chemistry",
+            fix=f"use one of {', '.join(BUILTIN_IDS)}, or give your own profile",
+        )
+    path = data_dir("profiles") / f"{profile_id}.yaml"
+    profile = validate(Profile, read_mapping(path, what="profile"), file=str(path))
+    if profile.id != profile_id or profile.chemistry != profile_id:
+        raise InternalError(f"bundled profile {path} names itself '{profile.id}'")
+    return profile
+
+
+@dataclass(frozen=True, slots=True)
+class HardEnvelope:
+    """The hard limits of a built-in chemistry, as plain floats, for safety.verify."""
+
+    chemistry: str
+    family: str
+    max_cell_voltage_v: float
+    max_current_c: float
+    charge_temperature_min_c: float
+    charge_temperature_max_c: float
+    forbidden_stages: frozenset[str]
+
+
+@lru_cache(maxsize=None)
+def hard_envelope(chemistry: str) -> HardEnvelope:
+    """The built-in hard envelope of ``chemistry``, read from its bundled profile."""
+    env = load_builtin(chemistry)
+    e = env.envelope
+    return HardEnvelope(
+        chemistry=chemistry,
+        family=env.family,
+        max_cell_voltage_v=e.max_cell_voltage.value,
+        max_current_c=e.max_current.value,
+        charge_temperature_min_c=e.charge_temperature_min.value,
+        charge_temperature_max_c=e.charge_temperature_max.value,
+        forbidden_stages=frozenset(e.forbidden_stages),
+    )
+
+
+def _within_builtin(profile: Profile, file: str) -> None:
+    """Reject a user profile whose values or envelope cross its chemistry's hard envelope."""
+    if profile.chemistry not in BUILTIN_IDS:
+        raise InputError(
+            f"'{profile.chemistry}' has no built-in hard envelope",
+            file=file,
+            field="chemistry",
+            fix=f"use one of {', '.join(BUILTIN_IDS)} (a new chemistry needs a built-in "
+            "profile; see DEVELOPERS.md)",
+        )
+    hard = hard_envelope(profile.chemistry)
+    if profile.family != hard.family:
+        raise InputError(
+            f"family '{profile.family}' does not match chemistry '{profile.chemistry}'",
+            file=file, field="family", fix=f"set family: {hard.family}",
+        )
+
+    def over(field: str, value: float, limit: float, unit: str) -> None:
+        if value > limit + 1e-9:
+            raise InputError(
+                f"{value:g} {unit} is above the {profile.chemistry} hard envelope's "
+                f"{limit:g} {unit}",
+                file=file, field=field, fix=f"lower it to {limit:g} {unit} or less",
+            )
+
+    v_max = hard.max_cell_voltage_v
+    c = profile.charge
+    over("envelope.max_cell_voltage", profile.envelope.max_cell_voltage.value, v_max, "V/cell")
+    over("charge.absorption_voltage", c.absorption_voltage.value, v_max, "V/cell")
+    over("charge.storage_voltage", c.storage_voltage.value, v_max, "V/cell")
+    if c.float_voltage is not None:
+        over("charge.float_voltage", c.float_voltage.value, v_max, "V/cell")
+    for stage in (profile.equalization, profile.desulfation):
+        if stage.allowed and stage.voltage is not None:
+            name = "equalization" if stage is profile.equalization else "desulfation"
+            over(f"{name}.voltage", stage.voltage.value, v_max, "V/cell")
+    i_max = hard.max_current_c
+    over("envelope.max_current", profile.envelope.max_current.value, i_max, "It")
+    over("charge.bulk_current", c.bulk_current.value, i_max, "It")
+    t = profile.temperature
+    over("temperature.charge_max", t.charge_max.value, hard.charge_temperature_max_c, "degC")
+    over("envelope.charge_temperature_max", profile.envelope.charge_temperature_max.value,
+         hard.charge_temperature_max_c, "degC")
+    for field, value in (
+        ("temperature.charge_min", t.charge_min.value),
+        ("envelope.charge_temperature_min", profile.envelope.charge_temperature_min.value),
+    ):
+        if value < hard.charge_temperature_min_c - 1e-9:
+            raise InputError(
+                f"{value:g} degC is below the {profile.chemistry} hard envelope's "
+                f"{hard.charge_temperature_min_c:g} degC",
+                file=file, field=field,
+                fix=f"raise it to {hard.charge_temperature_min_c:g} degC or more",
+            )
+    missing = hard.forbidden_stages - set(profile.envelope.forbidden_stages)
+    if missing:
+        raise InputError(
+            f"must forbid {', '.join(sorted(missing))} like the built-in {profile.chemistry}",
+            file=file, field="envelope.forbidden_stages",
+            fix=f"add {', '.join(sorted(missing))}",
+        )
+    for stage_name in ("equalization", "desulfation"):
+        if getattr(profile, stage_name).allowed and stage_name in hard.forbidden_stages:
+            raise InputError(
+                f"{stage_name} is forbidden for {profile.chemistry}",
+                file=file, field=f"{stage_name}.allowed", fix="set allowed: false",
+            )
+
+
+def load_profile_file(path: str | Path) -> Profile:
+    """Read and check one user profile file."""
+    shown = str(path)
+    profile = validate(Profile, read_mapping(path, what="profile"), file=shown)
+    _within_builtin(profile, shown)
+    return profile
+
+
+class ProfileSet:
+    """The profiles a run can use: the bundled ones plus any the user points at.
+
+    ``paths`` are files or folders of ``*.yaml``/``*.yml``/``*.json`` profiles; the
+    environment variable ``CHARGEPLAN_PROFILES`` adds more (``os.pathsep``-separated).
+    A user profile may not reuse a bundled id.
+    """
+
+    def __init__(self, paths: list[str | Path] | None = None, *, use_environment: bool = True):
+        self._user: dict[str, Profile] = {}
+        self._user_files: dict[str, str] = {}
+        search = [Path(p) for p in paths or []]
+        env = os.environ.get("CHARGEPLAN_PROFILES", "") if use_environment else ""
+        search += [Path(p) for p in env.split(os.pathsep) if p.strip()]
+        for entry in search:
+            for file in self._files(entry):
+                profile = load_profile_file(file)
+                if profile.id in BUILTIN_IDS:
+                    raise InputError(
+                        f"'{profile.id}' is a bundled profile id", file=str(file), field="id",
+                        fix="give your profile its own id, e.g. "
+                        f"'{profile.id}-{file.stem.replace('_', '-')}'",
+                    )
+                if profile.id in self._user:
+                    raise InputError(
+                        f"profile id '{profile.id}' is also used by {self._user_files[profile.id]}",
+                        file=str(file), field="id", fix="give each profile its own id",
+                    )
+                self._user[profile.id] = profile
+                self._user_files[profile.id] = str(file)
+
+    @staticmethod
+    def _files(entry: Path) -> list[Path]:
+        if entry.is_dir():
+            return sorted(
+                p for p in entry.iterdir() if p.suffix.lower() in {".yaml", ".yml", ".json"}
+            )
+        if not entry.exists():
+            raise InputError("no such profile file or folder", file=str(entry),
+                             fix="check the path given with --profiles or CHARGEPLAN_PROFILES")
+        return [entry]
+
+    @property
+    def ids(self) -> list[str]:
+        return [*BUILTIN_IDS, *sorted(self._user)]
+
+    def get(self, profile_id: str) -> Profile:
+        """A profile by id; an unknown id is an InputError that lists the valid ones."""
+        if profile_id in self._user:
+            return self._user[profile_id]
+        if profile_id in BUILTIN_IDS:
+            return load_builtin(profile_id)
+        raise InputError(
+            f"unknown chemistry '{profile_id}'",
+            field="battery.chemistry",
+            fix=f"use one of {', '.join(self.ids)}",
+        )
+
+    def source_of(self, profile_id: str) -> str:
+        return self._user_files.get(profile_id, "bundled")

@@ -1,0 +1,1 @@
+"""Writers: readable text, the setpoint document, and (later) more formats."""

@@ -1,0 +1,118 @@
+"""Encode a plan as the neutral setpoint document; rounding never moves a limit toward danger.
+
+Voltage and current limits, timers and durations round down; tail currents and
+minimum temperatures round up; maximum temperatures round down.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from typing import Any
+
+from chargeplan.model.setpoints import FORMAT, VERSION
+from chargeplan.plan import ChargePlan, Exit, ExitKind
+
+__all__ = ["canonical_bytes", "compute_digest", "encode", "to_json"]
+
+_NOISE = 1e-6  # float noise allowed before rounding (a millionth of the unit)
+
+
+def down(value: float, scale: float) -> int:
+    """Round ``value x scale`` down to an integer (a limit: never above what was planned)."""
+    return math.floor(value * scale + _NOISE)
+
+
+def up(value: float, scale: float) -> int:
+    """Round ``value x scale`` up to an integer."""
+    return math.ceil(value * scale - _NOISE)
+
+
+def _exit(e: Exit) -> dict[str, Any]:
+    if e.kind == ExitKind.VOLTAGE_REACHED:
+        return {"condition": e.kind.value, "voltage_mV": down(e.value, 1000), "then": e.then}
+    if e.kind == ExitKind.CURRENT_BELOW:
+        return {"condition": e.kind.value, "current_mA": up(e.value, 1000), "then": e.then}
+    return {"condition": e.kind.value, "duration_s": down(e.value, 1), "then": e.then}
+
+
+def canonical_bytes(document: dict[str, Any]) -> bytes:
+    """The canonical form the digest covers: the document without ``digest``, keys
+    sorted, no spaces, UTF-8."""
+    body = {key: value for key, value in document.items() if key != "digest"}
+    return json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
+
+
+def compute_digest(document: dict[str, Any]) -> str:
+    return "sha256:" + hashlib.sha256(canonical_bytes(document)).hexdigest()
+
+
+def encode(plan: ChargePlan) -> dict[str, Any]:
+    """The setpoint document of ``plan`` as a JSON-ready dict (with its digest)."""
+    from chargeplan import __version__
+
+    b = plan.battery
+    lock = plan.interlocks
+    comp = plan.compensation
+    document: dict[str, Any] = {
+        "format": FORMAT,
+        "version": VERSION,
+        "generator": f"chargeplan {__version__}",
+        "battery": {
+            "name": b.name,
+            "chemistry": b.chemistry,
+            "profile": b.profile_id,
+            "cells_in_series": b.cells_in_series,
+            "capacity_mAh": down(b.capacity_ah, 1000),
+            "nominal_voltage_mV": round(b.nominal_voltage_v * 1000),
+        },
+        "cells_in_series": b.cells_in_series,
+        "planned_temperature_dC": round(b.temperature_c * 10),
+        "stages": [
+            {
+                "kind": stage.kind.value,
+                "voltage_mV": down(stage.voltage_v, 1000),
+                "current_mA": down(stage.current_a, 1000),
+                "timer_s": None if stage.timer_s is None else down(stage.timer_s, 1),
+                "compensated": stage.compensated,
+                "exits": [_exit(e) for e in stage.exits],
+            }
+            for stage in plan.stages
+        ],
+        "finish": plan.finish,
+        "interlocks": {
+            "charge_temperature_min_dC": up(lock.charge_temperature_min_c, 10),
+            "charge_temperature_max_dC": down(lock.charge_temperature_max_c, 10),
+            "cell_voltage_max_mV": down(lock.cell_voltage_max_v, 1000),
+            "battery_voltage_max_mV": down(lock.battery_voltage_max_v, 1000),
+            "current_max_mA": down(lock.current_max_a, 1000),
+            "cool_zone": None
+            if lock.cool_zone_below_c is None or lock.cool_zone_current_max_a is None
+            else {
+                "below_dC": up(lock.cool_zone_below_c, 10),
+                "current_max_mA": down(lock.cool_zone_current_max_a, 1000),
+            },
+            "warm_zone": None
+            if lock.warm_zone_above_c is None or lock.warm_zone_cell_voltage_max_v is None
+            else {
+                "above_dC": down(lock.warm_zone_above_c, 10),
+                "cell_voltage_max_mV": down(lock.warm_zone_cell_voltage_max_v, 1000),
+            },
+        },
+        "temperature_compensation": None
+        if comp is None
+        else {
+            "coefficient_uV_per_K_per_cell": round(comp.coefficient_v_per_k_per_cell * 1e6),
+            "reference_dC": round(comp.reference_c * 10),
+            "range_min_dC": up(comp.range_min_c, 10),
+            "range_max_dC": up(comp.range_max_c, 10),
+        },
+    }
+    document["digest"] = compute_digest(document)
+    return document
+
+
+def to_json(plan: ChargePlan) -> str:
+    """The setpoint document as indented JSON text, ending in a newline."""
+    return json.dumps(encode(plan), indent=2, ensure_ascii=False) + "\n"

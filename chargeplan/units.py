@@ -1,0 +1,112 @@
+"""The one pint registry of chargeplan, and the parsing of quantity strings.
+
+The registry is built from ``units.txt`` beside this file: volts, amperes,
+ampere-hours, watt-hours, degrees Celsius, kelvin, seconds to days, percent,
+cells and C-rates. A C-rate is written with IEC 61434's reference test current
+``It`` ("0.1 It" is the trade's 0.1C); plain "C" is deliberately undefined so a
+C-rate cannot be mistaken for coulombs.
+
+Quantities cross the package boundary; inside the numeric core values are plain
+floats in the units named by their suffix (``_v``, ``_a``, ``_ah``, ``_s``, ``_c``).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+from importlib.resources import files
+from typing import Any
+
+import pint
+
+__all__ = ["DIMENSIONS", "Q_", "describe_dimension", "parse_quantity", "ureg"]
+
+ureg = pint.UnitRegistry(
+    str(files("chargeplan") / "units.txt"),
+    cache_folder=None,
+    autoconvert_offset_to_baseunit=True,
+)
+Q_ = ureg.Quantity
+
+# Each named dimension: the unit we convert to, an example a user can copy, its name.
+DIMENSIONS: dict[str, tuple[str, str, str]] = {
+    "voltage": ("V", "12.6 V", "a voltage"),
+    "cell_voltage": ("V/cell", "2.40 V/cell", "a voltage per cell"),
+    "current": ("A", "2.5 A", "a current"),
+    "c_rate": ("It", "0.1 It", "a C-rate"),
+    "capacity": ("Ah", "9 Ah", "a capacity"),
+    "energy": ("Wh", "120 Wh", "an energy"),
+    "temperature": ("degC", "25 degC", "a temperature"),
+    "temperature_difference": ("K", "5 K", "a temperature difference"),
+    "duration": ("s", "8 h", "a duration"),
+    "fraction": ("percent", "60 %", "a percentage"),
+    "coefficient": ("mV/K/cell", "-3 mV/K/cell", "a temperature coefficient per cell"),
+    "power": ("W", "100 W", "a power"),
+    "resistance": ("ohm", "10 mohm", "a resistance"),
+}
+
+_NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
+
+
+@lru_cache(maxsize=None)
+def _reference(kind: str) -> Any:
+    return Q_(1, DIMENSIONS[kind][0]).dimensionality
+
+
+def describe_dimension(kind: str) -> str:
+    """'a voltage such as 12.6 V' for error messages."""
+    _unit, example, label = DIMENSIONS[kind]
+    return f"{label} such as '{example}'"
+
+
+def parse_quantity(text: object, kind: str) -> float:
+    """Parse ``text`` as a quantity of ``kind`` and return its magnitude in the
+    kind's canonical unit (see :data:`DIMENSIONS`).
+
+    Raises ``ValueError`` with a message that says what to write instead.
+
+    Examples
+    --------
+    >>> parse_quantity("12.6 V", "voltage")
+    12.6
+    >>> parse_quantity("5 degC", "temperature")
+    5.0
+    >>> parse_quantity("2 d", "duration")
+    172800.0
+    """
+    unit, _example, label = DIMENSIONS[kind]
+    wanted = describe_dimension(kind)
+    if isinstance(text, bool) or text is None:
+        raise ValueError(f"expected {wanted}")
+    if isinstance(text, int | float):
+        raise ValueError(f"{text} has no unit; write {wanted}")
+    if not isinstance(text, str):
+        raise ValueError(f"expected {wanted}, got {type(text).__name__}")
+    raw = text.strip()
+    if not raw:
+        raise ValueError(f"empty; write {wanted}")
+    if _NUMBER_ONLY.match(raw):
+        raise ValueError(f"'{raw}' has no unit; write {wanted}")
+    try:
+        quantity = Q_(raw)
+    except pint.UndefinedUnitError as error:
+        name = str(getattr(error, "unit_names", "") or error).strip("'()[], ")
+        hint = " (write a C-rate as '0.1 It')" if name == "C" else ""
+        raise ValueError(f"unknown unit '{name}' in '{raw}'{hint}; write {wanted}") from None
+    except Exception:
+        raise ValueError(f"cannot read '{raw}' as a quantity; write {wanted}") from None
+    if not isinstance(quantity, pint.Quantity):
+        raise ValueError(f"'{raw}' has no unit; write {wanted}")
+    if quantity.dimensionality != _reference(kind):
+        raise ValueError(
+            f"'{raw}' is not {label} "
+            f"(its unit is {quantity.units:~}); write {wanted}"
+        )
+    try:
+        magnitude = float(quantity.to(unit).magnitude)
+    except Exception:
+        raise ValueError(f"cannot convert '{raw}' to {unit}; write {wanted}") from None
+    if not math.isfinite(magnitude):
+        raise ValueError(f"'{raw}' is not a finite number; write {wanted}")
+    return magnitude

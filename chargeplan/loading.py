@@ -96,7 +96,7 @@ def _parse_yaml(text: str, shown: str) -> Any:
     from ruamel.yaml import YAML
     from ruamel.yaml.error import MarkedYAMLError, YAMLError
 
-    yaml = YAML(typ="safe", pure=True)
+    yaml = YAML(typ="safe")  # the C parser where installed; never builds objects
     try:
         return yaml.load(text)
     except MarkedYAMLError as error:

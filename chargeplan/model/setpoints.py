@@ -28,8 +28,7 @@ __all__ = [
     "WarmZone",
 ]
 
-FORMAT = "chargeplan-setpoints"
-VERSION = 1
+from chargeplan.render.setpoints import FORMAT, VERSION
 
 StageKindName = Literal[
     "precharge", "desulfation", "bulk", "absorption", "equalization", "float", "storage_hold"

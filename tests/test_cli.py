@@ -1,0 +1,197 @@
+"""The command line end to end with typer's runner: exit codes, one-line messages, files."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from jsonschema import Draft202012Validator
+from typer.testing import CliRunner
+
+from chargeplan.cli import app
+
+from .conftest import REPO, battery
+
+runner = CliRunner()
+SCHEMA = json.loads((REPO / "schemas" / "setpoints.schema.json").read_text())
+
+
+def run(*args: str):
+    return runner.invoke(app, list(args))
+
+
+def _one_line_error(result, *fragments: str) -> None:
+    lines = [line for line in result.stderr.splitlines() if line.strip()]
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.output + result.stderr
+    for fragment in fragments:
+        assert fragment in lines[0], lines[0]
+
+
+def test_plan_text(write_yaml):
+    path = write_yaml(battery(conditions={"battery_temperature": "5 degC"}))
+    result = run("plan", str(path))
+    assert result.exit_code == 0, result.output
+    assert "ABSORPTION" in result.stdout and "14.94 V" in result.stdout
+    assert "Cautions" in result.stdout
+
+
+def test_plan_json_validates_against_committed_schema(write_yaml):
+    path = write_yaml(battery(state={"rest_voltage": "12.4 V"}))
+    result = run("plan", str(path), "--format", "json")
+    assert result.exit_code == 0, result.output
+    Draft202012Validator(SCHEMA).validate(json.loads(result.stdout))
+
+
+def test_plan_explain_shows_the_arithmetic(write_yaml):
+    path = write_yaml(battery(conditions={"battery_temperature": "5 degC"}))
+    result = run("plan", str(path), "--explain")
+    assert result.exit_code == 0
+    assert ("absorption 14.94 V = 2.43 V/cell x 6 + (-3 mV/K/cell x 6 x (5 - 25) K)"
+            in result.stdout)
+    assert "CP301" in result.stdout
+
+
+def test_json_battery_file(tmp_path):
+    path = tmp_path / "b.json"
+    path.write_text(json.dumps(battery()))
+    assert run("plan", str(path), "-f", "json").exit_code == 0
+
+
+def test_refusal_exits_1(write_yaml):
+    # BU-410 Table 1: no lithium charging below 0 degC
+    path = write_yaml(battery(battery={"chemistry": "lifepo4"},
+                              conditions={"battery_temperature": "-5 degC"}))
+    result = run("plan", str(path), "--format", "json")
+    assert result.exit_code == 1
+    assert result.stdout == ""
+    _one_line_error(result, "refused", "below 0 °C", "[CP104]")
+
+
+@pytest.mark.parametrize(
+    ("change", "fragments"),
+    [
+        ({"battery": {"capacity": "9 V"}}, ["battery.capacity", "is not a capacity", "9 Ah"]),
+        ({"battery": {"capacity": "9"}}, ["battery.capacity", "has no unit"]),
+        ({"battery": {"chemistry": "nicad"}}, ["battery.chemistry", "unknown chemistry",
+                                              "flooded, agm"]),
+        ({"battery": {"capacity": "nan Ah"}}, ["battery.capacity", "finite"]),
+        ({"battery": {"capacity": "-5 Ah"}}, ["battery.capacity", "below"]),
+        ({"battery": {"cells_in_series": 4}}, ["battery.cells_in_series", "8 V nominal"]),
+        ({"battery": {"capacty": "9 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
+        ({"battery": {"overrides": {"max_charge_current": "0.2 C"}}},
+         ["max_charge_current", "0.1 It"]),
+    ],
+)
+def test_bad_input_exits_2_with_file_field_and_fix(write_yaml, change, fragments):
+    path = write_yaml(battery(**change))
+    result = run("plan", str(path))
+    assert result.exit_code == 2
+    _one_line_error(result, str(path), *fragments)
+
+
+@pytest.mark.parametrize(
+    ("content", "fragment"),
+    [
+        ("", "is empty"),
+        ("battery: [unclosed", "line 2, column 1"),
+        ("- a list\n- not a mapping\n", "not a mapping"),
+        ("battery: !!python/object:os.system {}\n", "refused"),
+        ("\x00\x01\x02", "binary"),
+    ],
+)
+def test_malformed_files_exit_2(tmp_path, content, fragment):
+    path = tmp_path / "bad.yaml"
+    path.write_text(content)
+    result = run("plan", str(path))
+    assert result.exit_code == 2
+    _one_line_error(result, str(path), fragment)
+
+
+def test_missing_field_exits_2(write_yaml):
+    data = battery()
+    del data["conditions"]["battery_temperature"]
+    path = write_yaml(data)
+    result = run("plan", str(path))
+    assert result.exit_code == 2
+    _one_line_error(result, "conditions.battery_temperature", "is missing", "20 degC")
+
+
+def test_missing_file_exits_2(tmp_path):
+    result = run("plan", str(tmp_path / "nope.yaml"))
+    assert result.exit_code == 2
+    _one_line_error(result, "no such file")
+
+
+def test_output_file_written_and_not_replaced_without_force(write_yaml, tmp_path):
+    path = write_yaml(battery())
+    out = tmp_path / "plan.json"
+    assert run("plan", str(path), "-f", "json", "-o", str(out)).exit_code == 0
+    first = out.read_text()
+    assert json.loads(first)["format"] == "chargeplan-setpoints"
+    result = run("plan", str(path), "-o", str(out))
+    assert result.exit_code == 2 and "--force" in result.stderr
+    assert out.read_text() == first
+    assert run("plan", str(path), "-o", str(out), "--force").exit_code == 0
+    assert out.read_text() != first
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_refused_plan_writes_nothing(write_yaml, tmp_path):
+    path = write_yaml(battery(battery={"chemistry": "nmc"},
+                              conditions={"battery_temperature": "-2 degC"}))
+    out = tmp_path / "out.json"
+    assert run("plan", str(path), "-f", "json", "-o", str(out)).exit_code != 0
+    assert not out.exists()
+
+
+def test_demo_plans_every_example():
+    result = run("demo")
+    assert result.exit_code == 0, result.output
+    assert result.stdout.count("# example") == 5
+    for name in ("Flooded", "AGM", "Gel", "LiFePO4", "NMC"):
+        assert name in result.stdout
+
+
+def test_profiles_list_and_detail():
+    listing = run("profiles")
+    assert listing.exit_code == 0
+    for pid in ("flooded", "agm", "gel", "lifepo4", "nmc"):
+        assert pid in listing.stdout
+    detail = run("profiles", "agm")
+    assert detail.exit_code == 0
+    assert "charge.absorption_voltage" in detail.stdout and "2.43 V/cell" in detail.stdout
+    assert "IEC 62485-2" in detail.stdout
+    unknown = run("profiles", "nicad")
+    assert unknown.exit_code == 2
+
+
+def test_rules_list_and_explain():
+    listing = run("rules")
+    assert listing.exit_code == 0
+    assert "CP101" in listing.stdout and "source:" in listing.stdout
+    one = run("rules", "CP301")
+    assert one.exit_code == 0 and "compensation.lead_acid" in one.stdout
+    assert run("rules", "CP999").exit_code == 2
+
+
+def test_schema_check_passes_on_committed_schemas():
+    assert run("schema").exit_code == 0
+
+
+def test_user_profile_folder(tmp_path, write_yaml):
+    from ruamel.yaml import YAML
+
+    yaml = YAML(typ="safe")
+    data = yaml.load((REPO / "profiles" / "agm.yaml").read_text())
+    data["id"] = "agm-bench"
+    data["charge"]["absorption_voltage"]["value"] = "2.40 V/cell"
+    folder = tmp_path / "mine"
+    folder.mkdir()
+    with (folder / "agm-bench.yaml").open("w") as stream:
+        yaml.dump(data, stream)
+    path = write_yaml(battery(battery={"chemistry": "agm-bench"}))
+    result = run("plan", str(path), "--profiles", str(folder), "-f", "json")
+    assert result.exit_code == 0, result.output
+    absorption = next(s for s in json.loads(result.stdout)["stages"] if s["kind"] == "absorption")
+    assert absorption["voltage_mV"] == 14400

@@ -1,0 +1,107 @@
+"""safety.verify: the independent envelope check catches every kind of crossing."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import pytest
+
+from chargeplan import safety
+from chargeplan.errors import EnvelopeViolation
+from chargeplan.plan import Stage, StageKind
+from chargeplan.profiles import hard_envelope
+
+from .conftest import battery, plan_of
+
+
+def _lfp_plan():
+    return plan_of(battery(battery={"chemistry": "lifepo4", "capacity": "50 Ah"},
+                           state={"rest_voltage": "13.1 V"}))
+
+
+def test_a_good_plan_passes():
+    plan = _lfp_plan()
+    assert safety.violations(plan, hard_envelope("lifepo4")) == []
+
+
+def test_voltage_above_lfp_maximum_is_caught():
+    # cell handling guidelines: LFP never above 3.65 V/cell; 4 cells -> 14.6 V
+    plan = _lfp_plan()
+    plan.stages[-1].voltage_v = 14.61
+    with pytest.raises(EnvelopeViolation, match="above the envelope"):
+        safety.verify(plan, hard_envelope("lifepo4"))
+
+
+def test_current_above_envelope_is_caught():
+    plan = _lfp_plan()
+    plan.stages[0].current_a = 50.1  # 1.0 It x 50 Ah is the envelope's 50 A
+    assert any("current" in v for v in safety.violations(plan, hard_envelope("lifepo4")))
+
+
+@pytest.mark.parametrize("kind", [StageKind.EQUALIZATION, StageKind.DESULFATION])
+def test_lithium_never_gets_high_voltage_stages(kind):
+    # common practice: a lead-acid desulfation or equalization stage damages lithium batteries
+    plan = _lfp_plan()
+    plan.stages.append(Stage(kind=kind, voltage_v=14.0, current_a=1.0))
+    found = safety.violations(plan, hard_envelope("lifepo4"))
+    assert any("never allowed for lithium" in v for v in found)
+
+
+def test_lithium_interlock_below_zero_is_caught():
+    # BU-410 Table 1: no lithium charging below 0 degC
+    plan = _lfp_plan()
+    plan.interlocks.charge_temperature_min_c = -0.5
+    found = safety.violations(plan, hard_envelope("lifepo4"))
+    assert any("below 0 °C" in v for v in found)
+
+
+def test_lithium_that_holds_is_caught():
+    plan = _lfp_plan()
+    plan.finish = "hold"
+    assert safety.violations(plan, hard_envelope("lifepo4"))
+
+
+def test_gel_equalization_is_caught():
+    plan = plan_of(battery(battery={"chemistry": "gel"}))
+    plan.stages.append(Stage(kind=StageKind.EQUALIZATION, voltage_v=14.4, current_a=0.5))
+    assert any("forbidden" in v for v in safety.violations(plan, hard_envelope("gel")))
+
+
+def test_nan_and_wrong_envelope_are_caught():
+    plan = _lfp_plan()
+    plan.stages[0].current_a = float("nan")
+    found = safety.violations(plan, hard_envelope("nmc"))
+    assert any("not a positive number" in v for v in found)
+    assert any("checked against nmc" in v for v in found)
+
+
+def test_battery_outside_its_own_interlocks_is_caught():
+    plan = _lfp_plan()
+    plan.battery = dataclasses.replace(plan.battery, temperature_c=-3.0)
+    assert any("outside the interlocks" in v
+               for v in safety.violations(plan, hard_envelope("lifepo4")))
+
+
+def test_planner_never_returns_a_plan_that_fails():
+    """If a rule produced an unsafe value, the planner raises instead of returning it."""
+    from chargeplan.engine.rules import stages as stage_rules
+
+    original = stage_rules.stages_bulk_absorption.apply
+
+    def unsafe(ctx):
+        original(ctx)
+        ctx.stages[-1].voltage_v = 20.0
+
+    from chargeplan.engine.registry import RULES, RuleSet
+
+    patched = RuleSet()
+    for each in RULES:
+        patched.register(dataclasses.replace(each, apply=unsafe)
+                         if each.id == "CP204" else each)
+    from chargeplan.engine.planner import plan_charge
+    from chargeplan.model.battery import BatteryFile
+
+    data = battery(battery={"chemistry": "lifepo4", "capacity": "50 Ah"},
+                   state={"rest_voltage": "13.1 V"})
+    with pytest.raises(EnvelopeViolation):
+        plan_charge(BatteryFile.model_validate(data), rules=patched)

@@ -45,6 +45,13 @@ def _errors() -> Iterator[None]:
         yield
     except typer.Exit:
         raise
+    except BrokenPipeError:
+        # the reader (``| head``) closed the pipe: stop quietly, as other tools do
+        import os
+        import sys
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        raise typer.Exit(0) from None
     except PlanRefused as error:
         typer.echo(f"refused: {error.reason} [{error.rule_id}]", err=True)
         raise typer.Exit(error.exit_code) from None

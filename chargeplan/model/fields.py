@@ -38,6 +38,7 @@ class InputModel(_BaseModel):
         populate_by_name=True,
         frozen=True,
         str_strip_whitespace=True,
+        defer_build=True,
     )
 
 

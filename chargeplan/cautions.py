@@ -44,7 +44,9 @@ DEFERRAL = (
 )
 
 
-def cautions_for(family: str, *, vented: bool, extra: list[str] | tuple[str, ...] = ()) -> list[str]:
+def cautions_for(
+    family: str, *, vented: bool, extra: list[str] | tuple[str, ...] = ()
+) -> list[str]:
     """The cautions for a chemistry family, the profile's own, then the deferral line."""
     base = list(LITHIUM if family == "lithium" else LEAD_ACID)
     if vented:

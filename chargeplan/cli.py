@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
-from enum import Enum
+from enum import StrEnum
 from pathlib import Path
 from typing import Annotated
 
@@ -25,7 +25,7 @@ app = typer.Typer(
 )
 
 
-class Format(str, Enum):
+class Format(StrEnum):
     text = "text"
     json = "json"
 
@@ -89,7 +89,9 @@ def plan(
     format: Annotated[Format, typer.Option("--format", "-f", help="text or json")] = Format.text,
     explain: Annotated[bool, typer.Option(help="add the rule and arithmetic behind each "
                                                "setpoint")] = False,
-    output: Annotated[Path | None, typer.Option("--output", "-o", help="write to this file")] = None,
+    output: Annotated[
+        Path | None, typer.Option("--output", "-o", help="write to this file")
+    ] = None,
     force: Annotated[bool, typer.Option(help="replace the output file if it exists")] = False,
     profiles: ProfilePaths = None,
 ) -> None:

@@ -87,7 +87,9 @@ def _parse_json(text: str, shown: str) -> Any:
             fix="fix the JSON syntax there",
         ) from None
     except ValueError as error:
-        raise InputError(str(error), file=shown, fix="write a finite number with its unit") from None
+        raise InputError(
+            str(error), file=shown, fix="write a finite number with its unit"
+        ) from None
     except RecursionError:
         raise InputError("is nested too deeply", file=shown, fix="flatten the file") from None
 
@@ -131,7 +133,8 @@ def _known_keys(model: type[BaseModel], loc: tuple[int | str, ...]) -> list[str]
     """The file keys allowed at ``loc``'s parent, for spelling suggestions."""
     current: Any = model
     for part in loc[:-1]:
-        if isinstance(part, int) or not (isinstance(current, type) and issubclass(current, BaseModel)):
+        is_model = isinstance(current, type) and issubclass(current, BaseModel)
+        if isinstance(part, int) or not is_model:
             return []
         field = next(
             (f for name, f in current.model_fields.items() if (f.alias or name) == part), None

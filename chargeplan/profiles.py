@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache
 from importlib.resources import files
 from pathlib import Path
 
@@ -47,7 +47,7 @@ def data_dir(name: str) -> Path:
     raise InternalError(f"chargeplan's {name} folder is missing from the installation")
 
 
-@lru_cache(maxsize=None)
+@cache
 def load_builtin(profile_id: str) -> Profile:
     """A bundled profile by id; an unknown id lists the valid ones."""
     if profile_id not in BUILTIN_IDS:
@@ -76,7 +76,7 @@ class HardEnvelope:
     forbidden_stages: frozenset[str]
 
 
-@lru_cache(maxsize=None)
+@cache
 def hard_envelope(chemistry: str) -> HardEnvelope:
     """The built-in hard envelope of ``chemistry``, read from its bundled profile."""
     env = load_builtin(chemistry)

@@ -15,7 +15,7 @@ from chargeplan.errors import EnvelopeViolation
 from chargeplan.plan import ChargePlan
 from chargeplan.profiles import HardEnvelope
 
-__all__ = ["violations", "verify"]
+__all__ = ["verify", "violations"]
 
 #: Lithium plans never contain these, whatever a profile says.
 _NEVER_FOR_LITHIUM = frozenset({"equalization", "desulfation"})

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import math
 import re
-from functools import lru_cache
+from functools import cache
 from importlib.resources import files
 from typing import Any
 
@@ -49,7 +49,7 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
 
 
-@lru_cache(maxsize=None)
+@cache
 def _reference(kind: str) -> Any:
     return Q_(1, DIMENSIONS[kind][0]).dimensionality
 

@@ -30,7 +30,7 @@ def celsius(value: float) -> str:
 
 def duration(seconds: float) -> str:
     """'2 h 10 min', '45 min', '3 d 4 h'."""
-    minutes = int(round(seconds / 60))
+    minutes = round(seconds / 60)
     days, rest = divmod(minutes, 24 * 60)
     hours, mins = divmod(rest, 60)
     if days:

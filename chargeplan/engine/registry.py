@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:
     from chargeplan.engine.context import Context
 
-__all__ = ["Phase", "Rule", "RuleSet", "RULES", "rule"]
+__all__ = ["RULES", "Phase", "Rule", "RuleSet", "rule"]
 
 
 class Phase(IntEnum):

@@ -6,6 +6,7 @@ clause, the handbook and table, or says "common practice" or "from memory".
 
 from __future__ import annotations
 
+from itertools import pairwise
 from typing import Annotated, ClassVar, Literal
 
 from pydantic import BeforeValidator, Field, WithJsonSchema, create_model, model_validator
@@ -127,7 +128,9 @@ class Desulfation(InputModel):
         if self.allowed:
             missing = [
                 name
-                for name in ("voltage", "current", "duration", "state_of_charge_below", "idle_after")
+                for name in (
+                    "voltage", "current", "duration", "state_of_charge_below", "idle_after"
+                )
                 if getattr(self, name) is None
             ]
             if missing:
@@ -173,7 +176,7 @@ class RestVoltage(InputModel):
         rows = self.table
         if len(rows) < 2:
             raise ValueError("table needs at least two rows")
-        for (soc_a, v_a), (soc_b, v_b) in zip(rows, rows[1:], strict=False):
+        for (soc_a, v_a), (soc_b, v_b) in pairwise(rows):
             if not (soc_b > soc_a and v_b > v_a):
                 raise ValueError("table rows must rise in both state of charge and voltage")
         if rows[0][0] != 0 or rows[-1][0] != 100:

@@ -16,7 +16,7 @@ COMPENSATED = frozenset({StageKind.BULK, StageKind.ABSORPTION, StageKind.EQUALIZ
       "-3 mV/degC per cell about 25 degC (-3 to -5 across sources); common practice: held flat "
       "outside its range")
 def compensation_lead_acid(ctx: Context) -> None:
-    """Lead-acid charge voltages fall as the battery warms and rise as it cools, held flat outside the range.
+    """Lead-acid voltages fall as the battery warms and rise as it cools, flat outside the range.
 
     The compensated value is also held to the envelope's cell-voltage limit.
     """

@@ -76,7 +76,7 @@ def cells_count(ctx: Context) -> None:
 @rule("CP102", "capacity.rating", source="common practice: lithium batteries sold as "
       "'lead-equivalent' carry a label capacity that is not their own")
 def capacity_rating(ctx: Context) -> None:
-    """Plan from the battery's actual capacity; a lead-equivalent lithium label needs the actual one."""
+    """Plan from the actual capacity; a lithium battery rated lead-equivalent must give it."""
     battery = ctx.battery_file.battery
     if battery.rating == "lead-equivalent":
         if battery.actual_capacity_ah is None:
@@ -165,8 +165,9 @@ def state_reading(ctx: Context) -> None:
         guess = round(v / cell_v)
         raise ctx.refuse(
             f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, more than a rested "
-            f"{n}-cell {ctx.profile.id} battery can read ({cell_volts(rest.highest_plausible.value)}"
-            f" at most): it reads like {guess} cells; check cells_in_series and the chemistry"
+            f"{n}-cell {ctx.profile.id} battery can read "
+            f"({cell_volts(rest.highest_plausible.value)} at most): it reads like {guess} cells; "
+            "check cells_in_series and the chemistry"
         )
     empty_v, full_v = table[0][1], table[-1][1]
     if n >= 2 and per_cell < empty_v and empty_v <= v / (n - 1) <= full_v + 0.05:

@@ -24,7 +24,7 @@ def _permits_high_voltage(ctx: Context) -> bool:
 @rule("CP401", "charger.high_voltage_stages", source="common practice: a lead-acid charger's "
       "equalization or desulfation stage damages lithium, gel and most AGM batteries")
 def charger_high_voltage_stages(ctx: Context) -> None:
-    """A channel that cannot switch off its high-voltage stages is refused for any battery they would harm."""
+    """Refuse a channel whose high-voltage stages cannot be switched off for a battery they harm."""
     channel = ctx.battery_file.charger
     if channel is None:
         ctx.info("no charger channel given: check that yours can do every stage below and "
@@ -51,7 +51,10 @@ def charger_high_voltage_stages(ctx: Context) -> None:
 @rule("CP402", "charger.voltage_range", source="common practice: a channel must reach every "
       "stage's voltage and regulate as low as the float")
 def charger_voltage_range(ctx: Context) -> None:
-    """Refuse a channel that cannot reach a stage's voltage or go as low as the float; drop optional stages it cannot reach."""
+    """Refuse a channel that cannot reach a stage's voltage or go as low as the float.
+
+    Optional stages it cannot reach (equalization, desulfation) are left out instead.
+    """
     channel = ctx.battery_file.charger
     if channel is None:
         return

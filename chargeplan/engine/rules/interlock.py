@@ -18,7 +18,7 @@ BULK_TIMER_FLOOR_S = 1800.0
 @rule("CP601", "timers.safety", source="BU-808a (pre-charge with a timer); common practice: "
       "a timer at a margin over the charge the stage must return at its current")
 def timers_safety(ctx: Context) -> None:
-    """Every stage that could run away gets a safety timer from the charge it returns and its current, with margin."""
+    """A stage that could run away gets a safety timer: its charge over its current, with margin."""
     assert ctx.settings is not None
     margin = ctx.profile.charge.timer_margin.value
     factor = ctx.profile.charge.charge_factor.value
@@ -55,7 +55,7 @@ def timers_safety(ctx: Context) -> None:
 @rule("CP602", "interlocks.limits", source="BU-410 Table 1 (charge-temperature windows); "
       "US Army TM 5-1185 Table III (freezing point); the profile's hard envelope")
 def interlocks_limits(ctx: Context) -> None:
-    """The charger stops outside the charge-temperature window, above the envelope's cell voltage and above the plan's current."""
+    """Stop outside the charge-temperature window, above the envelope voltage or the current."""
     p = ctx.profile
     n = ctx.cells
     low = max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value)
@@ -93,6 +93,6 @@ def interlocks_limits(ctx: Context) -> None:
 @rule("CP603", "cautions.chemistry", source="IEC 62485-2 cl. 7 (hydrogen, 0.5 m); BU-410 "
       "(no lithium charging below 0 degC); common practice")
 def cautions_chemistry(ctx: Context) -> None:
-    """Every plan carries its chemistry's cautions and defers to the datasheet, local codes and licensed practice."""
+    """Every plan carries its chemistry's cautions and defers to the datasheet and local codes."""
     ctx.cautions = cautions_for(ctx.profile.family, vented=ctx.profile.vented,
                                 extra=ctx.profile.cautions)

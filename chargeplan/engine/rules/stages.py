@@ -148,8 +148,11 @@ def stages_precharge(ctx: Context) -> None:
         return
     if ctx.target == "storage" and ctx.soc_pct is not None and ctx.soc_pct >= 100:
         return
-    why = ("the voltage is not known" if ctx.rest_cell_v is None
-           else f"rest {cell_volts(ctx.rest_cell_v)} is below {cell_volts(s.precharge_below_v_cell)}")
+    why = (
+        "the voltage is not known"
+        if ctx.rest_cell_v is None
+        else f"rest {cell_volts(ctx.rest_cell_v)} is below {cell_volts(s.precharge_below_v_cell)}"
+    )
     ctx.stages.append(
         Stage(
             kind=StageKind.PRECHARGE,
@@ -220,7 +223,7 @@ def _storage_soc(ctx: Context) -> float:
       "Lithium-ion: constant current to the voltage limit, then constant voltage until the "
       "current falls to the tail current")
 def stages_bulk_absorption(ctx: Context) -> None:
-    """Constant current to the absorption voltage, then hold it until the tail current or the time limit.
+    """Constant current to the absorption voltage, then hold it until the tail current or time.
 
     Lithium going into storage stops at its storage voltage instead of full.
     """
@@ -294,7 +297,7 @@ def stages_bulk_absorption(ctx: Context) -> None:
       "or every 18 months); Battery University, equalizing charge (SG spread 0.030, about "
       "2.50 V/cell); flooded only")
 def stages_equalization(ctx: Context) -> None:
-    """Equalize a flooded battery only when its cells have drifted or it is due, and the profile allows it.
+    """Equalize a flooded battery only when its cells have drifted or it is due, where allowed.
 
     Never gel, never lithium; AGM only where its profile allows.
     """

@@ -74,6 +74,10 @@ class HardEnvelope:
     charge_temperature_min_c: float
     charge_temperature_max_c: float
     forbidden_stages: frozenset[str]
+    cool_zone_below_c: float | None = None  # below it, current at most cool_zone_current_c
+    cool_zone_current_c: float | None = None
+    warm_zone_above_c: float | None = None  # above it, cell voltage at most warm_zone_cell_v
+    warm_zone_cell_v: float | None = None
 
 
 @cache
@@ -81,6 +85,7 @@ def hard_envelope(chemistry: str) -> HardEnvelope:
     """The built-in hard envelope of ``chemistry``, read from its bundled profile."""
     env = load_builtin(chemistry)
     e = env.envelope
+    cool, warm = env.temperature.cool_zone, env.temperature.warm_zone
     return HardEnvelope(
         chemistry=chemistry,
         family=env.family,
@@ -89,6 +94,10 @@ def hard_envelope(chemistry: str) -> HardEnvelope:
         charge_temperature_min_c=e.charge_temperature_min.value,
         charge_temperature_max_c=e.charge_temperature_max.value,
         forbidden_stages=frozenset(e.forbidden_stages),
+        cool_zone_below_c=cool.boundary.value if cool and cool.current else None,
+        cool_zone_current_c=cool.current.value if cool and cool.current else None,
+        warm_zone_above_c=warm.boundary.value if warm and warm.voltage else None,
+        warm_zone_cell_v=warm.voltage.value if warm and warm.voltage else None,
     )
 
 

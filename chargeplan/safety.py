@@ -10,10 +10,14 @@ never output.
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
 from chargeplan.errors import EnvelopeViolation
 from chargeplan.plan import ChargePlan
 from chargeplan.profiles import HardEnvelope
+
+if TYPE_CHECKING:
+    from chargeplan.model.battery import BatteryFile
 
 __all__ = ["verify", "violations"]
 
@@ -25,8 +29,14 @@ _LITHIUM_MIN_CHARGE_C = 0.0
 _EPS = 1e-6
 
 
-def violations(plan: ChargePlan, envelope: HardEnvelope) -> list[str]:
-    """Every way ``plan`` crosses ``envelope``; empty when it is safe to emit."""
+def violations(
+    plan: ChargePlan, envelope: HardEnvelope, battery_file: BatteryFile | None = None
+) -> list[str]:
+    """Every way ``plan`` crosses ``envelope``; empty when it is safe to emit.
+
+    With ``battery_file``, also the limits the input itself sets: the maker's maximum
+    charge current and the charger channel's voltage and current ranges.
+    """
     found: list[str] = []
     b = plan.battery
     lithium = envelope.family == "lithium" or b.family == "lithium"
@@ -89,11 +99,67 @@ def violations(plan: ChargePlan, envelope: HardEnvelope) -> list[str]:
         found.append(f"interlock current {lock.current_max_a} A is above {i_max:.4f} A")
     if lithium and plan.finish != "stop":
         found.append("a lithium plan must stop at the end, not hold")
+    for stage in plan.stages:
+        if stage.current_a > lock.current_max_a + _EPS:
+            found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is above the "
+                         f"interlock's {lock.current_max_a:.4f} A")
+    t = b.temperature_c
+    if envelope.cool_zone_below_c is not None and envelope.cool_zone_current_c is not None:
+        cool_a = envelope.cool_zone_current_c * b.capacity_ah
+        if t < envelope.cool_zone_below_c:
+            for stage in plan.stages:
+                if stage.current_a > cool_a + _EPS:
+                    found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is above "
+                                 f"the {cool_a:.4f} A allowed below "
+                                 f"{envelope.cool_zone_below_c} °C")
+        if lock.cool_zone_current_max_a is None or lock.cool_zone_current_max_a > cool_a + _EPS:
+            found.append("the interlocks lack the cool-zone current limit")
+    if envelope.warm_zone_above_c is not None and envelope.warm_zone_cell_v is not None:
+        warm_v = envelope.warm_zone_cell_v * b.cells_in_series
+        if t > envelope.warm_zone_above_c:
+            for stage in plan.stages:
+                if stage.voltage_v > warm_v + _EPS:
+                    found.append(f"{stage.kind.value} voltage {stage.voltage_v:.4f} V is above "
+                                 f"the {warm_v:.4f} V allowed above "
+                                 f"{envelope.warm_zone_above_c} °C")
+        if (lock.warm_zone_cell_voltage_max_v is None
+                or lock.warm_zone_cell_voltage_max_v > envelope.warm_zone_cell_v + _EPS):
+            found.append("the interlocks lack the warm-zone voltage limit")
+    if battery_file is not None:
+        found += _input_limits(plan, battery_file)
     return found
 
 
-def verify(plan: ChargePlan, envelope: HardEnvelope) -> None:
-    """Raise :class:`~chargeplan.errors.EnvelopeViolation` if ``plan`` crosses ``envelope``."""
-    found = violations(plan, envelope)
+def _input_limits(plan: ChargePlan, battery_file: BatteryFile) -> list[str]:
+    """The limits the input sets, read from the input itself (not from the rules' settings)."""
+    found: list[str] = []
+    maker = battery_file.battery.overrides.max_charge_current
+    if maker is not None:
+        maker_a = maker.amps(plan.battery.capacity_ah)
+        for stage in plan.stages:
+            if stage.current_a > maker_a + _EPS:
+                found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is above the "
+                             f"maker's maximum {maker_a:.4f} A")
+    channel = battery_file.charger
+    if channel is not None:
+        for stage in plan.stages:
+            if stage.current_a > channel.max_current_a + _EPS:
+                found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is above the "
+                             f"channel's {channel.max_current_a} A")
+            if stage.current_a < channel.min_current_a - _EPS:
+                found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is below the "
+                             f"channel's smallest {channel.min_current_a} A")
+            if stage.voltage_v > channel.max_voltage_v + _EPS:
+                found.append(f"{stage.kind.value} voltage {stage.voltage_v:.4f} V is above the "
+                             f"channel's {channel.max_voltage_v} V")
+    return found
+
+
+def verify(
+    plan: ChargePlan, envelope: HardEnvelope, battery_file: BatteryFile | None = None
+) -> None:
+    """Raise :class:`~chargeplan.errors.EnvelopeViolation` if ``plan`` crosses ``envelope``
+    (or, with ``battery_file``, the maker's or the channel's limits)."""
+    found = violations(plan, envelope, battery_file)
     if found:
         raise EnvelopeViolation(found)

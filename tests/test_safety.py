@@ -105,3 +105,43 @@ def test_planner_never_returns_a_plan_that_fails():
                    state={"rest_voltage": "13.1 V"})
     with pytest.raises(EnvelopeViolation):
         plan_charge(BatteryFile.model_validate(data), rules=patched)
+
+
+def test_cool_zone_current_is_checked():
+    # cell handling guidelines (common practice): LFP at most 0.2 C below 10 degC
+    plan = plan_of(battery(battery={"chemistry": "lifepo4", "capacity": "50 Ah"},
+                           state={"rest_voltage": "13.1 V"},
+                           conditions={"battery_temperature": "5 degC"}))
+    assert safety.violations(plan, hard_envelope("lifepo4")) == []
+    plan.stages[0].current_a = 10.5  # 0.2 It x 50 Ah = 10 A
+    plan.interlocks.current_max_a = 10.5
+    found = safety.violations(plan, hard_envelope("lifepo4"))
+    assert any("allowed below 10.0 °C" in v for v in found)
+
+
+def test_warm_zone_voltage_is_checked():
+    # JEITA guideline (2007): warm-zone voltage cut to about 4.10 V/cell
+    plan = plan_of(battery(battery={"chemistry": "nmc", "nominal_voltage": None,
+                                    "cells_in_series": 3, "capacity": "5 Ah"},
+                           state={"rest_voltage": "11.1 V"},
+                           conditions={"battery_temperature": "42 degC"}))
+    plan.stages[-1].voltage_v = 12.6
+    found = safety.violations(plan, hard_envelope("nmc"))
+    assert any("allowed above 40.0 °C" in v for v in found)
+
+
+def test_maker_and_channel_limits_are_checked_from_the_input():
+    from chargeplan.model.battery import BatteryFile
+
+    data = battery(battery={"overrides": {"max_charge_current": "1 A"}},
+                   charger={"max_voltage": "15 V", "max_current": "4 A"})
+    battery_file = BatteryFile.model_validate(data)
+    plan = plan_of(data)
+    assert safety.violations(plan, hard_envelope("agm"), battery_file) == []
+    plan.stages[0].current_a = 1.5
+    plan.interlocks.current_max_a = 1.5
+    found = safety.violations(plan, hard_envelope("agm"), battery_file)
+    assert any("maker's maximum" in v for v in found)
+    plan.stages[0].voltage_v = 15.2
+    assert any("channel's 15.0 V" in v
+               for v in safety.violations(plan, hard_envelope("agm"), battery_file))

@@ -77,5 +77,5 @@ def plan_charge(
         cautions=ctx.cautions,
         finish=ctx.finish,
     )
-    safety.verify(plan, hard_envelope(profile.chemistry))
+    safety.verify(plan, hard_envelope(profile.chemistry), battery_file)
     return plan

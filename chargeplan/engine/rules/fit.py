@@ -84,7 +84,7 @@ def charger_voltage_range(ctx: Context) -> None:
 @rule("CP403", "charger.current_range", source="common practice: a channel's current limit "
       "stretches the charge; its smallest current bounds pre-charge and tail-current exits")
 def charger_current_range(ctx: Context) -> None:
-    """Hold currents to the channel's maximum (the charge takes longer); respect its minimum."""
+    """Hold currents to the channel's maximum; never raise one to reach the channel's minimum."""
     channel = ctx.battery_file.charger
     if channel is None:
         return
@@ -99,19 +99,18 @@ def charger_current_range(ctx: Context) -> None:
                          f"{amps(stage.current_a)}: the charge takes longer")
             stage.current_a = top
         if stage.current_a < bottom:
-            if stage.kind == StageKind.PRECHARGE and ctx.lithium:
-                raise ctx.refuse(
-                    f"the channel's smallest current {amps(bottom)} is above the "
-                    f"{amps(stage.current_a)} pre-charge a deeply discharged lithium battery "
-                    "needs; use a channel that goes lower"
-                )
+            # Never raise a current to suit the channel: that moves it toward danger.
             if stage.kind in OPTIONAL:
                 ctx.warn(f"{stage.kind.label} left out: it runs at {amps(stage.current_a)}, below"
                          f" the channel's smallest current {amps(bottom)}")
                 continue
-            ctx.warn(f"{stage.kind.label} raised to the channel's smallest current "
-                     f"{amps(bottom)} (plan asked {amps(stage.current_a)})")
-            stage.current_a = bottom
+            fix = ("measure the rest voltage (a battery above the pre-charge threshold needs no "
+                   "pre-charge) or use a channel that goes lower"
+                   if stage.kind == StageKind.PRECHARGE else "use a channel that goes lower")
+            raise ctx.refuse(
+                f"the channel's smallest current {amps(bottom)} is above the "
+                f"{amps(stage.current_a)} the {stage.kind.label} stage may take; {fix}"
+            )
         exits = []
         for e in stage.exits:
             if e.kind == ExitKind.CURRENT_BELOW and e.value < bottom:

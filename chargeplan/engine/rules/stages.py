@@ -100,15 +100,32 @@ def settings_overrides(ctx: Context) -> None:
     current("bulk_current", "bulk_a")
     current("tail_current", "tail_a")
     current("precharge_current", "precharge_a")
+    # Every current is held to the maximum charge current (the envelope's, or the maker's).
     if s.bulk_a > s.max_a:
+        if o.bulk_current is not None:
+            raise ctx.bad_input(field("bulk_current"), f"is above the maximum charge current "
+                                f"{amps(s.max_a)}", "check both values against the datasheet")
         s.bulk_a = s.max_a
         ctx.note("bulk.current", f"bulk held to the maximum charge current {amps(s.max_a)}")
     if s.precharge_a > s.bulk_a:
-        raise ctx.bad_input(field("precharge_current"), "is above the bulk current",
-                            "a pre-charge current is a small fraction of the bulk current")
+        if o.precharge_current is not None:
+            raise ctx.bad_input(field("precharge_current"), "is above the bulk current",
+                                "a pre-charge current is a small fraction of the bulk current")
+        s.precharge_a = s.bulk_a
+        ctx.note("precharge.current", f"held to the bulk current {amps(s.bulk_a)}")
     if s.tail_a >= s.bulk_a:
-        raise ctx.bad_input(field("tail_current"), "must be below the bulk current",
-                            "the tail current is a few percent of the capacity, e.g. '0.02 It'")
+        given = ("tail_current" if o.tail_current is not None
+                 else "bulk_current" if o.bulk_current is not None else "max_charge_current")
+        raise ctx.bad_input(
+            field(given),
+            f"leaves a bulk current of {amps(s.bulk_a)}, not above the tail current "
+            f"{amps(s.tail_a)} that ends absorption",
+            "check the datasheet values; the tail current is a few percent of the capacity",
+        )
+    for attr in ("equalization_a", "desulfation_a"):
+        value = getattr(s, attr)
+        if value is not None and value > s.max_a:
+            setattr(s, attr, s.max_a)
     if o.absorption_time_s is not None:
         s.absorption_time_s = o.absorption_time_s
         ctx.note("absorption.duration", f"maker's {duration(o.absorption_time_s)}")

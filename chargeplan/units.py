@@ -22,11 +22,28 @@ import pint
 
 __all__ = ["DIMENSIONS", "Q_", "describe_dimension", "parse_quantity", "ureg"]
 
-ureg = pint.UnitRegistry(
-    str(files("chargeplan") / "units.txt"),
-    cache_folder=None,
-    autoconvert_offset_to_baseunit=True,
-)
+
+
+def _registry() -> pint.UnitRegistry:
+    """The registry, defined line by line from ``units.txt``.
+
+    Feeding the lines to ``define`` skips pint's file parser and builds the same units in
+    about a third of the time (start-up matters: see tests/benchmarks/bench_startup.py).
+    """
+    registry = pint.UnitRegistry(None, cache_folder=None, autoconvert_offset_to_baseunit=True)
+    text = (files("chargeplan") / "units.txt").read_text(encoding="utf-8")
+    in_block = False
+    for raw in text.splitlines():
+        line = raw.split("#", 1)[0].strip()
+        if line.startswith("@"):  # directive blocks (@defaults ... @end) are for pint's parser
+            in_block = not line.startswith("@end")
+            continue
+        if line and not in_block:
+            registry.define(line)
+    return registry
+
+
+ureg = _registry()
 Q_ = ureg.Quantity
 
 # Each named dimension: the unit we convert to, an example a user can copy, its name.

@@ -99,7 +99,7 @@ def plan(
     with _errors():
         from chargeplan.api import plan_file
 
-        result = plan_file(file, profiles=_profile_set(profiles) if profiles else None)
+        result = plan_file(file, profiles=_profile_set(profiles))
         if format is Format.json:
             from chargeplan.render.setpoints import to_json
 
@@ -139,7 +139,7 @@ def profiles_command(
                 p = found.get(pid)
                 typer.echo(f"{p.id:<10} {p.family:<10} {p.name}  [{found.source_of(pid)}]")
             return
-        p = found.get(profile_id)
+        p = found.get(profile_id, field="profile")
         typer.echo(f"{p.id}: {p.name} ({p.family}; envelope of {p.chemistry}; "
                    f"{found.source_of(profile_id)})")
         if p.summary:
@@ -162,13 +162,7 @@ def rules_command(
         from chargeplan.engine.registry import RULES
 
         if rule_id is not None:
-            try:
-                entry = next(r for r in RULES.manifest() if rule_id in (r["id"], r["name"]))
-            except StopIteration:
-                from chargeplan.errors import InputError
-
-                raise InputError(f"no rule '{rule_id}'", field="rule",
-                                 fix="run 'chargeplan rules' for the list") from None
+            entry = RULES.entry(RULES.get(rule_id))
             for key in ("id", "name", "phase", "statement", "detail", "source"):
                 if entry[key]:
                     typer.echo(f"{key:<10} {entry[key]}")
@@ -187,22 +181,16 @@ def schema(
 ) -> None:
     """Write the JSON Schemas, or check that the shipped ones match the code."""
     with _errors():
-        from chargeplan.profiles import data_dir
-        from chargeplan.schema import schema_texts, write_schemas
+        from chargeplan.schema import compare_shipped, write_schemas
 
         if out is not None:
             for path in write_schemas(out, force=force):
                 typer.echo(f"wrote {path}")
             return
-        shipped = data_dir("schemas")
-        stale = []
-        for name, text in schema_texts().items():
-            path = shipped / name
-            same = path.is_file() and path.read_text(encoding="utf-8") == text
+        results = compare_shipped()
+        for name, same in results.items():
             typer.echo(f"{name:<24} {'matches the code' if same else 'differs from the code'}")
-            if not same:
-                stale.append(name)
-        if stale:
+        if not all(results.values()):
             typer.echo("regenerate with: chargeplan schema --out schemas --force", err=True)
             raise typer.Exit(1)
 

@@ -29,6 +29,15 @@ def _reject_constant(name: str) -> Any:
     raise ValueError(f"{name} is not a number chargeplan accepts")
 
 
+def _no_duplicate_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    result: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in result:
+            raise ValueError(f"the key '{key}' appears twice in one object")
+        result[key] = value
+    return result
+
+
 def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     """Read a YAML or JSON file whose top level is a mapping."""
     path = Path(path)
@@ -79,7 +88,8 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
 
 def _parse_json(text: str, shown: str) -> Any:
     try:
-        return json.loads(text, parse_constant=_reject_constant)
+        return json.loads(text, parse_constant=_reject_constant,
+                          object_pairs_hook=_no_duplicate_keys)
     except json.JSONDecodeError as error:
         raise InputError(
             f"line {error.lineno}, column {error.colno}: not valid JSON ({error.msg})",
@@ -88,7 +98,7 @@ def _parse_json(text: str, shown: str) -> Any:
         ) from None
     except ValueError as error:
         raise InputError(
-            str(error), file=shown, fix="write a finite number with its unit"
+            str(error), file=shown, fix="write each key once, and numbers as finite values"
         ) from None
     except RecursionError:
         raise InputError("is nested too deeply", file=shown, fix="flatten the file") from None
@@ -172,12 +182,39 @@ def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) ->
     elif "; " in message:
         message, fix = message.split("; ", 1)
     else:
-        fix = "correct the value"
+        fix = _FIXES.get(kind, "correct the value")
+        if kind in ("less_than_equal", "greater_than_equal", "less_than", "greater_than"):
+            limit = first.get("ctx", {})
+            bound = next(iter(limit.values()), None) if limit else None
+            fix = f"use a value {_BOUND_WORDS[kind]} {bound}" if bound is not None else fix
     more = len(problems) - 1
     if more:
         fix = f"{fix} (and {more} more problem{'s' if more > 1 else ''} after this)"
     return InputError(message, file=file, field=field, fix=fix)
 
+
+_FIXES = {
+    "int_type": "write a whole number, e.g. 6",
+    "int_from_float": "write a whole number, e.g. 6",
+    "int_parsing": "write a whole number, e.g. 6",
+    "bool_type": "write true or false",
+    "bool_parsing": "write true or false",
+    "float_type": "write a number",
+    "float_parsing": "write a number",
+    "finite_number": "write a finite number",
+    "string_type": "write it as text (in quotes if it looks like a number)",
+    "dict_type": "write a mapping of keys under it",
+    "model_type": "write a mapping of keys under it",
+    "list_type": "write a list",
+    "literal_error": "use one of the values named",
+    "enum": "use one of the values named",
+}
+_BOUND_WORDS = {
+    "less_than_equal": "of at most",
+    "less_than": "below",
+    "greater_than_equal": "of at least",
+    "greater_than": "above",
+}
 
 _EXAMPLES = {
     "capacity": "capacity: 9 Ah",

@@ -69,13 +69,13 @@ class HardEnvelope:
 
     chemistry: str
     family: str
-    max_cell_voltage_v: float
-    max_current_c: float
+    cell_voltage_max_v: float
+    max_current_it: float
     charge_temperature_min_c: float
     charge_temperature_max_c: float
     forbidden_stages: frozenset[str]
-    cool_zone_below_c: float | None = None  # below it, current at most cool_zone_current_c
-    cool_zone_current_c: float | None = None
+    cool_zone_below_c: float | None = None  # below it, current at most cool_zone_current_it
+    cool_zone_current_it: float | None = None
     warm_zone_above_c: float | None = None  # above it, cell voltage at most warm_zone_cell_v
     warm_zone_cell_v: float | None = None
 
@@ -89,13 +89,13 @@ def hard_envelope(chemistry: str) -> HardEnvelope:
     return HardEnvelope(
         chemistry=chemistry,
         family=env.family,
-        max_cell_voltage_v=e.max_cell_voltage.value,
-        max_current_c=e.max_current.value,
+        cell_voltage_max_v=e.max_cell_voltage.value,
+        max_current_it=e.max_current.value,
         charge_temperature_min_c=e.charge_temperature_min.value,
         charge_temperature_max_c=e.charge_temperature_max.value,
         forbidden_stages=frozenset(e.forbidden_stages),
         cool_zone_below_c=cool.boundary.value if cool and cool.current else None,
-        cool_zone_current_c=cool.current.value if cool and cool.current else None,
+        cool_zone_current_it=cool.current.value if cool and cool.current else None,
         warm_zone_above_c=warm.boundary.value if warm and warm.voltage else None,
         warm_zone_cell_v=warm.voltage.value if warm and warm.voltage else None,
     )
@@ -126,7 +126,7 @@ def _within_builtin(profile: Profile, file: str) -> None:
                 file=file, field=field, fix=f"lower it to {limit:g} {unit} or less",
             )
 
-    v_max = hard.max_cell_voltage_v
+    v_max = hard.cell_voltage_max_v
     c = profile.charge
     over("envelope.max_cell_voltage", profile.envelope.max_cell_voltage.value, v_max, "V/cell")
     over("charge.absorption_voltage", c.absorption_voltage.value, v_max, "V/cell")
@@ -137,9 +137,24 @@ def _within_builtin(profile: Profile, file: str) -> None:
         if stage.allowed and stage.voltage is not None:
             name = "equalization" if stage is profile.equalization else "desulfation"
             over(f"{name}.voltage", stage.voltage.value, v_max, "V/cell")
-    i_max = hard.max_current_c
+    i_max = hard.max_current_it
     over("envelope.max_current", profile.envelope.max_current.value, i_max, "It")
     over("charge.bulk_current", c.bulk_current.value, i_max, "It")
+    for stage in (profile.equalization, profile.desulfation):
+        if stage.allowed and stage.current is not None:
+            name = "equalization" if stage is profile.equalization else "desulfation"
+            over(f"{name}.current", stage.current.value, i_max, "It")
+    _zones_within(profile, load_builtin(profile.chemistry), file)
+    rest, hard_rest = profile.rest_voltage, load_builtin(profile.chemistry).rest_voltage
+    over("rest_voltage.highest_plausible", rest.highest_plausible.value,
+         hard_rest.highest_plausible.value, "V/cell")
+    if rest.dead_below.value < hard_rest.dead_below.value - 1e-9:
+        raise InputError(
+            f"{rest.dead_below.value:g} V/cell is below the {profile.chemistry} built-in "
+            f"{hard_rest.dead_below.value:g} V/cell",
+            file=file, field="rest_voltage.dead_below",
+            fix=f"raise it to {hard_rest.dead_below.value:g} V/cell or more",
+        )
     t = profile.temperature
     over("temperature.charge_max", t.charge_max.value, hard.charge_temperature_max_c, "degC")
     over("envelope.charge_temperature_max", profile.envelope.charge_temperature_max.value,
@@ -168,6 +183,48 @@ def _within_builtin(profile: Profile, file: str) -> None:
                 f"{stage_name} is forbidden for {profile.chemistry}",
                 file=file, field=f"{stage_name}.allowed", fix="set allowed: false",
             )
+
+
+def _zones_within(profile: Profile, builtin: Profile, file: str) -> None:
+    """A user profile keeps the built-in cool and warm zones, or narrower and stricter ones,
+    and a lead-acid compensation close to the built-in one."""
+
+    def bad(field: str, problem: str, fix: str) -> InputError:
+        return InputError(problem, file=file, field=f"temperature.{field}", fix=fix)
+
+    mine, hard = profile.temperature, builtin.temperature
+    if hard.cool_zone is not None and hard.cool_zone.current is not None:
+        cool = mine.cool_zone
+        if cool is None or cool.current is None:
+            raise bad("cool_zone", f"is missing; {profile.chemistry} needs one",
+                      f"copy the built-in {profile.chemistry} cool_zone")
+        if cool.boundary.value < hard.cool_zone.boundary.value - 1e-9:
+            raise bad("cool_zone.boundary", "is colder than the built-in boundary",
+                      f"use {hard.cool_zone.boundary.value:g} degC or warmer")
+        if cool.current.value > hard.cool_zone.current.value + 1e-9:
+            raise bad("cool_zone.current", "is above the built-in cool-zone current",
+                      f"use {hard.cool_zone.current.value:g} It or less")
+    if hard.warm_zone is not None and hard.warm_zone.voltage is not None:
+        warm = mine.warm_zone
+        if warm is None or warm.voltage is None:
+            raise bad("warm_zone", f"is missing; {profile.chemistry} needs one",
+                      f"copy the built-in {profile.chemistry} warm_zone")
+        if warm.boundary.value > hard.warm_zone.boundary.value + 1e-9:
+            raise bad("warm_zone.boundary", "is warmer than the built-in boundary",
+                      f"use {hard.warm_zone.boundary.value:g} degC or cooler")
+        if warm.voltage.value > hard.warm_zone.voltage.value + 1e-9:
+            raise bad("warm_zone.voltage", "is above the built-in warm-zone voltage",
+                      f"use {hard.warm_zone.voltage.value:g} V/cell or less")
+    if hard.compensation is not None and mine.compensation is not None:
+        k, k_hard = mine.compensation.coefficient.value, hard.compensation.coefficient.value
+        if not 2 * k_hard <= k <= 0.5 * k_hard:
+            raise bad("compensation.coefficient",
+                      f"{k:g} mV/K/cell is far from the built-in {k_hard:g} mV/K/cell",
+                      f"use a value between {2 * k_hard:g} and {0.5 * k_hard:g}")
+        ref, ref_hard = mine.compensation.reference.value, hard.compensation.reference.value
+        if abs(ref - ref_hard) > 5:
+            raise bad("compensation.reference", f"{ref:g} degC is far from the built-in "
+                      f"{ref_hard:g} degC", "use the datasheet's reference, 20-30 degC")
 
 
 def load_profile_file(path: str | Path) -> Profile:
@@ -224,7 +281,7 @@ class ProfileSet:
     def ids(self) -> list[str]:
         return [*BUILTIN_IDS, *sorted(self._user)]
 
-    def get(self, profile_id: str) -> Profile:
+    def get(self, profile_id: str, *, field: str = "battery.chemistry") -> Profile:
         """A profile by id; an unknown id is an InputError that lists the valid ones."""
         if profile_id in self._user:
             return self._user[profile_id]
@@ -232,7 +289,7 @@ class ProfileSet:
             return load_builtin(profile_id)
         raise InputError(
             f"unknown chemistry '{profile_id}'",
-            field="battery.chemistry",
+            field=field,
             fix=f"use one of {', '.join(self.ids)}",
         )
 

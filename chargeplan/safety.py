@@ -25,6 +25,8 @@ __all__ = ["verify", "violations"]
 _NEVER_FOR_LITHIUM = frozenset({"equalization", "desulfation"})
 #: Lithium is never charged below this cell temperature, whatever a profile says.
 _LITHIUM_MIN_CHARGE_C = 0.0
+#: The smallest current a setpoint file carries (1 mA); below it a limit would read as 0.
+_LEAST_CURRENT_A = 0.001
 #: Float rounding allowance (1 µV, 1 µA, 1 mK).
 _EPS = 1e-6
 
@@ -48,8 +50,8 @@ def violations(
     if not (math.isfinite(b.capacity_ah) and b.capacity_ah > 0):
         found.append(f"capacity {b.capacity_ah!r} Ah is not a positive number")
         return found
-    v_max = envelope.max_cell_voltage_v * b.cells_in_series
-    i_max = envelope.max_current_c * b.capacity_ah
+    v_max = envelope.cell_voltage_max_v * b.cells_in_series
+    i_max = envelope.max_current_it * b.capacity_ah
     if not plan.stages:
         found.append("the plan has no stages")
     for index, stage in enumerate(plan.stages):
@@ -63,10 +65,10 @@ def violations(
                 found.append(f"{name} {label} {value!r} is not a positive number")
         if stage.voltage_v > v_max + _EPS:
             found.append(f"{name} voltage {stage.voltage_v:.4f} V is above the envelope's "
-                         f"{v_max:.4f} V ({envelope.max_cell_voltage_v} V/cell)")
+                         f"{v_max:.4f} V ({envelope.cell_voltage_max_v} V/cell)")
         if stage.current_a > i_max + _EPS:
             found.append(f"{name} current {stage.current_a:.4f} A is above the envelope's "
-                         f"{i_max:.4f} A ({envelope.max_current_c} It)")
+                         f"{i_max:.4f} A ({envelope.max_current_it} It)")
         if stage.timer_s is not None and not (math.isfinite(stage.timer_s) and stage.timer_s > 0):
             found.append(f"{name} timer {stage.timer_s!r} s is not a positive number")
         for exit_ in stage.exits:
@@ -74,6 +76,18 @@ def violations(
                 found.append(f"{name} exit {exit_.kind.value} {exit_.value!r} is not a number")
             if exit_.kind.value == "voltage_reached" and exit_.value > v_max + _EPS:
                 found.append(f"{name} exits at {exit_.value:.4f} V, above the envelope")
+    held = [s for s in plan.stages if s.kind.value in ("float", "storage_hold")]
+    charged = [s for s in plan.stages if s.kind.value in ("bulk", "absorption")]
+    if held and charged and not lithium:
+        top = max(s.voltage_v for s in charged)
+        for stage in held:
+            if stage.voltage_v >= top - _EPS:
+                found.append(f"{stage.kind.value} at {stage.voltage_v:.4f} V is not below the "
+                             f"charge voltage {top:.4f} V, yet is held indefinitely")
+    for index, stage in enumerate(plan.stages):
+        if stage.current_a < _LEAST_CURRENT_A - _EPS:
+            found.append(f"stage {index + 1} ({stage.kind.value}) current {stage.current_a!r} A "
+                         "is below 1 mA, which a setpoint file cannot carry")
     lock = plan.interlocks
     t_low, t_high = lock.charge_temperature_min_c, lock.charge_temperature_max_c
     if t_low < envelope.charge_temperature_min_c - _EPS:
@@ -89,9 +103,9 @@ def violations(
     if not (t_low - _EPS <= b.temperature_c <= t_high + _EPS):
         found.append(f"battery at {b.temperature_c} °C is outside the interlocks "
                      f"{t_low}…{t_high} °C, yet a plan was made")
-    if lock.cell_voltage_max_v > envelope.max_cell_voltage_v + _EPS:
+    if lock.cell_voltage_max_v > envelope.cell_voltage_max_v + _EPS:
         found.append(f"interlock cell voltage {lock.cell_voltage_max_v} V is above the "
-                     f"envelope's {envelope.max_cell_voltage_v} V/cell")
+                     f"envelope's {envelope.cell_voltage_max_v} V/cell")
     if lock.battery_voltage_max_v > v_max + _EPS:
         found.append(f"interlock battery voltage {lock.battery_voltage_max_v} V is above "
                      f"{v_max:.4f} V")
@@ -104,8 +118,8 @@ def violations(
             found.append(f"{stage.kind.value} current {stage.current_a:.4f} A is above the "
                          f"interlock's {lock.current_max_a:.4f} A")
     t = b.temperature_c
-    if envelope.cool_zone_below_c is not None and envelope.cool_zone_current_c is not None:
-        cool_a = envelope.cool_zone_current_c * b.capacity_ah
+    if envelope.cool_zone_below_c is not None and envelope.cool_zone_current_it is not None:
+        cool_a = envelope.cool_zone_current_it * b.capacity_ah
         if t < envelope.cool_zone_below_c:
             for stage in plan.stages:
                 if stage.current_a > cool_a + _EPS:

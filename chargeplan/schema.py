@@ -6,7 +6,7 @@ import json
 from pathlib import Path
 from typing import Any
 
-__all__ = ["SCHEMAS", "generate", "schema_texts", "write_schemas"]
+__all__ = ["SCHEMAS", "compare_shipped", "generate", "schema_texts", "write_schemas"]
 
 #: file name -> (module, model, title)
 SCHEMAS = {
@@ -39,6 +39,18 @@ def schema_texts() -> dict[str, str]:
     return {
         name: json.dumps(generate(name), indent=2, ensure_ascii=False, sort_keys=False) + "\n"
         for name in SCHEMAS
+    }
+
+
+def compare_shipped() -> dict[str, bool]:
+    """For each schema, whether the copy shipped with chargeplan matches the models."""
+    from chargeplan.profiles import data_dir
+
+    shipped = data_dir("schemas")
+    return {
+        name: (shipped / name).is_file()
+        and (shipped / name).read_text(encoding="utf-8") == text
+        for name, text in schema_texts().items()
     }
 
 

@@ -109,7 +109,10 @@ def parse_quantity(text: object, kind: str) -> float:
         quantity = Q_(raw)
     except pint.UndefinedUnitError as error:
         name = str(getattr(error, "unit_names", "") or error).strip("'()[], ")
-        hint = " (write a C-rate as '0.1 It')" if name == "C" else ""
+        hint = ""
+        if name == "C":
+            hint = (" (write degrees Celsius as 'degC')" if kind.startswith("temperature")
+                    else " (write a C-rate as '0.1 It')")
         raise ValueError(f"unknown unit '{name}' in '{raw}'{hint}; write {wanted}") from None
     except Exception:
         raise ValueError(f"cannot read '{raw}' as a quantity; write {wanted}") from None

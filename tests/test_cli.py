@@ -81,6 +81,13 @@ def test_refusal_exits_1(write_yaml):
         ({"battery": {"capacty": "9 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
         ({"battery": {"overrides": {"max_charge_current": "0.2 C"}}},
          ["max_charge_current", "0.1 It"]),
+        ({"conditions": {"battery_temperature": "20 C"}}, ["battery_temperature", "degC"]),
+        ({"battery": {"cells_in_series": 6.0}}, ["cells_in_series", "whole number"]),
+        ({"battery": {"capacity_hours": float("nan")}}, ["capacity_hours", "finite"]),
+        ({"battery": {"capacity_hours": True}}, ["capacity_hours"]),
+        ({"battery": {"name": "x" * 300}}, ["battery.name", "200 or fewer"]),
+        ({"charger": {"max_voltage": "16 V", "max_current": "4 A", "min_current": "6 A"}},
+         ["charger", "min_current must be below max_current"]),
     ],
 )
 def test_bad_input_exits_2_with_file_field_and_fix(write_yaml, change, fragments):
@@ -106,6 +113,28 @@ def test_malformed_files_exit_2(tmp_path, content, fragment):
     result = run("plan", str(path))
     assert result.exit_code == 2
     _one_line_error(result, str(path), fragment)
+
+
+def test_duplicate_json_keys_exit_2(tmp_path):
+    path = tmp_path / "dup.json"
+    path.write_text('{"battery": {"name": "a", "name": "b"}}')
+    result = run("plan", str(path))
+    assert result.exit_code == 2
+    _one_line_error(result, "appears twice")
+
+
+def test_profiles_from_the_environment(tmp_path, write_yaml, monkeypatch):
+    from ruamel.yaml import YAML
+
+    yaml = YAML(typ="safe")
+    data = yaml.load((REPO / "profiles" / "gel.yaml").read_text())
+    data["id"] = "gel-shed"
+    (tmp_path / "p").mkdir()
+    with (tmp_path / "p" / "gel-shed.yaml").open("w") as stream:
+        yaml.dump(data, stream)
+    monkeypatch.setenv("CHARGEPLAN_PROFILES", str(tmp_path / "p"))
+    path = write_yaml(battery(battery={"chemistry": "gel-shed"}))
+    assert run("plan", str(path)).exit_code == 0
 
 
 def test_missing_field_exits_2(write_yaml):

@@ -185,3 +185,33 @@ def test_value_without_source_is_refused(tmp_path):
     with pytest.raises(InputError) as caught:
         ProfileSet([_user_profile(tmp_path, drop)], use_environment=False)
     assert "source" in str(caught.value)
+
+
+@pytest.mark.parametrize(
+    ("base", "change", "field"),
+    [
+        ("lifepo4", lambda d: d["temperature"].pop("cool_zone"), "temperature.cool_zone"),
+        ("nmc", lambda d: d["temperature"]["warm_zone"].__setitem__(
+            "voltage", {"value": "4.5 V/cell", "source": "a test value"}),
+         "temperature.warm_zone.voltage"),
+        ("agm", lambda d: d["desulfation"].__setitem__(
+            "current", {"value": "5 It", "source": "a test value"}), "desulfation.current"),
+        ("agm", lambda d: d["temperature"]["compensation"].__setitem__(
+            "reference", {"value": "60 degC", "source": "a test value"}),
+         "temperature.compensation"),
+        ("nmc", lambda d: d["rest_voltage"].__setitem__(
+            "highest_plausible", {"value": "4.8 V/cell", "source": "a test value"}),
+         "rest_voltage.highest_plausible"),
+    ],
+)
+def test_user_profile_cannot_loosen_zones_currents_or_compensation(tmp_path, base, change, field):
+    yaml = YAML(typ="safe")
+    data = yaml.load((REPO / "profiles" / f"{base}.yaml").read_text())
+    data["id"] = f"{base}-mine"
+    change(data)
+    path = tmp_path / "mine.yaml"
+    with path.open("w") as stream:
+        yaml.dump(data, stream)
+    with pytest.raises(InputError) as caught:
+        ProfileSet([path], use_environment=False)
+    assert (caught.value.field or "").startswith(field)

@@ -127,7 +127,7 @@ def _read_profiles() -> dict[str, dict[str, Any]]:
             "family": raw["family"],
             "vented": raw["vented"],
             "nominal_cell_v": _value(raw["nominal_cell_voltage"], "V/cell"),
-            "max_cell_v": _value(env["max_cell_voltage"], "V/cell"),
+            "cell_voltage_max_v": _value(env["max_cell_voltage"], "V/cell"),
             "max_it": _value(env["max_current"], "It"),
             "window_c": (
                 _value(env["charge_temperature_min"], "degC"),
@@ -212,7 +212,7 @@ def battery_files(
     overrides: dict[str, Any] = {}
     if draw(st.integers(0, 3)) == 0:
         floor_v = max(p["float_cell_v"] or 0.0, p["storage_cell_v"]) + 0.005
-        per_cell = draw(st.floats(floor_v, p["max_cell_v"]))
+        per_cell = draw(st.floats(floor_v, p["cell_voltage_max_v"]))
         if draw(st.booleans()):
             overrides["absorption_voltage"] = f"{_r(per_cell, 3)} V/cell"
         else:
@@ -346,7 +346,7 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
         found.append(f"planned at {b.temperature_c} degC, not the {temperature} degC given")
 
     # Voltage: the profile file's envelope, and the published per-cell maximum.
-    cell_max = min(p["max_cell_v"], PUBLISHED_MAX_CELL_V.get(chem, math.inf))
+    cell_max = min(p["cell_voltage_max_v"], PUBLISHED_MAX_CELL_V.get(chem, math.inf))
     v_max = cell_max * cells + FLOAT_NOISE
     # Current: the profile file's envelope C-rate, the channel's and the maker's maximum.
     limits = {"envelope": p["max_it"] * capacity}
@@ -440,7 +440,7 @@ def test_profile_files_stay_inside_published_limits():
     for chem, p in PROFILES.items():
         if chem in PUBLISHED_MAX_CELL_V:
             # cell handling guidelines (LFP 3.65 V/cell); BU-808 (NMC 4.20 V/cell)
-            assert p["max_cell_v"] <= PUBLISHED_MAX_CELL_V[chem], chem
+            assert p["cell_voltage_max_v"] <= PUBLISHED_MAX_CELL_V[chem], chem
         low, high = PUBLISHED_WINDOW_C[chem]  # BU-410 Table 1
         assert low <= p["window_c"][0] < p["window_c"][1] <= high, chem
         assert p["cool"] is not None, chem
@@ -494,7 +494,8 @@ def test_lead_acid_colder_never_gets_a_lower_charge_voltage(data, t1, t2):
         plans.append(outcome)
     cold, warm = plans
     chem, cells = data["battery"]["chemistry"], data["battery"]["cells_in_series"]
-    v_max = PROFILES[chem]["max_cell_v"] * cells + FLOAT_NOISE  # profiles/<chem>.yaml envelope
+    # profiles/<chem>.yaml envelope
+    v_max = PROFILES[chem]["cell_voltage_max_v"] * cells + FLOAT_NOISE
     for kind in ("absorption", "float", "storage_hold"):
         at_cold, at_warm = cold.stage(kind), warm.stage(kind)
         if kind == "absorption":
@@ -548,7 +549,7 @@ def test_setpoint_document_rounds_toward_safety_and_detects_edits(data):
             assert out["timer_s"] <= stage.timer_s + SCALED_NOISE
     # And in whole integers, never above the envelope read from the profile file.
     chem, cells = plan.battery.chemistry, plan.battery.cells_in_series
-    cell_mv = round(PROFILES[chem]["max_cell_v"] * 1000)  # profiles/<chem>.yaml envelope
+    cell_mv = round(PROFILES[chem]["cell_voltage_max_v"] * 1000)  # profiles/<chem>.yaml envelope
     for out in doc["stages"]:
         assert out["voltage_mV"] <= cell_mv * cells
     lock, doc_lock = plan.interlocks, doc["interlocks"]

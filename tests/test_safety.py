@@ -134,7 +134,8 @@ def test_maker_and_channel_limits_are_checked_from_the_input():
     from chargeplan.model.battery import BatteryFile
 
     data = battery(battery={"overrides": {"max_charge_current": "1 A"}},
-                   charger={"max_voltage": "15 V", "max_current": "4 A"})
+                   charger={"max_voltage": "15 V", "max_current": "4 A",
+                            "can_disable_high_voltage_stages": True})
     battery_file = BatteryFile.model_validate(data)
     plan = plan_of(data)
     assert safety.violations(plan, hard_envelope("agm"), battery_file) == []

@@ -39,8 +39,8 @@ class Settings:
     absorption_time_s: float
     equalization_time_s: float | None
     desulfation_time_s: float | None
-    coefficient_v_per_k_cell: float  # 0 for lithium
-    max_cell_v: float  # the profile envelope's (never above the built-in one)
+    coefficient_v_per_k_per_cell: float  # 0 for lithium
+    cell_voltage_max_v: float  # the profile envelope's (never above the built-in one)
 
 
 @dataclass(slots=True)
@@ -55,7 +55,7 @@ class Context:
     capacity_ah: float = 0.0
     temperature_c: float = 25.0
     soc_pct: float | None = None  # measured or given; None when unknown
-    rest_cell_v: float | None = None
+    rest_v_cell: float | None = None
     freezing_point_c: float | None = None
     target: str = "full"  # "full" or "storage"
     finish: str = "stop"  # "hold" or "stop"
@@ -79,7 +79,28 @@ class Context:
         return storage.duration_s if storage is not None else None
 
     @property
-    def soc_for_timers_pct(self) -> float:
+    def storage_planned(self) -> bool:
+        """The battery goes into storage long enough for the profile's storage plan."""
+        storage = self.storage_s
+        return storage is not None and storage >= self.profile.charge.storage_after.value
+
+    def charge_window(self) -> tuple[float, float]:
+        """The charge-temperature window (°C): the profile's, inside its envelope."""
+        p = self.profile
+        return (
+            max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value),
+            min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value),
+        )
+
+    def storage_soc_pct(self) -> float:
+        """The state of charge the storage voltage stands for, by the profile's table."""
+        from chargeplan.physics.ocv import soc_from_ocv
+
+        assert self.settings is not None
+        return float(soc_from_ocv(self.settings.storage_v_cell, self.profile.rest_voltage.table))
+
+    @property
+    def soc_assumed_pct(self) -> float:
         """The state of charge timers plan from: the known one, else flat (the longest)."""
         return self.soc_pct if self.soc_pct is not None else 0.0
 

@@ -76,25 +76,30 @@ class RuleSet:
         return len(self._rules)
 
     def get(self, key: str) -> Rule:
-        """A rule by id or name; an unknown key lists the valid ids."""
+        """A rule by id or name; an unknown key is an InputError that says where to look."""
         for candidate in self._rules.values():
             if key in (candidate.id, candidate.name):
                 return candidate
-        raise KeyError(f"no rule {key!r}; known: {', '.join(r.id for r in self)}")
+        from chargeplan.errors import InputError
+
+        raise InputError(f"no rule '{key}'", field="rule",
+                         fix="run 'chargeplan rules' for the list")
+
+    @staticmethod
+    def entry(r: Rule) -> dict[str, str]:
+        """One rule as a plain dict."""
+        return {
+            "id": r.id,
+            "name": r.name,
+            "phase": r.phase.name.lower(),
+            "statement": r.statement,
+            "detail": r.detail,
+            "source": r.source,
+        }
 
     def manifest(self) -> list[dict[str, str]]:
         """Every rule as a plain dict, in run order: feeds the docs and ``chargeplan rules``."""
-        return [
-            {
-                "id": r.id,
-                "name": r.name,
-                "phase": r.phase.name.lower(),
-                "statement": r.statement,
-                "detail": r.detail,
-                "source": r.source,
-            }
-            for r in self
-        ]
+        return [self.entry(r) for r in self]
 
 
 RULES = RuleSet()

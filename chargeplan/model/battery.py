@@ -64,6 +64,7 @@ class Battery(InputModel):
         default=None,
         ge=0.1,
         le=1000,
+        strict=True,
         description="the discharge time in hours the capacity is rated at (20 for C20)",
     )
     rating: Literal["actual", "lead-equivalent"] = "actual"

@@ -32,9 +32,10 @@ class ChargerChannel(InputModel):
         default=False, description="a battery temperature probe compensates setpoints live"
     )
     can_disable_high_voltage_stages: bool = Field(
-        default=True,
-        description="false when the channel runs equalization or desulfation that cannot be "
-        "switched off; such a channel is refused for lithium and gel",
+        default=False,
+        description="true only when the channel has no equalization or desulfation stage, or "
+        "can switch it off; left out, it is assumed false and the channel is refused for "
+        "lithium, gel and AGM",
     )
 
     @model_validator(mode="after")

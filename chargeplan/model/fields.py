@@ -38,6 +38,7 @@ class InputModel(_BaseModel):
         populate_by_name=True,
         frozen=True,
         str_strip_whitespace=True,
+        allow_inf_nan=False,
         defer_build=True,
     )
 
@@ -83,6 +84,9 @@ def quantity(
 
 
 
+TEXT_MAX = 200
+
+
 def _text(raw: object) -> str:
     if not isinstance(raw, str):
         raise ValueError("expected text")
@@ -91,13 +95,15 @@ def _text(raw: object) -> str:
         raise ValueError("is empty; write some text")
     if any(ord(ch) < 32 and ch not in "\t" for ch in value):
         raise ValueError("contains control characters; write plain text")
+    if len(value) > TEXT_MAX:
+        raise ValueError(f"is {len(value)} characters long; shorten it to {TEXT_MAX} or fewer")
     return value
 
 
 Text = Annotated[
     str,
     BeforeValidator(_text),
-    WithJsonSchema({"type": "string", "minLength": 1, "maxLength": 200}),
+    WithJsonSchema({"type": "string", "minLength": 1, "maxLength": TEXT_MAX}),
 ]
 
 
@@ -136,6 +142,8 @@ def _current_or_rate(raw: object) -> CurrentSpec:
     assert magnitude is not None
     if not magnitude > 0:
         raise ValueError(f"'{raw}' must be above zero")
+    if result.amperes is not None and result.amperes < 0.001:
+        raise ValueError(f"'{raw}' is below 1 mA, the smallest current a setpoint file carries")
     if result.amperes is not None and result.amperes > 10_000:
         raise ValueError(f"'{raw}' is above the largest sensible 10000 A")
     if result.c_rate is not None and result.c_rate > 20:

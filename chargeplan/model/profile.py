@@ -69,6 +69,7 @@ def _sourced(name: str, value_type: object, unit: str) -> type[Sourced]:
 
 
 CellVoltage = _sourced("SourcedCellVoltage", quantity("cell_voltage", ge=0.5, le=5.0), "V/cell")
+CellOffset = _sourced("SourcedCellOffset", quantity("cell_voltage", ge=0, le=0.5), "V/cell")
 CRate = _sourced("SourcedCRate", quantity("c_rate", ge=0.001, le=20), "It")
 Duration = _sourced("SourcedDuration", quantity("duration", ge=0, le=10 * 365 * 86_400), "s")
 Temp = _sourced("SourcedTemperature", quantity("temperature", ge=-60, le=100), "degC")
@@ -94,48 +95,36 @@ class Charge(InputModel):
     timer_margin: Factor  # type: ignore[valid-type]
 
 
-class Equalization(InputModel):
+class _OptionalStage(InputModel):
+    """An optional high-voltage stage: when allowed, every value it needs must be given."""
+
     allowed: bool
+    _needs: ClassVar[tuple[str, ...]] = ()
+
+    @model_validator(mode="after")
+    def _complete_when_allowed(self) -> _OptionalStage:
+        missing = [name for name in self._needs if getattr(self, name) is None]
+        if self.allowed and missing:
+            raise ValueError(f"an allowed stage needs {', '.join(missing)}")
+        return self
+
+
+class Equalization(_OptionalStage):
+    _needs = ("voltage", "current", "duration", "gravity_spread_trigger", "interval")
     voltage: CellVoltage | None = None  # type: ignore[valid-type]
     current: CRate | None = None  # type: ignore[valid-type]
     duration: Duration | None = None  # type: ignore[valid-type]
     gravity_spread_trigger: Gravity | None = None  # type: ignore[valid-type]
     interval: Duration | None = None  # type: ignore[valid-type]
 
-    @model_validator(mode="after")
-    def _complete_when_allowed(self) -> Equalization:
-        if self.allowed:
-            missing = [
-                name
-                for name in ("voltage", "current", "duration", "gravity_spread_trigger", "interval")
-                if getattr(self, name) is None
-            ]
-            if missing:
-                raise ValueError(f"allowed equalization needs {', '.join(missing)}")
-        return self
 
-
-class Desulfation(InputModel):
-    allowed: bool
+class Desulfation(_OptionalStage):
+    _needs = ("voltage", "current", "duration", "state_of_charge_below", "idle_after")
     voltage: CellVoltage | None = None  # type: ignore[valid-type]
     current: CRate | None = None  # type: ignore[valid-type]
     duration: Duration | None = None  # type: ignore[valid-type]
     state_of_charge_below: Percent | None = None  # type: ignore[valid-type]
     idle_after: Duration | None = None  # type: ignore[valid-type]
-
-    @model_validator(mode="after")
-    def _complete_when_allowed(self) -> Desulfation:
-        if self.allowed:
-            missing = [
-                name
-                for name in (
-                    "voltage", "current", "duration", "state_of_charge_below", "idle_after"
-                )
-                if getattr(self, name) is None
-            ]
-            if missing:
-                raise ValueError(f"allowed desulfation needs {', '.join(missing)}")
-        return self
 
 
 class Compensation(InputModel):
@@ -143,6 +132,12 @@ class Compensation(InputModel):
     reference: Temp  # type: ignore[valid-type]
     range_min: Temp  # type: ignore[valid-type]
     range_max: Temp  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _ordered(self) -> Compensation:
+        if not self.range_min.value < self.reference.value < self.range_max.value:
+            raise ValueError("compensation needs range_min < reference < range_max")
+        return self
 
 
 class Zone(InputModel):
@@ -162,7 +157,11 @@ class Temperature(InputModel):
 
 
 class RestVoltage(InputModel):
-    """Rested open-circuit voltage per cell: the state-of-charge table and plausibility."""
+    """Rested open-circuit voltage per cell: the state-of-charge table and plausibility.
+
+    ``freeze_check_offset`` (lead-acid whose table overstates its charge) is taken off a
+    reading before the freezing check, so that check errs toward a warmer freezing point.
+    """
 
     table: list[tuple[float, float]] = Field(
         description="[state of charge %, open-circuit V/cell] rows, rising"
@@ -170,6 +169,7 @@ class RestVoltage(InputModel):
     table_source: Source
     dead_below: CellVoltage  # type: ignore[valid-type]
     highest_plausible: CellVoltage  # type: ignore[valid-type]
+    freeze_check_offset: CellOffset | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _rising(self) -> RestVoltage:

@@ -28,7 +28,8 @@ __all__ = [
     "WarmZone",
 ]
 
-from chargeplan.render.setpoints import FORMAT, VERSION
+from chargeplan.model import SETPOINT_FORMAT as FORMAT
+from chargeplan.model import SETPOINT_VERSION as VERSION
 
 StageKindName = Literal[
     "precharge", "desulfation", "bulk", "absorption", "equalization", "float", "storage_hold"
@@ -37,7 +38,7 @@ Then = Literal["next", "stop"]
 
 
 class _Doc(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, defer_build=True)
 
 
 class VoltageExit(_Doc):
@@ -99,8 +100,13 @@ class SetpointInterlocks(_Doc):
 
 
 class CompensationTable(_Doc):
-    """Lead-acid compensation: add coefficient x cells x (T - reference) to compensated stages,
-    with T held inside range_min_dC..range_max_dC."""
+    """Lead-acid temperature compensation, for firmware with a battery temperature probe.
+
+    A compensated stage's ``voltage_mV`` is already right for ``planned_temperature_dC``.
+    At battery temperature T, firmware sets ``voltage_mV + coefficient_uV_per_K_per_cell x
+    cells_in_series x (clamp(T) - clamp(planned temperature)) / 1000``, where clamp holds a
+    temperature inside ``range_min_dC..range_max_dC``, and never above
+    ``interlocks.battery_voltage_max_mV``."""
 
     coefficient_uV_per_K_per_cell: int
     reference_dC: int

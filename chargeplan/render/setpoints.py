@@ -11,13 +11,11 @@ import json
 import math
 from typing import Any
 
+from chargeplan.model import SETPOINT_FORMAT as FORMAT
+from chargeplan.model import SETPOINT_VERSION as VERSION
 from chargeplan.plan import ChargePlan, Exit, ExitKind
 
 __all__ = ["FORMAT", "VERSION", "canonical_bytes", "compute_digest", "encode", "to_json"]
-
-#: The document's format name and version (see chargeplan.model.setpoints for its schema).
-FORMAT = "chargeplan-setpoints"
-VERSION = 1
 
 _NOISE = 1e-6  # float noise allowed before rounding (a millionth of the unit)
 

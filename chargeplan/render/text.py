@@ -5,7 +5,7 @@ from __future__ import annotations
 from functools import lru_cache
 from typing import Any
 
-from chargeplan.engine import fmt
+from chargeplan import fmt
 from chargeplan.plan import ChargePlan, Exit, ExitKind, Severity
 
 __all__ = ["describe_exit", "render_text"]

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from chargeplan.engine.context import Context
-from chargeplan.engine.fmt import amps, cell_volts, celsius, num, volts
 from chargeplan.engine.registry import rule
+from chargeplan.fmt import amps, cell_volts, celsius, num, volts
 from chargeplan.plan import Compensation, Exit, ExitKind, StageKind
 
 #: Lead-acid stages whose voltage follows the temperature compensation.
@@ -25,7 +25,7 @@ def compensation_lead_acid(ctx: Context) -> None:
         ctx.note("compensation", "none: lithium voltages are not temperature compensated")
         return
     assert ctx.settings is not None
-    k = ctx.settings.coefficient_v_per_k_cell
+    k = ctx.settings.coefficient_v_per_k_per_cell
     ref = comp.reference.value
     lo, hi = comp.range_min.value, comp.range_max.value
     t = ctx.temperature_c
@@ -36,7 +36,7 @@ def compensation_lead_acid(ctx: Context) -> None:
     if t_used != t:
         held = f" (battery at {celsius(t)}, held at the range limit {celsius(t_used)})"
     delta = k * n * (t_used - ref)
-    limit = ctx.settings.max_cell_v * n
+    limit = ctx.settings.cell_voltage_max_v * n
     for stage in ctx.stages:
         if stage.kind not in COMPENSATED:
             continue
@@ -68,18 +68,24 @@ def zones_cool_warm(ctx: Context) -> None:
     cool, warm = temp.cool_zone, temp.warm_zone
     if cool is not None and cool.current is not None and t < cool.boundary.value:
         cap_a = cool.current.value * cap
+        cut = False
         for stage in ctx.stages:
             if stage.current_a > cap_a:
+                cut = True
                 ctx.note(f"{stage.kind.value}.current",
                          f"{amps(cap_a)} = {num(cool.current.value)} It x {num(cap)} Ah (was "
                          f"{amps(stage.current_a)}): battery at {celsius(t)}, below "
                          f"{celsius(cool.boundary.value)}")
                 stage.current_a = cap_a
-        ctx.info(f"cool battery ({celsius(t)}): current held to {amps(cap_a)}; it takes longer")
+        if cut:
+            ctx.info(f"cool battery ({celsius(t)}): current held to {amps(cap_a)}; it takes "
+                     "longer")
     if warm is not None and warm.voltage is not None and t > warm.boundary.value:
         cap_v = warm.voltage.value * n
+        cut = False
         for stage in ctx.stages:
             if stage.voltage_v > cap_v:
+                cut = True
                 ctx.note(f"{stage.kind.value}.voltage",
                          f"{volts(cap_v)} = {cell_volts(warm.voltage.value)} x {n} (was "
                          f"{volts(stage.voltage_v)}): battery at {celsius(t)}, above "
@@ -89,5 +95,6 @@ def zones_cool_warm(ctx: Context) -> None:
                     Exit(e.kind, cap_v, e.then) if e.kind == ExitKind.VOLTAGE_REACHED else e
                     for e in stage.exits
                 ]
-        ctx.info(f"warm battery ({celsius(t)}): voltage held to {volts(cap_v)}; it ends a "
-                 "little short of full")
+        if cut:
+            ctx.info(f"warm battery ({celsius(t)}): voltage held to {volts(cap_v)}; it ends a "
+                     "little short of full")

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from chargeplan.engine.context import Context
-from chargeplan.engine.fmt import cell_volts, celsius, num, volts
 from chargeplan.engine.registry import rule
+from chargeplan.fmt import cell_volts, celsius, num, volts
 from chargeplan.physics.electrolyte import (
     freezing_point_tm5_1185,
     specific_gravity_bci,
@@ -146,7 +146,7 @@ def state_reading(ctx: Context) -> None:
         return
     v = state.rest_voltage_v
     per_cell = v / n
-    ctx.rest_cell_v = per_cell
+    ctx.rest_v_cell = per_cell
     if v < 0:
         raise ctx.refuse(
             f"the rest voltage reads {volts(v)}: the leads are reversed (or the battery is "
@@ -160,28 +160,43 @@ def state_reading(ctx: Context) -> None:
             + ("" if not ctx.lithium else " (BU-808a: never revive lithium cells that sat "
                "below 1.5 V/cell)")
         )
-    if per_cell > rest.highest_plausible.value:
-        cell_v = ctx.profile.nominal_cell_voltage.value
-        guess = round(v / cell_v)
+    empty_v, high_v = table[0][1], rest.highest_plausible.value
+    # the cell counts this reading fits as a rested battery of this chemistry
+    fits = [k for k in range(1, 2 * n + 2) if empty_v * k <= v <= high_v * k]
+
+    def counts(ks: list[int]) -> str:
+        return " or ".join(str(k) for k in ks[:3]) if ks else "no whole number of"
+
+    if per_cell > high_v:
         raise ctx.refuse(
             f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, more than a rested "
-            f"{n}-cell {ctx.profile.id} battery can read "
-            f"({cell_volts(rest.highest_plausible.value)} at most): it reads like {guess} cells; "
-            "check cells_in_series and the chemistry"
+            f"{n}-cell {ctx.profile.id} battery can read ({cell_volts(high_v)} at most): it "
+            f"reads like {counts([k for k in fits if k > n])} cells; check cells_in_series and "
+            "the chemistry"
         )
-    empty_v, full_v = table[0][1], table[-1][1]
-    if n >= 2 and per_cell < empty_v and empty_v <= v / (n - 1) <= full_v + 0.05:
-        if not state.cells_verified:
-            what = "a shorted cell" if not ctx.lithium else "a dead cell"
+    if per_cell < empty_v:
+        fewer = [k for k in fits if k < n]
+        if fewer and not state.cells_verified:
+            what = "a dead cell" if ctx.lithium else "a shorted cell"
             raise ctx.refuse(
-                f"the rest voltage {volts(v)} reads like {n - 1} healthy cells, not {n}: "
-                f"{what} is likely, and charging would overcharge the others; check each cell "
-                "(hydrometer or cell voltages); if all read alike the battery is only deeply "
-                "discharged: set state.cells_verified: true to plan a recovery"
+                f"the rest voltage {volts(v)} reads like {counts(fewer[::-1])} healthy cells, "
+                f"not {n}: {what} or the wrong cell count is likely, and charging would "
+                "overcharge the good cells; check cells_in_series, then each cell (hydrometer "
+                "or cell voltages); if all read alike the battery is only deeply discharged: "
+                "set state.cells_verified: true to plan a recovery"
+            )
+        if ctx.lithium and not state.cells_verified:
+            raise ctx.refuse(
+                f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, below the "
+                f"{cell_volts(empty_v)} of an empty {ctx.profile.id} cell: the pack is "
+                "over-discharged; have each cell measured: if all read alike and above "
+                f"{cell_volts(rest.dead_below.value)}, set state.cells_verified: true to plan a "
+                "pre-charge (BU-808a)"
             )
         ctx.warn(
-            f"rest voltage {volts(v)} could be one shorted cell; planned as deeply discharged "
-            "because state.cells_verified is true: watch for one cell gassing or heating early"
+            f"rest voltage {volts(v)} is below an empty {n}-cell battery's "
+            f"{volts(empty_v * n)}; planned as deeply discharged because state.cells_verified "
+            "is true: watch for one cell gassing or heating early"
         )
     soc = float(soc_from_ocv(per_cell, table))
     ctx.note(
@@ -203,10 +218,7 @@ def state_reading(ctx: Context) -> None:
 def temperature_window(ctx: Context) -> None:
     """Charge only inside the chemistry's charge-temperature window; lithium never below 0 °C."""
     t = ctx.temperature_c
-    low = max(ctx.profile.temperature.charge_min.value,
-              ctx.profile.envelope.charge_temperature_min.value)
-    high = min(ctx.profile.temperature.charge_max.value,
-               ctx.profile.envelope.charge_temperature_max.value)
+    low, high = ctx.charge_window()
     ctx.note("temperature", f"battery at {celsius(t)}; charge window {celsius(low)} to "
                             f"{celsius(high)}")
     if t < low:
@@ -249,7 +261,12 @@ def temperature_frozen(ctx: Context) -> None:
         gravity = float(state.specific_gravity)
         basis = f"specific gravity {gravity:.3f}"
     else:
-        soc = ctx.soc_for_timers_pct
+        soc = ctx.soc_assumed_pct
+        offset = ctx.profile.rest_voltage.freeze_check_offset
+        if ctx.rest_v_cell is not None and offset is not None:
+            # the table overstates this battery's charge: check freezing on a lower reading
+            soc = min(soc, float(soc_from_ocv(ctx.rest_v_cell - offset.value,
+                                              ctx.profile.rest_voltage.table)))
         gravity = float(specific_gravity_bci(soc))
         basis = (f"{num(soc, 0)} % state of charge (specific gravity {gravity:.3f})"
                  if ctx.soc_pct is not None
@@ -278,19 +295,18 @@ def temperature_frozen(ctx: Context) -> None:
       "40-50 % for storage, no trickle; lead-acid stored fully charged on float")
 def target(ctx: Context) -> None:
     """Charge to full, except lithium going into storage: charge that only to its storage level."""
-    storage = ctx.storage_s
-    after = ctx.profile.charge.storage_after.value
-    if storage is not None and storage >= after:
+    ctx.finish = "stop" if ctx.lithium else "hold"
+    if ctx.storage_planned:
+        assert ctx.storage_s is not None
         ctx.target = "storage" if ctx.lithium else "full"
-        ctx.finish = "stop" if ctx.lithium else "hold"
+        after = ctx.profile.charge.storage_after.value
         ctx.note(
             "target",
-            f"storage of {num(storage / 86400, 0)} d (at least {num(after / 86400, 0)} d): "
+            f"storage of {num(ctx.storage_s / 86400, 0)} d (at least {num(after / 86400, 0)} d): "
             + ("charge to the storage level, then stop"
                if ctx.lithium else "charge to full, then hold on the storage voltage"),
         )
     else:
         ctx.target = "full"
-        ctx.finish = "stop" if ctx.lithium else "hold"
         ctx.note("target", "charge to full, then " + ("stop (no float for lithium)"
                                                      if ctx.lithium else "float"))

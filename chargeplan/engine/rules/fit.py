@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from chargeplan.engine.context import Context
-from chargeplan.engine.fmt import amps, volts
 from chargeplan.engine.registry import rule
+from chargeplan.fmt import amps, volts
 from chargeplan.plan import HIGH_VOLTAGE_STAGES, Exit, ExitKind, StageKind
 
 #: Stages a plan can do without; a channel that cannot run them drops them with a warning.
@@ -45,7 +45,10 @@ def charger_high_voltage_stages(ctx: Context) -> None:
             f"which {ctx.profile.name} batteries must not get; use a channel that can switch "
             "them off"
         )
-    raise ctx.refuse(reason)
+    raise ctx.refuse(
+        reason + " (charger.can_disable_high_voltage_stages is false or not given: set it to "
+        "true only if the channel has no such stage or can switch it off)"
+    )
 
 
 @rule("CP402", "charger.voltage_range", source="common practice: a channel must reach every "

@@ -4,9 +4,8 @@ from __future__ import annotations
 
 from chargeplan.cautions import cautions_for
 from chargeplan.engine.context import Context
-from chargeplan.engine.fmt import amps, cell_volts, celsius, duration, num, volts
 from chargeplan.engine.registry import rule
-from chargeplan.physics.ocv import soc_from_ocv
+from chargeplan.fmt import amps, cell_volts, celsius, duration, num, volts
 from chargeplan.plan import ExitKind, Interlocks, StageKind
 
 #: Charge a healthy deeply discharged battery takes to pass its pre-charge threshold.
@@ -23,11 +22,8 @@ def timers_safety(ctx: Context) -> None:
     margin = ctx.profile.charge.timer_margin.value
     factor = ctx.profile.charge.charge_factor.value
     cap = ctx.capacity_ah
-    soc = ctx.soc_for_timers_pct
-    if ctx.target == "storage":
-        goal = float(soc_from_ocv(ctx.settings.storage_v_cell, ctx.profile.rest_voltage.table))
-    else:
-        goal = 100.0
+    soc = ctx.soc_assumed_pct
+    goal = ctx.storage_soc_pct() if ctx.target == "storage" else 100.0
     for stage in ctx.stages:
         if stage.kind == StageKind.PRECHARGE:
             ah = PRECHARGE_CHARGE_FRACTION * cap
@@ -58,8 +54,7 @@ def interlocks_limits(ctx: Context) -> None:
     """Stop outside the charge-temperature window, above the envelope voltage or the current."""
     p = ctx.profile
     n = ctx.cells
-    low = max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value)
-    high = min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value)
+    low, high = ctx.charge_window()
     why_low = "the charge window"
     if ctx.freezing_point_c is not None and ctx.freezing_point_c > low:
         low = ctx.freezing_point_c
@@ -67,7 +62,7 @@ def interlocks_limits(ctx: Context) -> None:
     if ctx.lithium:
         low = max(low, 0.0)
     assert ctx.settings is not None
-    cell_max = ctx.settings.max_cell_v
+    cell_max = ctx.settings.cell_voltage_max_v
     interlocks = Interlocks(
         charge_temperature_min_c=low,
         charge_temperature_max_c=high,

@@ -3,10 +3,13 @@
 from __future__ import annotations
 
 from chargeplan.engine.context import Context, Settings
-from chargeplan.engine.fmt import amps, cell_volts, duration, num, volts
 from chargeplan.engine.registry import rule
+from chargeplan.fmt import amps, cell_volts, duration, num, volts
 from chargeplan.physics.ocv import soc_from_ocv
 from chargeplan.plan import Exit, ExitKind, Stage, StageKind
+
+#: The highest state of charge a lithium storage voltage may stand for (BU-702: 40-50 %).
+STORAGE_LEVEL_MAX_PCT = 60.0
 
 
 @rule("CP201", "settings.overrides", source="common practice: the maker's datasheet overrides "
@@ -35,9 +38,9 @@ def settings_overrides(ctx: Context) -> None:
         absorption_time_s=c.absorption_time_max.value,
         equalization_time_s=p.equalization.duration.value if p.equalization.duration else None,
         desulfation_time_s=p.desulfation.duration.value if p.desulfation.duration else None,
-        coefficient_v_per_k_cell=(p.temperature.compensation.coefficient.value / 1000
+        coefficient_v_per_k_per_cell=(p.temperature.compensation.coefficient.value / 1000
                                   if p.temperature.compensation else 0.0),
-        max_cell_v=env_v,
+        cell_voltage_max_v=env_v,
     )
     ctx.note("settings", f"from profile '{p.id}': absorption {cell_volts(s.absorption_v_cell)}, "
                          f"bulk {amps(s.bulk_a)} ({num(c.bulk_current.value)} It x "
@@ -50,22 +53,40 @@ def settings_overrides(ctx: Context) -> None:
         given = getattr(o, name)
         if given is None:
             return
-        if attr == "float_v_cell" and "float" in p.envelope.forbidden_stages:
-            raise ctx.bad_input(field(name), f"{p.name} must never be floated",
+        if attr == "float_v_cell" and (ctx.lithium or "float" in p.envelope.forbidden_stages):
+            raise ctx.bad_input(field(name), f"{p.name} is never floated",
                                 "remove the float_voltage override")
         if attr == "equalization_v_cell" and not p.equalization.allowed:
             raise ctx.bad_input(field(name), f"{p.name} is not equalized by this profile",
                                 "remove the override, or use a profile that allows "
                                 "equalization")
         per_cell = given.cell_volts(n)
-        if per_cell > env_v + 1e-9:
+        nominal_v = p.nominal_cell_voltage.value
+        if not given.per_cell and per_cell < nominal_v:
             raise ctx.bad_input(
                 field(name),
-                f"{given} is {cell_volts(per_cell)}, above the {p.id} hard envelope's "
-                f"{cell_volts(env_v)}",
-                "check the datasheet value (per cell or per battery?); chargeplan never plans "
-                "above the envelope",
+                f"{given} is below the battery's {volts(nominal_v * n)} nominal voltage",
+                f"did you mean '{given.volts:g} V/cell'? (a battery voltage is for all "
+                f"{n} cells)",
             )
+        if per_cell > env_v + 1e-9:
+            shown = str(given) if given.per_cell else f"{given} ({cell_volts(per_cell)})"
+            hint = (f"did you mean '{given.volts:g} V' for the battery? "
+                    if given.per_cell and given.volts > 5 else "")
+            raise ctx.bad_input(
+                field(name),
+                f"{shown} is above the {p.id} hard envelope's {cell_volts(env_v)}",
+                f"{hint}check the datasheet value; chargeplan never plans above the envelope",
+            )
+        if attr == "storage_v_cell" and ctx.lithium:
+            level = float(soc_from_ocv(per_cell, p.rest_voltage.table))
+            if level > STORAGE_LEVEL_MAX_PCT:
+                raise ctx.bad_input(
+                    field(name),
+                    f"{given} stands for about {num(level, 0)} % charge, not a storage level",
+                    f"store lithium at 40-50 % (BU-702); use at most "
+                    f"{STORAGE_LEVEL_MAX_PCT:g} %",
+                )
         setattr(s, attr, per_cell)
         ctx.note(f"{stage}.voltage", f"maker's {cell_volts(per_cell)} ({given}) replaces the "
                                      "profile's value")
@@ -126,6 +147,8 @@ def settings_overrides(ctx: Context) -> None:
         value = getattr(s, attr)
         if value is not None and value > s.max_a:
             setattr(s, attr, s.max_a)
+            ctx.note(f"{attr.removesuffix('_a')}.current",
+                     f"held to the maximum charge current {amps(s.max_a)}")
     if o.absorption_time_s is not None:
         s.absorption_time_s = o.absorption_time_s
         ctx.note("absorption.duration", f"maker's {duration(o.absorption_time_s)}")
@@ -134,7 +157,7 @@ def settings_overrides(ctx: Context) -> None:
             raise ctx.bad_input(field("temperature_coefficient"),
                                 "lithium voltages are not temperature compensated",
                                 "remove the override")
-        s.coefficient_v_per_k_cell = o.temperature_coefficient_mv_per_k_per_cell / 1000
+        s.coefficient_v_per_k_per_cell = o.temperature_coefficient_mv_per_k_per_cell / 1000
         ctx.note("compensation", f"maker's {num(o.temperature_coefficient_mv_per_k_per_cell)} "
                                  "mV/K/cell")
     ctx.settings = s
@@ -156,19 +179,17 @@ def stages_precharge(ctx: Context) -> None:
     """
     s = _settings(ctx)
     threshold = s.precharge_below_v_cell * ctx.cells
-    if ctx.rest_cell_v is not None and ctx.rest_cell_v >= s.precharge_below_v_cell:
-        ctx.note("precharge", f"none: rest {cell_volts(ctx.rest_cell_v)} is above "
+    if ctx.rest_v_cell is not None and ctx.rest_v_cell >= s.precharge_below_v_cell:
+        ctx.note("precharge", f"none: rest {cell_volts(ctx.rest_v_cell)} is above "
                               f"{cell_volts(s.precharge_below_v_cell)}")
         return
-    if ctx.rest_cell_v is None and ctx.soc_pct is not None and ctx.soc_pct > 0:
+    if ctx.rest_v_cell is None and ctx.soc_pct is not None and ctx.soc_pct > 0:
         ctx.note("precharge", f"none: {num(ctx.soc_pct, 0)} % state of charge given")
-        return
-    if ctx.target == "storage" and ctx.soc_pct is not None and ctx.soc_pct >= 100:
         return
     why = (
         "the voltage is not known"
-        if ctx.rest_cell_v is None
-        else f"rest {cell_volts(ctx.rest_cell_v)} is below {cell_volts(s.precharge_below_v_cell)}"
+        if ctx.rest_v_cell is None
+        else f"rest {cell_volts(ctx.rest_v_cell)} is below {cell_volts(s.precharge_below_v_cell)}"
     )
     ctx.stages.append(
         Stage(
@@ -211,29 +232,23 @@ def stages_desulfation(ctx: Context) -> None:
                                 f"{num(after / 86400, 0)} d or more)")
         return
     s = _settings(ctx)
-    assert s.desulfation_v_cell is not None and s.desulfation_a is not None
-    assert s.desulfation_time_s is not None
-    ceiling = s.desulfation_v_cell * ctx.cells
-    ctx.stages.append(
-        Stage(
-            kind=StageKind.DESULFATION,
-            voltage_v=ceiling,
-            current_a=s.desulfation_a,
-            exits=[Exit(ExitKind.DURATION, s.desulfation_time_s)],
-            purpose="break down hardened sulfate at a small current before the normal charge",
-        )
-    )
-    ctx.note("desulfation.voltage", f"ceiling {volts(ceiling)} = {cell_volts(s.desulfation_v_cell)}"
-                                    f" x {ctx.cells}, at {amps(s.desulfation_a)} for "
-                                    f"{duration(s.desulfation_time_s)}, because "
-                                    f"{num(ctx.soc_pct, 0)} % for {num(idle / 86400, 0)} d")
+    _timed_stage(ctx, StageKind.DESULFATION, s.desulfation_v_cell, s.desulfation_a,
+                 s.desulfation_time_s, "break down hardened sulfate at a small current before "
+                 "the normal charge", f"{num(ctx.soc_pct, 0)} % for {num(idle / 86400, 0)} d")
     ctx.warn("desulfation planned: stay nearby, and stop if the battery gets hot or gasses "
              "hard")
 
 
-def _storage_soc(ctx: Context) -> float:
-    s = _settings(ctx)
-    return float(soc_from_ocv(s.storage_v_cell, ctx.profile.rest_voltage.table))
+def _timed_stage(ctx: Context, kind: StageKind, v_cell: float | None, current_a: float | None,
+                 duration_s: float | None, purpose: str, why: str) -> None:
+    """Append a current-limited stage with a voltage ceiling that ends on its duration."""
+    assert v_cell is not None and current_a is not None and duration_s is not None
+    ceiling = v_cell * ctx.cells
+    ctx.stages.append(Stage(kind=kind, voltage_v=ceiling, current_a=current_a,
+                            exits=[Exit(ExitKind.DURATION, duration_s)], purpose=purpose))
+    ctx.note(f"{kind.value}.voltage", f"ceiling {volts(ceiling)} = {cell_volts(v_cell)} x "
+                                      f"{ctx.cells}, at {amps(current_a)} for "
+                                      f"{duration(duration_s)}, because {why}")
 
 
 @rule("CP204", "stages.bulk_absorption", source="BU-403 Charging Lead Acid; BU-409 Charging "
@@ -248,7 +263,7 @@ def stages_bulk_absorption(ctx: Context) -> None:
     n = ctx.cells
     if ctx.target == "storage":
         hold_v = s.storage_v_cell * n
-        level = _storage_soc(ctx)
+        level = ctx.storage_soc_pct()
         if ctx.soc_pct is not None and ctx.soc_pct >= level:
             ctx.stages = [st for st in ctx.stages if st.kind != StageKind.PRECHARGE]
             ctx.info(
@@ -347,20 +362,9 @@ def stages_equalization(ctx: Context) -> None:
         ctx.note("equalization", "none: not warranted (no drift given, not due)")
         return
     s = _settings(ctx)
-    assert s.equalization_v_cell is not None and s.equalization_a is not None
-    assert s.equalization_time_s is not None
-    v = s.equalization_v_cell * ctx.cells
-    ctx.stages.append(
-        Stage(
-            kind=StageKind.EQUALIZATION,
-            voltage_v=v,
-            current_a=s.equalization_a,
-            exits=[Exit(ExitKind.DURATION, s.equalization_time_s)],
-            purpose="a controlled overcharge to bring drifted cells back together",
-        )
-    )
-    ctx.note("equalization.voltage", f"{volts(v)} = {cell_volts(s.equalization_v_cell)} x "
-                                     f"{ctx.cells} because " + "; ".join(reasons))
+    _timed_stage(ctx, StageKind.EQUALIZATION, s.equalization_v_cell, s.equalization_a,
+                 s.equalization_time_s, "a controlled overcharge to bring drifted cells back "
+                 "together", "; ".join(reasons))
     ctx.warn("equalization planned: heavy gassing; ventilate well, check the electrolyte level "
              "before and after, and stay nearby")
 
@@ -374,7 +378,7 @@ def stages_finish(ctx: Context) -> None:
         return
     s = _settings(ctx)
     storage = ctx.storage_s
-    if storage is not None and storage >= ctx.profile.charge.storage_after.value:
+    if ctx.storage_planned and storage is not None:
         v = s.storage_v_cell * ctx.cells
         ctx.stages.append(
             Stage(

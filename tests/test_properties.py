@@ -416,7 +416,9 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
         # table; the measured gravity first, else the state of charge, else flat.
         state = data.get("state", {})
         if "specific_gravity" in state:
-            gravity = float(state["specific_gravity"])
+            # US Army TM 5-4210-230-14&P-1: add 0.004 per 10 degF above 80 degF (a reading
+            # is corrected for the electrolyte's temperature before the table is used)
+            gravity = float(state["specific_gravity"]) + 0.0004 * (temperature * 1.8 + 32 - 80)
         else:
             if "state_of_charge" in state:
                 soc = _number(state["state_of_charge"])

@@ -92,6 +92,14 @@ class Context:
             min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value),
         )
 
+    def corrected_gravity(self) -> float:
+        """The hydrometer reading corrected to the tables' 80 °F, at the battery's temperature."""
+        from chargeplan.physics.electrolyte import specific_gravity_corrected
+
+        reading = self.battery_file.state.specific_gravity
+        assert reading is not None
+        return float(specific_gravity_corrected(reading, self.temperature_c))
+
     def storage_soc_pct(self) -> float:
         """The state of charge the storage voltage stands for, by the profile's table."""
         from chargeplan.physics.ocv import soc_from_ocv

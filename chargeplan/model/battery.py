@@ -99,7 +99,8 @@ class State(InputModel):
         default=None,
         ge=1.000,
         le=1.350,
-        description="hydrometer reading of the lowest cell, corrected to 25 degC (flooded only)",
+        description="hydrometer reading of the lowest cell, as read (flooded only); corrected "
+        "for the battery temperature by the planner",
     )
     specific_gravity_spread: float | None = Field(
         default=None,

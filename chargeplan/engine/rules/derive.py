@@ -133,12 +133,14 @@ def state_reading(ctx: Context) -> None:
         ctx.soc_pct = state.state_of_charge_pct
         ctx.note("state_of_charge", f"{num(ctx.soc_pct, 0)} %, as given")
     if state.specific_gravity is not None:
-        soc = float(state_of_charge_from_gravity_bci(state.specific_gravity))
+        gravity = ctx.corrected_gravity()
+        soc = float(state_of_charge_from_gravity_bci(gravity))
         ctx.soc_pct = soc if ctx.soc_pct is None else min(soc, ctx.soc_pct)
         ctx.note(
             "state_of_charge",
-            f"{num(soc, 0)} % from specific gravity {state.specific_gravity:.3f} "
-            "(Battery Council International table)",
+            f"{num(soc, 0)} % from specific gravity {state.specific_gravity:.3f} read at "
+            f"{celsius(ctx.temperature_c)}, {gravity:.3f} corrected to 26.7 °C "
+            "(TM 5-4210-230-14&P-1 correction; Battery Council International table)",
         )
     if state.rest_voltage_v is None:
         if ctx.soc_pct is None:
@@ -258,8 +260,8 @@ def temperature_frozen(ctx: Context) -> None:
         return
     state = ctx.battery_file.state
     if state.specific_gravity is not None:
-        gravity = float(state.specific_gravity)
-        basis = f"specific gravity {gravity:.3f}"
+        gravity = ctx.corrected_gravity()
+        basis = f"specific gravity {gravity:.3f} (corrected)"
     else:
         soc = ctx.soc_assumed_pct
         offset = ctx.profile.rest_voltage.freeze_check_offset

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import math
 import re
-from functools import cache
+from functools import cache, lru_cache
 from importlib.resources import files
 from typing import Any
 
@@ -71,6 +71,27 @@ def _reference(kind: str) -> Any:
     return Q_(1, DIMENSIONS[kind][0]).dimensionality
 
 
+_SIMPLE = re.compile(
+    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z°%][A-Za-z°%/*]*)\s*$"
+)
+
+
+@lru_cache(maxsize=256)
+def _conversion(unit_text: str, kind: str) -> tuple[float, float] | None:
+    """``value -> value * scale + shift`` into the kind's canonical unit, as pint converts
+    (affine, so offset units like degF are exact); None when pint will not say."""
+    try:
+        zero, one = Q_(0.0, unit_text), Q_(1.0, unit_text)
+        if zero.dimensionality != _reference(kind):
+            return None
+        canonical = DIMENSIONS[kind][0]
+        at_zero = float(zero.to(canonical).magnitude)
+        at_one = float(one.to(canonical).magnitude)
+    except Exception:
+        return None
+    return at_one - at_zero, at_zero
+
+
 def describe_dimension(kind: str) -> str:
     """'a voltage such as 12.6 V' for error messages."""
     _unit, example, label = DIMENSIONS[kind]
@@ -105,6 +126,16 @@ def parse_quantity(text: object, kind: str) -> float:
         raise ValueError(f"empty; write {wanted}")
     if _NUMBER_ONLY.match(raw):
         raise ValueError(f"'{raw}' has no unit; write {wanted}")
+    simple = _SIMPLE.match(raw)
+    if simple:  # "<number> <unit>": convert with the unit's cached affine map
+        number, unit_text = float(simple.group(1)), simple.group(2)
+        convert = _conversion(unit_text, kind)
+        if convert is not None:
+            scale, shift = convert
+            magnitude = number * scale + shift
+            if not math.isfinite(magnitude):
+                raise ValueError(f"'{raw}' is not a finite number; write {wanted}")
+            return magnitude
     try:
         quantity = Q_(raw)
     except pint.UndefinedUnitError as error:

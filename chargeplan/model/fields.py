@@ -39,7 +39,6 @@ class InputModel(_BaseModel):
         frozen=True,
         str_strip_whitespace=True,
         allow_inf_nan=False,
-        defer_build=True,
     )
 
 

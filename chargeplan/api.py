@@ -17,8 +17,11 @@ def load_battery_file(path: str | Path) -> BatteryFile:
     return validate(BatteryFile, read_mapping(path, what="battery"), file=str(path))
 
 
-def plan_file(path: str | Path, *, profiles: ProfileSet | None = None) -> ChargePlan:
-    """Plan the battery described in ``path``.
+def plan_file(
+    path: str | Path, *, profiles: ProfileSet | None = None, estimate: bool = True
+) -> ChargePlan:
+    """Plan the battery described in ``path``; with ``estimate``, also simulate the charge
+    (stage times, Ah and Wh, and safety timers tightened to the estimate).
 
     Examples
     --------
@@ -31,4 +34,9 @@ def plan_file(path: str | Path, *, profiles: ProfileSet | None = None) -> Charge
     from chargeplan.engine.planner import plan_charge
 
     battery_file = load_battery_file(path)
-    return plan_charge(battery_file, profiles=profiles, file=str(path))
+    plan = plan_charge(battery_file, profiles=profiles, file=str(path))
+    if estimate:
+        from chargeplan.estimate import estimate_plans
+
+        estimate_plans([plan], profiles=profiles)
+    return plan

@@ -126,6 +126,84 @@ def demo(
             typer.echo(render_text(plan_file(path), explain=explain))
 
 
+@app.command()
+def simulate(
+    file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
+    csv: Annotated[Path | None, typer.Option("--csv", help="write the time series here")] = None,
+    force: Annotated[bool, typer.Option(help="replace the CSV file if it exists")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Simulate the plan's charge: a summary, and the time series as CSV for plotting."""
+    with _errors():
+        from chargeplan.simulation import simulate_file
+
+        run = simulate_file(file, profiles=_profile_set(profiles))
+        typer.echo(run.summary())
+        if csv is not None:
+            from chargeplan.render.write import write_atomic
+
+            write_atomic(csv, run.csv(), force=force)
+            typer.echo(f"wrote {csv} ({run.rows} rows)", err=True)
+
+
+@app.command()
+def state(
+    chemistry: Annotated[str, typer.Option("--chemistry", help="a profile id")],
+    rest_voltage: Annotated[str | None, typer.Option("--rest-voltage",
+                                                     help="e.g. 12.31V")] = None,
+    specific_gravity: Annotated[float | None, typer.Option("--specific-gravity",
+                                                           help="hydrometer, as read")] = None,
+    temperature: Annotated[str | None, typer.Option("--temperature",
+                                                    help="battery temperature, e.g. 5degC")] = None,
+    cells: Annotated[int | None, typer.Option("--cells", help="cells in series")] = None,
+    nominal_voltage: Annotated[str | None, typer.Option("--nominal-voltage")] = None,
+    rested_for: Annotated[str | None, typer.Option("--rested-for",
+                                                   help="time since charging, e.g. 30min")] = None,
+    profiles: ProfilePaths = None,
+) -> None:
+    """State of charge from a rest voltage or a hydrometer reading."""
+    with _errors():
+        from chargeplan.readings import state_of_charge
+        from chargeplan.units import option_quantity
+
+        reading = state_of_charge(
+            chemistry,
+            rest_voltage_v=option_quantity(rest_voltage, "voltage", "--rest-voltage"),
+            specific_gravity=specific_gravity,
+            temperature_c=option_quantity(temperature, "temperature", "--temperature"),
+            cells=cells,
+            nominal_voltage_v=option_quantity(nominal_voltage, "voltage", "--nominal-voltage"),
+            rested_s=option_quantity(rested_for, "duration", "--rested-for"),
+            profiles=_profile_set(profiles),
+        )
+        typer.echo(f"state of charge: about {reading.state_of_charge_pct:.0f} % "
+                   f"({reading.chemistry})")
+        typer.echo(f"from: {reading.basis}")
+        for note in reading.notes:
+            typer.echo(f"note: {note}")
+
+
+@app.command()
+def runtime(
+    file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
+    load: Annotated[str, typer.Option("--load", help="a current (8.3A) or a power (100W)")],
+    profiles: ProfilePaths = None,
+) -> None:
+    """How long a load takes to flatten the battery from its present state."""
+    with _errors():
+        from chargeplan.api import load_battery_file
+        from chargeplan.fmt import duration
+        from chargeplan.readings import runtime as estimate_runtime
+
+        result = estimate_runtime(load_battery_file(file), load,
+                                  profiles=_profile_set(profiles), file=str(file))
+        typer.echo(f"about {duration(result.hours * 3600)} at {result.current_a:.2f} A from "
+                   f"{result.state_of_charge_pct:.0f} % (Peukert's law, k = "
+                   f"{result.exponent:g}, rated over {result.rated_hours:g} h)")
+        for note in result.notes:
+            typer.echo(f"note: {note}")
+
+
 @app.command("profiles")
 def profiles_command(
     profile_id: Annotated[str | None, typer.Argument(help="show one profile in full")] = None,

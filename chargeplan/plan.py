@@ -20,6 +20,7 @@ __all__ = [
     "PlannedBattery",
     "Severity",
     "Stage",
+    "StageEstimate",
     "StageKind",
     "TraceEntry",
 ]
@@ -66,6 +67,17 @@ class Exit:
         return {"voltage_reached": "V", "current_below": "A", "duration": "s"}[self.kind]
 
 
+@dataclass(frozen=True, slots=True)
+class StageEstimate:
+    """What the physics simulation expects of a stage (chargeplan.estimate)."""
+
+    duration_s: float | None  # None for a hold stage (it runs until disconnected)
+    charge_ah: float  # for a hold stage: per day
+    energy_wh: float  # for a hold stage: per day
+    end_current_a: float  # for a hold stage: its standing current after a day
+    per_day: bool = False
+
+
 @dataclass(slots=True)
 class Stage:
     kind: StageKind
@@ -75,6 +87,7 @@ class Stage:
     timer_s: float | None = None  # safety timer: still running then = fault, stop charging
     purpose: str = ""
     compensated: bool = False  # voltage follows the temperature compensation
+    estimate: StageEstimate | None = None  # set by chargeplan.estimate
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,6 +158,18 @@ class ChargePlan:
     trace: list[TraceEntry]
     cautions: list[str]
     finish: str  # what happens after the last stage: "hold" or "stop"
+    estimated: bool = False  # the stages carry physics estimates
+
+    def total_estimate(self) -> tuple[float, float, float] | None:
+        """(seconds, Ah, Wh) of the stages that end, or None before estimation."""
+        if not self.estimated:
+            return None
+        timed = [s.estimate for s in self.stages if s.estimate and not s.estimate.per_day]
+        return (
+            sum(e.duration_s or 0.0 for e in timed),
+            sum(e.charge_ah for e in timed),
+            sum(e.energy_wh for e in timed),
+        )
 
     def stage(self, kind: StageKind | str) -> Stage | None:
         """The first stage of ``kind``, or None."""

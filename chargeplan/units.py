@@ -20,7 +20,14 @@ from typing import Any
 
 import pint
 
-__all__ = ["DIMENSIONS", "Q_", "describe_dimension", "parse_quantity", "ureg"]
+__all__ = [
+    "DIMENSIONS",
+    "Q_",
+    "describe_dimension",
+    "option_quantity",
+    "parse_quantity",
+    "ureg",
+]
 
 
 
@@ -61,6 +68,8 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "coefficient": ("mV/K/cell", "-3 mV/K/cell", "a temperature coefficient per cell"),
     "power": ("W", "100 W", "a power"),
     "resistance": ("ohm", "10 mohm", "a resistance"),
+    "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
+    "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),
 }
 
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
@@ -161,3 +170,16 @@ def parse_quantity(text: object, kind: str) -> float:
     if not math.isfinite(magnitude):
         raise ValueError(f"'{raw}' is not a finite number; write {wanted}")
     return magnitude
+
+
+def option_quantity(text: str | None, kind: str, option: str) -> float | None:
+    """A command-line option's quantity, or None; a bad one is an InputError naming it."""
+    if text is None:
+        return None
+    from chargeplan.errors import InputError
+
+    try:
+        return parse_quantity(text, kind)
+    except ValueError as error:
+        problem, _, fix = str(error).partition("; ")
+        raise InputError(problem, field=option, fix=fix or None) from None

@@ -75,6 +75,17 @@ Duration = _sourced("SourcedDuration", quantity("duration", ge=0, le=10 * 365 * 
 Temp = _sourced("SourcedTemperature", quantity("temperature", ge=-60, le=100), "degC")
 Coefficient = _sourced("SourcedCoefficient", quantity("coefficient", ge=-10, le=0), "mV/K/cell")
 Percent = _sourced("SourcedPercent", quantity("fraction", ge=0, le=100), "%")
+ResistanceCapacity = _sourced(
+    "SourcedResistanceCapacity", quantity("resistance_capacity", ge=0.0001, le=20), "ohm*Ah"
+)
+CurrentPerAh = _sourced(
+    "SourcedCurrentPerAh", quantity("current_per_capacity", ge=0.001, le=1000), "mA/Ah"
+)
+TempDifference = _sourced(
+    "SourcedTemperatureDifference", quantity("temperature_difference", ge=1, le=100), "K"
+)
+Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=0.1, le=3.0)], "")
+Efficiency = _sourced("SourcedEfficiency", Annotated[float, Field(gt=0.5, le=1.0)], "")
 Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0)], "")
 Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")
 
@@ -184,6 +195,35 @@ class RestVoltage(InputModel):
         return self
 
 
+class Gassing(InputModel):
+    """Lead-acid gas current of a full battery at two voltages; exponential between them."""
+
+    float_voltage: CellVoltage  # type: ignore[valid-type]
+    float_current: CurrentPerAh  # type: ignore[valid-type]
+    boost_voltage: CellVoltage  # type: ignore[valid-type]
+    boost_current: CurrentPerAh  # type: ignore[valid-type]
+    doubling: TempDifference  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _rising(self) -> Gassing:
+        if not (self.boost_voltage.value > self.float_voltage.value
+                and self.boost_current.value > self.float_current.value):
+            raise ValueError("boost_voltage and boost_current must be above the float ones")
+        return self
+
+
+class Physics(InputModel):
+    """The equivalent-circuit charge model's parameters, per cell (see physics/charge.py)."""
+
+    ohmic_resistance: ResistanceCapacity  # type: ignore[valid-type]
+    acceptance_resistance: ResistanceCapacity  # type: ignore[valid-type]
+    acceptance_exponent: Exponent  # type: ignore[valid-type]
+    resistance_doubling: TempDifference  # type: ignore[valid-type]
+    coulombic_efficiency: Efficiency  # type: ignore[valid-type]
+    peukert_exponent: Exponent  # type: ignore[valid-type]
+    gassing: Gassing | None = None
+
+
 class Envelope(InputModel):
     """The hard limits no plan may cross; safety.verify checks every plan against them."""
 
@@ -209,6 +249,7 @@ class Profile(InputModel):
     desulfation: Desulfation
     temperature: Temperature
     rest_voltage: RestVoltage
+    physics: Physics
     envelope: Envelope
     cautions: list[str] = Field(default_factory=list)
 
@@ -235,6 +276,8 @@ class Profile(InputModel):
                     raise ValueError(f"{stage} is never allowed for lithium; set allowed: false")
         elif t.compensation is None:
             raise ValueError("lead-acid profiles need temperature.compensation")
+        elif self.physics.gassing is None:
+            raise ValueError("lead-acid profiles need physics.gassing")
         return self
 
     def sourced_values(self) -> list[tuple[str, str, str]]:

@@ -77,6 +77,16 @@ class SetpointStage(_Doc):
     )
     compensated: bool = Field(description="the voltage follows temperature_compensation")
     exits: list[StageExit] = Field(description="the stage ends on whichever comes first")
+    estimated_duration_s: int | None = Field(
+        ge=0, description="the physics estimate of the stage's time; null for a stage that "
+        "holds until disconnected, or when not estimated"
+    )
+    charge_mAh: int | None = Field(
+        ge=0, description="estimated charge in (a holding stage: per day)"
+    )
+    energy_mWh: int | None = Field(
+        ge=0, description="estimated energy in (a holding stage: per day)"
+    )
 
 
 class CoolZone(_Doc):
@@ -124,10 +134,13 @@ class DocumentBattery(_Doc):
 
 
 class SetpointDocument(_Doc):
-    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 1)."""
+    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 2).
+
+    Version 2 added each stage's estimates (``estimated_duration_s``, ``charge_mAh``,
+    ``energy_mWh``)."""
 
     format: Literal["chargeplan-setpoints"]
-    version: Literal[1]
+    version: Literal[2]
     generator: str
     battery: DocumentBattery
     cells_in_series: int = Field(ge=1)

@@ -13,7 +13,7 @@ from typing import Any
 
 from chargeplan.model import SETPOINT_FORMAT as FORMAT
 from chargeplan.model import SETPOINT_VERSION as VERSION
-from chargeplan.plan import ChargePlan, Exit, ExitKind
+from chargeplan.plan import ChargePlan, Exit, ExitKind, Stage
 
 __all__ = ["FORMAT", "VERSION", "canonical_bytes", "compute_digest", "encode", "to_json"]
 
@@ -36,6 +36,17 @@ def _exit(e: Exit) -> dict[str, Any]:
     if e.kind == ExitKind.CURRENT_BELOW:
         return {"condition": e.kind.value, "current_mA": up(e.value, 1000), "then": e.then}
     return {"condition": e.kind.value, "duration_s": down(e.value, 1), "then": e.then}
+
+
+def _estimate(stage: Stage) -> dict[str, int | None]:
+    e = stage.estimate
+    if e is None:
+        return {"estimated_duration_s": None, "charge_mAh": None, "energy_mWh": None}
+    return {
+        "estimated_duration_s": None if e.duration_s is None else round(e.duration_s),
+        "charge_mAh": round(e.charge_ah * 1000),
+        "energy_mWh": round(e.energy_wh * 1000),
+    }
 
 
 def canonical_bytes(document: dict[str, Any]) -> bytes:
@@ -78,6 +89,7 @@ def encode(plan: ChargePlan) -> dict[str, Any]:
                 "timer_s": None if stage.timer_s is None else down(stage.timer_s, 1),
                 "compensated": stage.compensated,
                 "exits": [_exit(e) for e in stage.exits],
+                **_estimate(stage),
             }
             for stage in plan.stages
         ],

@@ -43,7 +43,7 @@ def arrays_for(
     grids: list[np.ndarray] = []
     cols = {name: np.zeros(n) for name in (
         "capacity_ah", "cells", "table_index", "ohmic_ohm_ah", "acceptance_ohm_ah",
-        "acceptance_exponent", "resistance_doubling_k", "coulombic_efficiency",
+        "resistance_doubling_k", "coulombic_efficiency",
         "gas_a_per_ah", "gas_voltage_v", "gas_slope_v", "gas_doubling_k", "temperature_c",
         "soc_start")}
     present = np.zeros((n, width), dtype=bool)
@@ -65,7 +65,6 @@ def arrays_for(
         cols["table_index"][row] = tables[profile.id]
         cols["ohmic_ohm_ah"][row] = ph.ohmic_resistance.value
         cols["acceptance_ohm_ah"][row] = ph.acceptance_resistance.value
-        cols["acceptance_exponent"][row] = ph.acceptance_exponent.value
         cols["resistance_doubling_k"][row] = ph.resistance_doubling.value
         cols["coulombic_efficiency"][row] = ph.coulombic_efficiency.value
         if ph.gassing is not None:
@@ -101,7 +100,6 @@ def arrays_for(
         tables=np.vstack(grids),
         ohmic_ohm_ah=cols["ohmic_ohm_ah"],
         acceptance_ohm_ah=cols["acceptance_ohm_ah"],
-        acceptance_exponent=cols["acceptance_exponent"],
         resistance_doubling_k=cols["resistance_doubling_k"],
         coulombic_efficiency=cols["coulombic_efficiency"],
         gas_a_per_ah=cols["gas_a_per_ah"],

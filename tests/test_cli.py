@@ -224,3 +224,69 @@ def test_user_profile_folder(tmp_path, write_yaml):
     assert result.exit_code == 0, result.output
     absorption = next(s for s in json.loads(result.stdout)["stages"] if s["kind"] == "absorption")
     assert absorption["voltage_mV"] == 14400
+
+
+def test_plan_shows_estimates_and_json_carries_them(write_yaml):
+    path = write_yaml(battery(state={"state_of_charge": "40 %"}))
+    text = run("plan", str(path))
+    assert text.exit_code == 0
+    assert "Estimate: about" in text.stdout and "estimate: about" in text.stdout
+    doc = json.loads(run("plan", str(path), "-f", "json").stdout)
+    Draft202012Validator(SCHEMA).validate(doc)
+    bulk = next(s for s in doc["stages"] if s["kind"] == "bulk")
+    assert bulk["estimated_duration_s"] > 0 and bulk["charge_mAh"] > 0
+    assert bulk["timer_s"] >= bulk["estimated_duration_s"]
+
+
+def test_simulate_writes_the_time_series(write_yaml, tmp_path):
+    path = write_yaml(battery(battery={"chemistry": "lifepo4", "capacity": "20 Ah"},
+                              state={"rest_voltage": "13.0 V"}))
+    out = tmp_path / "run.csv"
+    result = run("simulate", str(path), "--csv", str(out))
+    assert result.exit_code == 0, result.output
+    assert "total" in result.stdout
+    lines = out.read_text().splitlines()
+    assert lines[0] == "time_s,stage,voltage_V,current_A,state_of_charge_pct"
+    assert len(lines) > 50 and lines[1].split(",")[1] == "bulk"
+
+
+def test_state_from_rest_voltage_and_gravity():
+    # Battery Council International table: 12.24 V rested is 50 %; 1.225 is 75 %
+    result = run("state", "--rest-voltage", "12.24V", "--chemistry", "flooded")
+    assert result.exit_code == 0 and "about 50 %" in result.stdout
+    result = run("state", "--specific-gravity", "1.225", "--chemistry", "flooded",
+                 "--temperature", "80degF", "--rested-for", "30min")
+    assert result.exit_code == 0 and "about 75 %" in result.stdout
+    assert "reads high" in result.stdout
+    # US Army TM 5-4210-230-14&P-1: 1.245 read at 30 degF is 1.225 at 80 degF -> 75 %
+    result = run("state", "--specific-gravity", "1.245", "--chemistry", "flooded",
+                 "--temperature", "30degF")
+    assert result.exit_code == 0 and "about 75 %" in result.stdout
+
+
+@pytest.mark.parametrize(
+    ("args", "fragment"),
+    [
+        (["--specific-gravity", "1.4", "--chemistry", "flooded"], "--specific-gravity"),
+        (["--specific-gravity", "1.2", "--chemistry", "agm"], "sealed"),
+        (["--rest-voltage", "31V", "--chemistry", "flooded", "--cells", "6"], "outside"),
+        (["--rest-voltage", "12.3", "--chemistry", "flooded"], "has no unit"),
+        (["--rest-voltage", "12.3V", "--chemistry", "nicad"], "unknown chemistry"),
+    ],
+)
+def test_state_bad_input_exits_2(args, fragment):
+    result = run("state", *args)
+    assert result.exit_code == 2
+    _one_line_error(result, fragment)
+
+
+def test_runtime_with_a_lamp(write_yaml):
+    path = write_yaml(battery(battery={"chemistry": "flooded", "capacity": "9 Ah",
+                                       "capacity_hours": 20},
+                              state={"state_of_charge": "100 %"}))
+    result = run("runtime", str(path), "--load", "100W")
+    assert result.exit_code == 0
+    assert "8.33 A" in result.stdout and "Peukert" in result.stdout
+    bad = run("runtime", str(path), "--load", "12 V")
+    assert bad.exit_code == 2
+    _one_line_error(bad, "--load", "100 W")

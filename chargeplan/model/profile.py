@@ -217,7 +217,6 @@ class Physics(InputModel):
 
     ohmic_resistance: ResistanceCapacity  # type: ignore[valid-type]
     acceptance_resistance: ResistanceCapacity  # type: ignore[valid-type]
-    acceptance_exponent: Exponent  # type: ignore[valid-type]
     resistance_doubling: TempDifference  # type: ignore[valid-type]
     coulombic_efficiency: Efficiency  # type: ignore[valid-type]
     peukert_exponent: Exponent  # type: ignore[valid-type]

@@ -2,14 +2,15 @@
 
 Per cell, the battery is an open-circuit voltage that follows its state of charge
 (the profile's rested table), an ohmic resistance that rises in the cold, and a
-charge-acceptance branch whose conductance falls as the cell fills
-(``(1 - soc)^p / R_acc``). Lead-acid adds a gassing side reaction that carries
+polarization resistance of Shepherd's form that rises as the cell fills,
+``R_acc * (soc + 0.05) / (1 - soc)`` (C. M. Shepherd, J. Electrochem. Soc. 112, 1965;
+the 0.05 keeps it finite when empty). Lead-acid adds a gassing side reaction that carries
 current without storing charge: exponential in voltage between the two published
 points of IEC 62485-2 (float and boost gas currents of a full battery), doubling per
 10 K. So lead-acid losses rise toward full and lithium's stay near 1 %::
 
     V_terminal = x + I * R_ohm
-    I          = (x - OCV(soc)) * (1 - soc)^p / R_acc  +  G * exp((x - V_g) / b)
+    I          = (x - OCV(soc)) * (1 - soc) / (R_acc * (soc + 0.05))  +  G * exp((x - V_g) / b)
     d soc / dt = eta * I_main / capacity
 
 Each battery runs its own stages: the charger is a current-limited voltage source
@@ -17,7 +18,7 @@ Each battery runs its own stages: the charger is a current-limited voltage sourc
 itself, and a stage ends on its own exits (voltage reached, current below, duration).
 Float and a lead-acid storage hold have no exit; they are run for a day to give
 their standing current. All batteries step together as numpy arrays, each with its
-own time step (0.2 % of capacity per step); a finished battery stops contributing.
+own time step (1 % of capacity per step, less near full); a finished battery stops contributing.
 One battery is the case N = 1.
 """
 
@@ -39,13 +40,18 @@ __all__ = [
 #: How long a stage without exits (float, lead-acid storage hold) is run to estimate it.
 HOLD_WINDOW_S = 86_400.0
 #: Charge moved per time step, as a fraction of capacity.
-SOC_STEP = 0.002
+SOC_STEP = 0.01
+#: ... but at most this share of the charge still missing (steps shrink toward full).
+TAIL_STEP = 0.1
 DT_MIN_S = 1.0
-DT_MAX_S = 600.0
+DT_MAX_S = 1800.0
+HOLD_DT_MAX_S = 3600.0
 #: A stage still running after this many steps is reported as not converged.
 MAX_STEPS = 200_000
+#: Keeps the polarization resistance finite for an empty cell (model choice).
+SHEPHERD_OFFSET = 0.05
 _GRID = 101  # state-of-charge grid points of the OCV tables (0, 1, ..., 100 %)
-_NEWTON = 8
+_NEWTON = 3
 
 
 def ocv_grid(table: list[tuple[float, float]] | np.ndarray) -> np.ndarray:
@@ -64,7 +70,6 @@ class CellParameters:
     tables: np.ndarray  # (T, 101) OCV per cell on the state-of-charge grid
     ohmic_ohm_ah: np.ndarray
     acceptance_ohm_ah: np.ndarray
-    acceptance_exponent: np.ndarray
     resistance_doubling_k: np.ndarray
     coulombic_efficiency: np.ndarray
     gas_a_per_ah: np.ndarray  # gas current of a full battery at gas_voltage_v (0: none)
@@ -102,127 +107,160 @@ class SimulationResult:
     series: dict[str, np.ndarray] = field(default_factory=dict)  # N = 1 with record=True
 
 
-def _ocv(p: CellParameters, rows: np.ndarray, soc: np.ndarray) -> np.ndarray:
-    position = np.clip(soc, 0.0, 1.0) * (_GRID - 1)
-    low = np.minimum(position.astype(np.int64), _GRID - 2)
-    frac = position - low
-    table = p.tables[p.table_index[rows]]
-    take = np.arange(rows.size)
-    return table[take, low] * (1.0 - frac) + table[take, low + 1] * frac
-
-
 def simulate_charge(
     p: CellParameters, s: StageArrays, *, record: bool = False
 ) -> SimulationResult:
-    """Run every battery through its stages; see the module docstring for the model."""
-    n, stages = s.present.shape
-    duration = np.zeros((n, stages))
-    charge = np.zeros((n, stages))
-    energy = np.zeros((n, stages))
-    end_current = np.full((n, stages), np.nan)
-    end_soc = np.full((n, stages), np.nan)
-    held = ~np.isfinite(s.exit_duration_s) & np.isnan(s.exit_voltage_v_cell) & np.isnan(
-        s.exit_current_a
-    ) & s.present
-    converged = np.ones(n, dtype=bool)
+    """Run every battery through its stages; see the module docstring for the model.
 
-    soc = np.clip(p.soc_start.astype(float), 0.0, 1.0)
-    stage = np.zeros(n, dtype=np.int64)
-    t_stage = np.zeros(n)
-    steps = np.zeros(n, dtype=np.int64)
-    t_clock = 0.0
+    The active batteries' state lives in compacted arrays (position i is battery
+    ``rows[i]``), so each step is plain element-wise numpy with no gathers; arrays are
+    compacted again only when batteries finish.
+    """
+    n, width = s.present.shape
+    duration = np.zeros((n, width))
+    charge = np.zeros((n, width))
+    energy = np.zeros((n, width))
+    end_current = np.full((n, width), np.nan)
+    end_soc = np.full((n, width), np.nan)
+    held_all = (~np.isfinite(s.exit_duration_s) & np.isnan(s.exit_voltage_v_cell)
+                & np.isnan(s.exit_current_a) & s.present)
+    converged = s.present[:, 0].copy()
     series: dict[str, list[float]] = {"time_s": [], "stage": [], "voltage_v": [],
                                       "current_a": [], "soc": []}
 
-    # constants per battery
-    cap = p.capacity_ah.astype(float)
-    temperature = np.clip(p.temperature_c.astype(float), -30.0, 60.0)
-    r_ohm = p.ohmic_ohm_ah / cap * np.exp2((25.0 - temperature) / p.resistance_doubling_k)
-    r_acc = p.acceptance_ohm_ah / cap * np.exp2((25.0 - temperature) / p.resistance_doubling_k)
-    gas = cap * p.gas_a_per_ah * np.exp2((temperature - 25.0) / p.gas_doubling_k)
-    has_gas = gas > 0
-    slope = np.where(has_gas, p.gas_slope_v, 1.0)
+    rows = np.flatnonzero(s.present[:, 0])
+    cap = p.capacity_ah[rows].astype(float)
+    temperature = np.clip(p.temperature_c[rows].astype(float), -30.0, 60.0)
+    cold = np.exp2((25.0 - temperature) / p.resistance_doubling_k[rows])
+    r = p.ohmic_ohm_ah[rows] / cap * cold
+    r_acc = p.acceptance_ohm_ah[rows] / cap * cold
+    eta = p.coulombic_efficiency[rows].astype(float)
+    gas = cap * p.gas_a_per_ah[rows] * np.exp2((temperature - 25.0) / p.gas_doubling_k[rows])
+    vg = p.gas_voltage_v[rows].astype(float)
+    b = np.where(gas > 0, p.gas_slope_v[rows], 1.0)
+    cells = p.cells[rows].astype(float)
+    flat = p.tables.ravel()
+    base = p.table_index[rows] * _GRID
+    soc = np.clip(p.soc_start[rows].astype(float), 0.0, 1.0)
+    stage = np.zeros(rows.size, dtype=np.int64)
+    t_stage = np.zeros(rows.size)
+    steps = np.zeros(rows.size, dtype=np.int64)
+    acc = np.zeros((3, rows.size))  # this stage's seconds, Ah, Wh
+    t_clock = 0.0
 
-    active = np.flatnonzero(s.present[:, 0])
-    converged[~s.present[:, 0]] = False
-    while active.size:
-        a = active
-        k = stage[a]
-        v_set = s.voltage_v_cell[a, k]
-        i_set = s.current_a[a, k]
-        e = _ocv(p, a, soc[a])
-        g_acc = np.maximum((1.0 - soc[a]) ** p.acceptance_exponent[a], 1e-12) / r_acc[a]
-        r = r_ohm[a]
-        g, vg, b = gas[a], p.gas_voltage_v[a], slope[a]
+    def stage_params(r_: np.ndarray, k_: np.ndarray) -> list[np.ndarray]:
+        return [s.voltage_v_cell[r_, k_], s.current_a[r_, k_], s.exit_voltage_v_cell[r_, k_],
+                s.exit_current_a[r_, k_],
+                np.where(held_all[r_, k_], HOLD_WINDOW_S, s.exit_duration_s[r_, k_]),
+                held_all[r_, k_], s.stop_after[r_, k_]]
 
-        # constant voltage: the internal voltage x where the branches take what R passes
-        x = np.where(has_gas[a], v_set, (v_set / r + e * g_acc) / (1.0 / r + g_acc))
-        for _ in range(_NEWTON):
-            gas_i = g * np.exp(np.minimum((x - vg) / b, 50.0))
-            f = (v_set - x) / r - (x - e) * g_acc - gas_i
-            x = x - f / (-1.0 / r - g_acc - gas_i / b)
-        i_cv = np.where(v_set > e, np.maximum((v_set - x) / r, 0.0), 0.0)
-        # constant current: the internal voltage x where the branches take i_set; start from
-        # the lower of the two voltages at which one branch alone would take it all
+    v_set, i_set, exit_v, exit_i, exit_t, held, stop = stage_params(rows, stage)
+    any_gas = bool(np.any(gas > 0))
+    warm = np.zeros(rows.size, dtype=bool)  # x_last / xc_last hold this stage's last roots
+    x_last = xc_last = np.zeros(rows.size)
+
+    while rows.size:
+        position = soc * (_GRID - 1)
+        low = np.minimum(position.astype(np.int64), _GRID - 2)
+        frac = position - low
+        e = flat[base + low] * (1.0 - frac) + flat[base + low + 1] * frac
+        g_acc = np.maximum(1.0 - soc, 1e-12) / (r_acc * (soc + SHEPHERD_OFFSET))
+
+        # constant voltage: the internal voltage x at which the branches take what R passes
+        x = (v_set / r + e * g_acc) / (1.0 / r + g_acc)
+        # constant current: the internal voltage at which the branches take i_set
         xc = e + i_set / g_acc
-        with np.errstate(divide="ignore"):
-            gas_only = vg + b * np.log(np.where(has_gas[a], i_set / np.maximum(g, 1e-300), 1.0))
-        xc = np.where(has_gas[a], np.maximum(np.minimum(xc, gas_only), e), xc)
-        for _ in range(_NEWTON):
-            gas_i = g * np.exp(np.minimum((xc - vg) / b, 50.0))
-            f = (xc - e) * g_acc + gas_i - i_set
-            xc = xc - f / (g_acc + gas_i / b)
+        if any_gas:
+            # Newton from the last step's root (it moves little between steps), or from
+            # an upper bound on the first step of a stage
+            x = np.where(gas > 0, np.where(warm, x_last, v_set), x)
+            with np.errstate(divide="ignore"):
+                gas_only = vg + b * np.log(np.where(gas > 0, i_set / np.maximum(gas, 1e-300),
+                                                    1.0))
+            bound = np.maximum(np.minimum(xc, gas_only), e)
+            xc = np.where(gas > 0, np.where(warm, np.minimum(xc_last, bound), bound), xc)
+            for _ in range(_NEWTON):
+                gas_x = gas * np.exp(np.minimum((x - vg) / b, 50.0))
+                x = x - ((v_set - x) / r - (x - e) * g_acc - gas_x) / (-1.0 / r - g_acc
+                                                                      - gas_x / b)
+                gas_c = gas * np.exp(np.minimum((xc - vg) / b, 50.0))
+                xc = xc - ((xc - e) * g_acc + gas_c - i_set) / (g_acc + gas_c / b)
+            x_last, xc_last = x, xc
+            warm[:] = True
+        i_cv = np.where(v_set > e, np.maximum((v_set - x) / r, 0.0), 0.0)
         in_cc = i_set <= i_cv
         current = np.where(in_cc, i_set, i_cv)
         x = np.where(in_cc, xc, x)
         v_term = np.where(in_cc, xc + i_set * r, np.where(i_cv > 0, v_set, e))
         i_main = np.clip((x - e) * g_acc, 0.0, current)
 
-        dt = np.clip(SOC_STEP * cap[a] * 3600.0 / np.maximum(current, 1e-9), DT_MIN_S, DT_MAX_S)
-        left = np.where(held[a, k], HOLD_WINDOW_S, s.exit_duration_s[a, k]) - t_stage[a]
-        dt = np.minimum(dt, np.maximum(left, 1e-6))
+        # a stage ends on the state at the start of the step, before it would move on
+        ended = (
+            (v_term >= exit_v - 1e-9)  # a nan limit compares False
+            | (current < exit_i)
+            | (t_stage >= exit_t - 1e-9)
+        )
+        # a step moves SOC_STEP of capacity, and less near full, where acceptance changes
+        # fastest; a hold stage may take long steps
+        step = np.minimum(SOC_STEP, TAIL_STEP * (1.0 - soc) + 1e-5)
+        dt = np.clip(step * cap * 3600.0 / np.maximum(i_main, 1e-9), DT_MIN_S,
+                     np.where(held, HOLD_DT_MAX_S, DT_MAX_S))
+        dt = np.where(ended, 0.0, np.minimum(dt, np.maximum(exit_t - t_stage, 1e-6)))
 
-        if record:
+        if record and dt[0] > 0:
             series["time_s"].append(t_clock)
-            series["stage"].append(float(k[0]))
-            series["voltage_v"].append(float(v_term[0] * p.cells[a][0]))
+            series["stage"].append(float(stage[0]))
+            series["voltage_v"].append(float(v_term[0] * cells[0]))
             series["current_a"].append(float(current[0]))
-            series["soc"].append(float(soc[a][0]))
+            series["soc"].append(float(soc[0]))
             t_clock += float(dt[0])
 
-        soc[a] = np.minimum(soc[a] + p.coulombic_efficiency[a] * i_main * dt / (cap[a] * 3600.0),
-                            1.0)
-        duration[a, k] += dt
-        charge[a, k] += current * dt / 3600.0
-        energy[a, k] += current * v_term * p.cells[a] * dt / 3600.0
-        t_stage[a] += dt
-        steps[a] += 1
+        soc = np.minimum(soc + eta * i_main * dt / (cap * 3600.0), 1.0)
+        acc[0] += dt
+        acc[1] += current * dt / 3600.0
+        acc[2] += current * v_term * cells * dt / 3600.0
+        t_stage += dt
+        steps += 1
+        stuck = steps >= MAX_STEPS
+        if not (ended.any() or stuck.any()):
+            continue
+        done = ended | stuck
+        r_done, k_done = rows[done], stage[done]
+        duration[r_done, k_done] = acc[0, done]
+        charge[r_done, k_done] = acc[1, done]
+        energy[r_done, k_done] = acc[2, done]
+        end_current[r_done, k_done] = current[done]
+        end_soc[r_done, k_done] = soc[done]
+        converged[rows[stuck & ~ended]] = False
+        nxt = stage + 1
+        has_next = np.zeros(rows.size, dtype=bool)
+        inside = nxt < width
+        has_next[inside] = s.present[rows[inside], nxt[inside]]
+        finished = stuck | (ended & (stop | held | ~has_next))
+        moving = ended & ~finished
+        if moving.any():
+            stage[moving] = nxt[moving]
+            warm[moving] = False
+            t_stage[moving] = 0.0
+            steps[moving] = 0
+            acc[:, moving] = 0.0
+            fresh = stage_params(rows[moving], stage[moving])
+            for array, value in zip((v_set, i_set, exit_v, exit_i, exit_t, held, stop), fresh,
+                                    strict=True):
+                array[moving] = value
+        if finished.any():
+            keep = ~finished
+            rows, cap, r, r_acc, eta, gas, vg, b, cells, base = (
+                v[keep] for v in (rows, cap, r, r_acc, eta, gas, vg, b, cells, base))
+            soc, stage, t_stage, steps = soc[keep], stage[keep], t_stage[keep], steps[keep]
+            v_set, i_set, exit_v, exit_i, exit_t, held, stop = (
+                v[keep] for v in (v_set, i_set, exit_v, exit_i, exit_t, held, stop))
+            acc = acc[:, keep]
+            warm, x_last, xc_last = warm[keep], x_last[keep], xc_last[keep]
+            any_gas = bool(np.any(gas > 0))
 
-        exit_v = s.exit_voltage_v_cell[a, k]
-        exit_i = s.exit_current_a[a, k]
-        ended = (
-            (np.isfinite(exit_v) & (v_term >= exit_v - 1e-9))
-            | (np.isfinite(exit_i) & (current < exit_i))
-            | (t_stage[a] >= s.exit_duration_s[a, k] - 1e-9)
-            | (held[a, k] & (t_stage[a] >= HOLD_WINDOW_S - 1e-9))
-        )
-        stuck = steps[a] >= MAX_STEPS
-        if ended.any() or stuck.any():
-            end_current[a[ended], k[ended]] = current[ended]
-            end_soc[a[ended], k[ended]] = soc[a[ended]]
-            nxt = k + 1
-            last = nxt >= stages
-            nxt_present = np.zeros_like(ended)
-            nxt_present[~last] = s.present[a[~last], nxt[~last]]
-            finished = ended & (s.stop_after[a, k] | held[a, k] | ~nxt_present)
-            moving = ended & ~finished
-            stage[a[moving]] = nxt[moving]
-            t_stage[a[moving]] = 0.0
-            steps[a[moving]] = 0
-            converged[a[stuck & ~ended]] = False
-            active = a[~(finished | (stuck & ~ended))]
-
-    result = SimulationResult(duration, charge, energy, end_current, end_soc, held, converged)
+    result = SimulationResult(duration, charge, energy, end_current, end_soc, held_all,
+                              converged)
     if record:
         result.series = {key: np.asarray(values) for key, values in series.items()}
     return result

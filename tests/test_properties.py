@@ -586,3 +586,28 @@ def test_setpoint_document_rounds_toward_safety_and_detects_edits(data):
             assert compute_digest(edited) != doc["digest"], f"editing {path} went unnoticed"
         node[path[-1]] = original
     assert compute_digest(edited) == doc["digest"]
+
+
+@settings(max_examples=300, deadline=None)
+@given(data=battery_files(in_window=True))
+def test_estimates_keep_every_plan_safe_and_timers_tight(data):
+    """Estimating a plan never loosens it: timers only shorten, never below their floors,
+    and the plan still passes the library's safety check (estimate_plans re-runs it)."""
+    from chargeplan.estimate import TIMER_FLOOR_S, estimate_plans
+
+    outcome = _plan_or_outcome(data)
+    assume(not isinstance(outcome, str))
+    plan = outcome
+    before = [stage.timer_s for stage in plan.stages]
+    estimate_plans([plan])
+    for stage, timer in zip(plan.stages, before, strict=True):
+        assert stage.estimate is not None
+        assert stage.estimate.charge_ah >= 0 and stage.estimate.energy_wh >= 0
+        if timer is None:
+            assert stage.timer_s is None
+            continue
+        assert stage.timer_s <= timer + 1e-9
+        floor = TIMER_FLOOR_S.get(stage.kind)
+        if floor is not None:
+            assert stage.timer_s >= min(floor, timer) - 1e-9
+    assert not _independent_violations(data, plan)

@@ -18,10 +18,15 @@ def load_battery_file(path: str | Path) -> BatteryFile:
 
 
 def plan_file(
-    path: str | Path, *, profiles: ProfileSet | None = None, estimate: bool = True
+    path: str | Path,
+    *,
+    profiles: ProfileSet | None = None,
+    estimate: bool = True,
+    table_step_c: float | None = 5.0,
 ) -> ChargePlan:
     """Plan the battery described in ``path``; with ``estimate``, also simulate the charge
-    (stage times, Ah and Wh, and safety timers tightened to the estimate).
+    (stage times, Ah and Wh, and safety timers tightened to the estimate); with
+    ``table_step_c``, also the temperature table for firmware (None: no table).
 
     Examples
     --------
@@ -39,4 +44,10 @@ def plan_file(
         from chargeplan.estimate import estimate_plans
 
         estimate_plans([plan], profiles=profiles)
+    if table_step_c is not None:
+        from chargeplan.tables import temperature_table
+
+        plan.temperature_table = temperature_table(battery_file, plan, step_c=table_step_c,
+                                                   profiles=profiles)
+        plan.table_step_c = table_step_c
     return plan

@@ -93,13 +93,22 @@ def plan(
         Path | None, typer.Option("--output", "-o", help="write to this file")
     ] = None,
     force: Annotated[bool, typer.Option(help="replace the output file if it exists")] = False,
+    table_step: Annotated[str, typer.Option("--table-step", help="the temperature table's "
+                                                                   "step")] = "5 degC",
     profiles: ProfilePaths = None,
 ) -> None:
     """Plan the charge of one battery."""
     with _errors():
         from chargeplan.api import plan_file
+        from chargeplan.units import option_quantity
 
-        result = plan_file(file, profiles=_profile_set(profiles))
+        step = option_quantity(table_step, "temperature_difference", "--table-step")
+        if step is None or not 0.5 <= step <= 25:
+            from chargeplan.errors import InputError
+
+            raise InputError(f"{table_step} is not a usable table step", field="--table-step",
+                             fix="use 0.5 to 25 K, e.g. '5 K'")
+        result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step)
         if format is Format.json:
             from chargeplan.render.setpoints import to_json
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from enum import StrEnum
+from typing import Any
 
 __all__ = [
     "ChargePlan",
@@ -159,6 +160,8 @@ class ChargePlan:
     cautions: list[str]
     finish: str  # what happens after the last stage: "hold" or "stop"
     estimated: bool = False  # the stages carry physics estimates
+    temperature_table: list[Any] | None = None  # chargeplan.tables rows, when made
+    table_step_c: float | None = None
 
     def total_estimate(self) -> tuple[float, float, float] | None:
         """(seconds, Ah, Wh) of the stages that end, or None before estimation."""

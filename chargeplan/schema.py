@@ -15,7 +15,7 @@ SCHEMAS = {
     "setpoints.schema.json": (
         "chargeplan.model.setpoints",
         "SetpointDocument",
-        "chargeplan setpoint document, version 2",
+        "chargeplan setpoint document, version 3",
     ),
 }
 

@@ -178,6 +178,9 @@ def option_quantity(text: str | None, kind: str, option: str) -> float | None:
         return None
     from chargeplan.errors import InputError
 
+    if kind == "temperature_difference":
+        # a step or a difference written in degrees Celsius is that many kelvin
+        text = re.sub(r"\s*(degC|°C|celsius)\s*$", " K", text.strip())
     try:
         return parse_quantity(text, kind)
     except ValueError as error:

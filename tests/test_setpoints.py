@@ -31,7 +31,7 @@ def test_rounding_helpers_round_toward_safety():
 def test_document_is_valid_and_integer():
     doc = _doc(conditions={"battery_temperature": "5 degC"}, state={"rest_voltage": "12.31 V"})
     Draft202012Validator(SCHEMA).validate(doc)  # jsonschema: the committed schema
-    assert doc["format"] == "chargeplan-setpoints" and doc["version"] == 2
+    assert doc["format"] == "chargeplan-setpoints" and doc["version"] == 3
     for stage in doc["stages"]:
         assert isinstance(stage["voltage_mV"], int) and isinstance(stage["current_mA"], int)
     # BU-410 worked arithmetic: 2.43 x 6 + (-0.003 x 6 x (5 - 25)) = 14.94 V

@@ -2,4 +2,4 @@
 
 #: The setpoint document's format name and version (schema: ``model/setpoints.py``).
 SETPOINT_FORMAT = "chargeplan-setpoints"
-SETPOINT_VERSION = 2
+SETPOINT_VERSION = 3

@@ -124,6 +124,23 @@ class CompensationTable(_Doc):
     range_max_dC: int
 
 
+class TableRow(_Doc):
+    temperature_dC: int
+    charge_voltage_mV: int = Field(gt=0, description="absorption (or storage) voltage")
+    hold_voltage_mV: int | None = Field(gt=0, description="float or storage hold; null: none")
+    current_max_mA: int = Field(gt=0, description="bulk current limit")
+
+
+class TemperatureTable(_Doc):
+    """Setpoints looked up by battery temperature, for firmware that does not compute
+    compensation. Rows run every ``step_dC`` across the charge-temperature interlocks, each
+    made by the same rules as the plan. Between two rows use the lower value of each column;
+    outside the rows, or at a temperature with no row, do not charge."""
+
+    step_dC: int = Field(gt=0)
+    rows: list[TableRow]
+
+
 class DocumentBattery(_Doc):
     name: str
     chemistry: str
@@ -134,13 +151,13 @@ class DocumentBattery(_Doc):
 
 
 class SetpointDocument(_Doc):
-    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 2).
+    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 3).
 
     Version 2 added each stage's estimates (``estimated_duration_s``, ``charge_mAh``,
-    ``energy_mWh``)."""
+    ``energy_mWh``); version 3 the ``temperature_table``."""
 
     format: Literal["chargeplan-setpoints"]
-    version: Literal[2]
+    version: Literal[3]
     generator: str
     battery: DocumentBattery
     cells_in_series: int = Field(ge=1)
@@ -149,4 +166,5 @@ class SetpointDocument(_Doc):
     finish: Literal["stop", "hold"]
     interlocks: SetpointInterlocks
     temperature_compensation: CompensationTable | None
+    temperature_table: TemperatureTable | None
     digest: str = Field(pattern=r"^sha256:[0-9a-f]{64}$")

@@ -49,6 +49,24 @@ def _estimate(stage: Stage) -> dict[str, int | None]:
     }
 
 
+def _table(plan: ChargePlan) -> dict[str, Any] | None:
+    if plan.temperature_table is None or plan.table_step_c is None:
+        return None
+    return {
+        "step_dC": round(plan.table_step_c * 10),
+        "rows": [
+            {
+                "temperature_dC": round(row.temperature_c * 10),
+                "charge_voltage_mV": down(row.charge_voltage_v, 1000),
+                "hold_voltage_mV": None if row.hold_voltage_v is None
+                else down(row.hold_voltage_v, 1000),
+                "current_max_mA": down(row.current_max_a, 1000),
+            }
+            for row in plan.temperature_table
+        ],
+    }
+
+
 def canonical_bytes(document: dict[str, Any]) -> bytes:
     """The canonical form the digest covers: the document without ``digest``, keys
     sorted, no spaces, UTF-8."""
@@ -122,6 +140,7 @@ def encode(plan: ChargePlan) -> dict[str, Any]:
             "range_max_dC": up(comp.range_max_c, 10),
         },
     }
+    document["temperature_table"] = _table(plan)
     document["digest"] = compute_digest(document)
     return document
 

@@ -28,6 +28,8 @@ app = typer.Typer(
 class Format(StrEnum):
     text = "text"
     json = "json"
+    c_header = "c-header"
+    image = "image"
 
 
 ProfilePaths = Annotated[
@@ -73,8 +75,13 @@ def _profile_set(paths: list[Path] | None):  # -> ProfileSet
     return ProfileSet(list(paths or []))
 
 
-def _emit(text: str, output: Path | None, force: bool) -> None:
+def _emit(text: str | bytes, output: Path | None, force: bool) -> None:
     if output is None:
+        if isinstance(text, bytes):
+            from chargeplan.errors import InputError
+
+            raise InputError("an image is binary", field="--output",
+                             fix="give -o FILE to write it")
         typer.echo(text, nl=False)
         return
     from chargeplan.render.write import write_atomic
@@ -108,11 +115,25 @@ def plan(
 
             raise InputError(f"{table_step} is not a usable table step", field="--table-step",
                              fix="use 0.5 to 25 K, e.g. '5 K'")
+        if format is Format.image and output is None:
+            from chargeplan.errors import InputError
+
+            raise InputError("an image is binary", field="--output", fix="give -o FILE")
         result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step)
         if format is Format.json:
             from chargeplan.render.setpoints import to_json
 
             _emit(to_json(result), output, force)
+        elif format is Format.c_header:
+            from chargeplan.render.c_header import render_c_header
+            from chargeplan.render.setpoints import encode
+
+            _emit(render_c_header(result, encode(result)), output, force)
+        elif format is Format.image:
+            from chargeplan.render import image
+            from chargeplan.render.setpoints import encode
+
+            _emit(image.encode(encode(result)), output, force)
         else:
             from chargeplan.render.text import render_text
 
@@ -211,6 +232,93 @@ def runtime(
                    f"{result.exponent:g}, rated over {result.rated_hours:g} h)")
         for note in result.notes:
             typer.echo(f"note: {note}")
+
+
+@app.command()
+def check(
+    file: Annotated[Path, typer.Argument(help="a setpoint JSON document or image")],
+    battery: Annotated[Path | None, typer.Option("--battery", help="the battery file it "
+                                                                    "is for")] = None,
+    charger: Annotated[Path | None, typer.Option("--charger", help="the channel file it "
+                                                                    "will run on")] = None,
+) -> None:
+    """Check a setpoint file before flashing: exit 1 and every violation if it fails."""
+    with _errors():
+        from chargeplan.check import check_file, load_channel_file
+
+        battery_file = None
+        if battery is not None:
+            from chargeplan.api import load_battery_file
+
+            battery_file = load_battery_file(battery)
+        channel = load_channel_file(charger) if charger is not None else None
+        report = check_file(file, battery_file=battery_file, channel=channel)
+        if report.ok:
+            what = "schema, digest" if report.kind == "json" else "CRC-32"
+            typer.echo(f"{file}: ok: {what}, hard envelope and order checks passed")
+            return
+        for violation in report.violations:
+            typer.echo(f"{file}: {violation}", err=True)
+        typer.echo(f"{file}: refused: {len(report.violations)} violation"
+                   f"{'s' if len(report.violations) != 1 else ''}; do not flash it", err=True)
+        raise typer.Exit(1)
+
+
+@app.command()
+def thermistor(
+    r25: Annotated[str, typer.Option("--r25", help="resistance at 25 degC, e.g. 10kohm")],
+    beta: Annotated[float, typer.Option("--beta", help="B value in K, e.g. 3950")],
+    bias: Annotated[str, typer.Option("--bias", help="divider bias resistor, e.g. 10kohm")],
+    adc_bits: Annotated[int, typer.Option("--adc-bits", help="ADC resolution")] = 12,
+    battery: Annotated[Path | None, typer.Option("--battery", help="codes for this "
+                                                                    "battery's interlocks")] = None,
+    a: Annotated[float | None, typer.Option("--a", help="Steinhart-Hart A")] = None,
+    b: Annotated[float | None, typer.Option("--b", help="Steinhart-Hart B")] = None,
+    c: Annotated[float | None, typer.Option("--c", help="Steinhart-Hart C")] = None,
+    as_json: Annotated[bool, typer.Option("--json", help="print JSON")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """ADC codes of an NTC thermistor divider: the interlock thresholds and a lookup table."""
+    with _errors():
+        from chargeplan.errors import InputError
+        from chargeplan.thermistor import Divider, thermistor_table
+        from chargeplan.units import option_quantity
+
+        given = [v is not None for v in (a, b, c)]
+        if any(given) and not all(given):
+            raise InputError("Steinhart-Hart needs all three", field="--a",
+                             fix="give --a, --b and --c, or none of them")
+        divider = Divider(
+            r25_ohm=option_quantity(r25, "resistance", "--r25") or 0.0,
+            beta_k=beta,
+            bias_ohm=option_quantity(bias, "resistance", "--bias") or 0.0,
+            adc_bits=adc_bits,
+            steinhart_hart=(a, b, c) if all(given) else None,  # type: ignore[arg-type]
+        )
+        plan = None
+        if battery is not None:
+            from chargeplan.api import plan_file
+
+            plan = plan_file(battery, profiles=_profile_set(profiles), estimate=False,
+                             table_step_c=None)
+        table = thermistor_table(divider, plan)
+        if as_json:
+            import json
+
+            typer.echo(json.dumps({
+                "adc_bits": adc_bits, "r25_ohm": divider.r25_ohm, "beta_K": beta,
+                "bias_ohm": divider.bias_ohm, "interlocks": [
+                    {k: v for k, v in row.items() if k != "exact_code"}
+                    for row in table.interlocks],
+                "table": table.rows}, indent=2))
+            return
+        for row in table.interlocks:
+            typer.echo(f"{row['name']:<24} {row['temperature_dC'] / 10:7.1f} degC  code "
+                       f"{row['code']:>6}  (exact {row['exact_code']:.2f})")
+        typer.echo("temperature_degC  resistance_ohm  code   (sorted by code)")
+        for row in table.rows:
+            typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "
+                       f"{row['code']:>4}")
 
 
 @app.command("profiles")

@@ -102,6 +102,9 @@ def plan(
     force: Annotated[bool, typer.Option(help="replace the output file if it exists")] = False,
     table_step: Annotated[str, typer.Option("--table-step", help="the temperature table's "
                                                                    "step")] = "5 degC",
+    quantisation_report: Annotated[bool, typer.Option(
+        "--quantisation-report", help="list each setpoint moved onto the channel's steps "
+                                      "(on stderr)")] = False,
     profiles: ProfilePaths = None,
 ) -> None:
     """Plan the charge of one battery."""
@@ -120,6 +123,8 @@ def plan(
 
             raise InputError("an image is binary", field="--output", fix="give -o FILE")
         result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step)
+        if quantisation_report:
+            _report_quantisation(result)
         if format is Format.json:
             from chargeplan.render.setpoints import to_json
 
@@ -138,6 +143,17 @@ def plan(
             from chargeplan.render.text import render_text
 
             _emit(render_text(result, explain=explain), output, force)
+
+
+def _report_quantisation(plan) -> None:  # plan: ChargePlan
+    if not plan.quantisation:
+        typer.echo("quantisation: nothing moved (no channel steps given, or every value "
+                   "already on a step)", err=True)
+        return
+    typer.echo(f"{'setpoint':<28} {'requested':>12} {'encoded':>12} {'error':>10}", err=True)
+    for q in plan.quantisation:
+        typer.echo(f"{q.what:<28} {q.requested:>10.4f} {q.unit} {q.encoded:>10.4f} {q.unit} "
+                   f"{q.encoded - q.requested:>+8.4f} {q.unit}", err=True)
 
 
 @app.command()

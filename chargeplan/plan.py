@@ -19,6 +19,7 @@ __all__ = [
     "Finding",
     "Interlocks",
     "PlannedBattery",
+    "Quantised",
     "Severity",
     "Stage",
     "StageEstimate",
@@ -135,6 +136,16 @@ class TraceEntry:
 
 
 @dataclass(frozen=True, slots=True)
+class Quantised:
+    """A setpoint moved onto the channel's step: what was asked, what is encoded."""
+
+    what: str  # "bulk.voltage", "absorption.exit_current", ...
+    requested: float
+    encoded: float
+    unit: str  # "V" or "A"
+
+
+@dataclass(frozen=True, slots=True)
 class PlannedBattery:
     name: str
     profile_id: str
@@ -160,6 +171,7 @@ class ChargePlan:
     cautions: list[str]
     finish: str  # what happens after the last stage: "hold" or "stop"
     estimated: bool = False  # the stages carry physics estimates
+    quantisation: list[Quantised] = field(default_factory=list)  # rule CP405's changes
     temperature_table: list[Any] | None = None  # chargeplan.tables rows, when made
     table_step_c: float | None = None
 

@@ -216,3 +216,50 @@ def test_check_against_the_channel(tmp_path):
 def test_image_needs_an_output_file():
     result = runner.invoke(app, ["plan", str(example_paths()[0]), "-f", "image"])
     assert result.exit_code == 2 and "-o" in result.stderr
+
+
+def _quantised(voltage_step, current_step, **channel):
+    data = battery(battery={"capacity": "12 Ah"}, state={"rest_voltage": "12.31 V"},
+                   conditions={"battery_temperature": "7 degC"},
+                   charger={"max_voltage": "16 V", "max_current": "4 A", "min_current": "0.1 A",
+                            "voltage_step": voltage_step, "current_step": current_step,
+                            "can_disable_high_voltage_stages": True, **channel})
+    from .conftest import plan_of
+
+    return plan_of(data)
+
+
+def test_quantisation_rounds_toward_safety_onto_the_steps():
+    # common practice: limits round down, a tail current up (the stage ends earlier)
+    plan = _quantised("50 mV", "0.1 A")
+    assert plan.quantisation
+    for q in plan.quantisation:
+        if q.what.endswith("exit_current"):
+            assert q.encoded >= q.requested
+        else:
+            assert q.encoded <= q.requested
+    for stage in plan.stages:
+        assert abs(stage.voltage_v / 0.05 - round(stage.voltage_v / 0.05)) < 1e-6
+        assert abs(stage.current_a / 0.1 - round(stage.current_a / 0.1)) < 1e-6
+    # BU-410 arithmetic: 2.43 x 6 + 0.018 x 18 = 14.904 V, on a 50 mV step 14.90 V
+    assert plan.stage("absorption").voltage_v == pytest.approx(14.90)
+
+
+def test_quantisation_that_leaves_the_range_is_refused():
+    from chargeplan.errors import PlanRefused
+
+    with pytest.raises(PlanRefused) as caught:
+        _quantised("1 V", "0.1 A", min_voltage="13.9 V")  # float 13.944 V -> 13 V < 13.9 V
+    assert caught.value.rule_id == "CP405"
+    with pytest.raises(PlanRefused):
+        _quantised("50 mV", "5 A")  # 2.4 A on a 5 A step is 0 A
+
+
+def test_quantisation_report_on_the_command_line(write_yaml):
+    path = write_yaml(battery(charger={"max_voltage": "16 V", "max_current": "4 A",
+                                       "voltage_step": "50 mV", "current_step": "0.1 A",
+                                       "can_disable_high_voltage_stages": True}))
+    result = runner.invoke(app, ["plan", str(path), "-f", "json", "--quantisation-report"])
+    assert result.exit_code == 0
+    assert "absorption.voltage" in result.stderr and "requested" in result.stderr
+    json.loads(result.stdout)

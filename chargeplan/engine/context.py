@@ -11,6 +11,7 @@ from chargeplan.plan import (
     Compensation,
     Finding,
     Interlocks,
+    Quantised,
     Severity,
     Stage,
     StageKind,
@@ -66,6 +67,7 @@ class Context:
     findings: list[Finding] = field(default_factory=list)
     trace: list[TraceEntry] = field(default_factory=list)
     cautions: list[str] = field(default_factory=list)
+    quantisation: list[Quantised] = field(default_factory=list)
     rule_id: str = ""  # the rule now running, set by the planner
 
     # -- what the battery is -------------------------------------------------

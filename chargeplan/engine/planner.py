@@ -107,6 +107,7 @@ def plan_charge(
         trace=ctx.trace,
         cautions=ctx.cautions,
         finish=ctx.finish,
+        quantisation=ctx.quantisation,
     )
     safety.verify(plan, hard_envelope(profile.chemistry), battery_file)
     return plan

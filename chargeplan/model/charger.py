@@ -28,6 +28,14 @@ class ChargerChannel(InputModel):
         description="lowest current the channel can regulate and measure (for pre-charge and "
         "tail-current exits)",
     )
+    voltage_step: quantity("voltage", ge=0.0001, le=10) | None = Field(
+        default=None, alias="voltage_step",
+        description="the channel's voltage resolution; setpoints become multiples of it",
+    )
+    current_step: quantity("current", ge=0.0001, le=100) | None = Field(
+        default=None, alias="current_step",
+        description="the channel's current resolution; setpoints become multiples of it",
+    )
     temperature_probe: bool = Field(
         default=False, description="a battery temperature probe compensates setpoints live"
     )

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import math
+
 from chargeplan.engine.context import Context
 from chargeplan.engine.registry import rule
 from chargeplan.fmt import amps, volts
-from chargeplan.plan import HIGH_VOLTAGE_STAGES, Exit, ExitKind, StageKind
+from chargeplan.plan import HIGH_VOLTAGE_STAGES, Exit, ExitKind, Quantised, StageKind
 
 #: Stages a plan can do without; a channel that cannot run them drops them with a warning.
 OPTIONAL = HIGH_VOLTAGE_STAGES
@@ -140,3 +142,66 @@ def charger_probe(ctx: Context) -> None:
     if ctx.lithium:
         ctx.warn("no temperature probe: nothing stops the charge if the cells fall below "
                  "0 °C; check the battery's temperature before and during charging")
+
+
+@rule("CP405", "charger.quantisation", source="common practice: a channel sets only multiples "
+      "of its voltage and current steps; rounding must never move a limit toward danger")
+def charger_quantisation(ctx: Context) -> None:
+    """Move setpoints onto the channel's steps toward safety; refuse one that then leaves its range.
+
+    Voltage and current limits round down; a tail current rounds up (the stage ends a
+    little earlier). Nothing is clamped into range: a value that no longer fits is a refusal.
+    """
+    channel = ctx.battery_file.charger
+    if channel is None or (channel.voltage_step is None and channel.current_step is None):
+        return
+
+    def snap(value: float, step: float | None, up: bool) -> float:
+        if step is None:
+            return value
+        units = value / step
+        whole = math.ceil(units - 1e-9) if up else math.floor(units + 1e-9)
+        return round(whole * step, 9)
+
+    def record(what: str, before: float, after: float, unit: str) -> None:
+        if abs(after - before) > 1e-12:
+            ctx.quantisation.append(Quantised(what, before, after, unit))
+            ctx.note(what, f"{before:.6g} {unit} -> {after:.6g} {unit} (channel step, rounded "
+                           f"{'up' if after > before else 'down'})")
+
+    v_step, i_step = channel.voltage_step, channel.current_step
+    for stage in ctx.stages:
+        label = stage.kind.value
+        v_new = snap(stage.voltage_v, v_step, up=False)
+        i_new = snap(stage.current_a, i_step, up=False)
+        record(f"{label}.voltage", stage.voltage_v, v_new, "V")
+        record(f"{label}.current", stage.current_a, i_new, "A")
+        if not channel.min_voltage_v <= v_new <= channel.max_voltage_v:
+            raise ctx.refuse(
+                f"the {stage.kind.label} voltage {volts(stage.voltage_v)} becomes "
+                f"{volts(v_new)} on the channel's step, outside its "
+                f"{volts(channel.min_voltage_v)} to {volts(channel.max_voltage_v)} range; use a "
+                "channel with a finer step"
+            )
+        if not (i_new > 0 and channel.min_current_a <= i_new <= channel.max_current_a):
+            raise ctx.refuse(
+                f"the {stage.kind.label} current {amps(stage.current_a)} becomes {amps(i_new)} "
+                f"on the channel's step, outside its {amps(channel.min_current_a)} to "
+                f"{amps(channel.max_current_a)} range; use a channel with a finer step"
+            )
+        exits = []
+        for e in stage.exits:
+            if e.kind == ExitKind.VOLTAGE_REACHED:
+                e = Exit(e.kind, min(snap(e.value, v_step, up=False), v_new), e.then)
+            elif e.kind == ExitKind.CURRENT_BELOW:
+                tail = snap(e.value, i_step, up=True)
+                record(f"{label}.exit_current", e.value, tail, "A")
+                if tail >= i_new:
+                    raise ctx.refuse(
+                        f"the {stage.kind.label} tail current {amps(e.value)} becomes "
+                        f"{amps(tail)} on the channel's step, not below the stage's "
+                        f"{amps(i_new)}; use a channel with a finer current step"
+                    )
+                e = Exit(e.kind, tail, e.then)
+            exits.append(e)
+        stage.voltage_v, stage.current_a, stage.exits = v_new, i_new, exits

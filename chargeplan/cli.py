@@ -27,6 +27,8 @@ app = typer.Typer(
 
 class Format(StrEnum):
     text = "text"
+    markdown = "markdown"
+    html = "html"
     json = "json"
     c_header = "c-header"
     image = "image"
@@ -93,7 +95,8 @@ def _emit(text: str | bytes, output: Path | None, force: bool) -> None:
 @app.command()
 def plan(
     file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
-    format: Annotated[Format, typer.Option("--format", "-f", help="text or json")] = Format.text,
+    format_name: Annotated[str, typer.Option(
+        "--format", "-f", help="text, markdown, html, json, c-header or image")] = "text",
     explain: Annotated[bool, typer.Option(help="add the rule and arithmetic behind each "
                                                "setpoint")] = False,
     output: Annotated[
@@ -109,6 +112,13 @@ def plan(
 ) -> None:
     """Plan the charge of one battery."""
     with _errors():
+        try:
+            format = Format(format_name)
+        except ValueError:
+            from chargeplan.errors import InputError
+
+            raise InputError(f"unknown format '{format_name}'", field="--format",
+                             fix=f"use one of {', '.join(f.value for f in Format)}") from None
         from chargeplan.api import plan_file
         from chargeplan.units import option_quantity
 
@@ -134,6 +144,16 @@ def plan(
             from chargeplan.render.setpoints import encode
 
             _emit(render_c_header(result, encode(result)), output, force)
+        elif format is Format.markdown:
+            from chargeplan.render.document import render_markdown
+
+            _emit(render_markdown(result, explain=explain), output, force)
+        elif format is Format.html:
+            from chargeplan.render.document import render_html
+            from chargeplan.simulation import simulate_plan
+
+            run = simulate_plan(result, profiles=_profile_set(profiles))
+            _emit(render_html(run.plan, explain=explain, series=run.series), output, force)
         elif format is Format.image:
             from chargeplan.render import image
             from chargeplan.render.setpoints import encode

@@ -1,0 +1,120 @@
+"""Documents for people: the plan as Markdown (a wiki or a procedures binder) or as one
+self-contained HTML page with an inline SVG chart, that prints on A4 and Letter."""
+
+from __future__ import annotations
+
+from functools import lru_cache
+from typing import Any
+
+from chargeplan import fmt
+from chargeplan.plan import ChargePlan, Severity
+from chargeplan.render.text import describe_exit
+
+__all__ = ["render_html", "render_markdown"]
+
+
+def _how_long(stage: Any) -> str:
+    e = stage.estimate
+    if e is None:
+        return "—"
+    if e.per_day:
+        return f"holds; about {fmt.amps(e.end_current_a)} after a day"
+    if e.duration_s is None:
+        return "—"
+    return (f"about {fmt.duration(e.duration_s)}, {fmt.num(e.charge_ah, 2)} Ah, "
+            f"{fmt.num(e.energy_wh, 0)} Wh")
+
+
+def _context(plan: ChargePlan, explain: bool) -> dict[str, Any]:
+    b = plan.battery
+    rows = []
+    for n, stage in enumerate(plan.stages, 1):
+        rows.append({
+            "n": n,
+            "label": stage.kind.label,
+            "set": f"{fmt.volts(stage.voltage_v)} "
+                   f"({fmt.cell_volts(stage.voltage_v / b.cells_in_series)}), "
+                   f"at most {fmt.amps(stage.current_a)}"
+                   + (" (temperature-compensated)" if stage.compensated else ""),
+            "ends": "; or ".join(describe_exit(e) for e in stage.exits) or "you disconnect it",
+            "how_long": _how_long(stage),
+            "timer": fmt.duration(stage.timer_s) if stage.timer_s is not None else "—",
+        })
+    total = plan.total_estimate()
+    lock = plan.interlocks
+    interlocks = [
+        f"battery temperature outside {fmt.celsius(lock.charge_temperature_min_c)} to "
+        f"{fmt.celsius(lock.charge_temperature_max_c)}",
+        f"battery voltage above {fmt.volts(lock.battery_voltage_max_v)} "
+        f"({fmt.cell_volts(lock.cell_voltage_max_v)})",
+        f"current above {fmt.amps(lock.current_max_a)}",
+    ]
+    if lock.cool_zone_below_c is not None and lock.cool_zone_current_max_a is not None:
+        interlocks.append(f"below {fmt.celsius(lock.cool_zone_below_c)}: at most "
+                          f"{fmt.amps(lock.cool_zone_current_max_a)}")
+    if lock.warm_zone_above_c is not None and lock.warm_zone_cell_voltage_max_v is not None:
+        interlocks.append(f"above {fmt.celsius(lock.warm_zone_above_c)}: at most "
+                          f"{fmt.cell_volts(lock.warm_zone_cell_voltage_max_v)}")
+    soc = (f"about {fmt.num(b.state_of_charge_pct, 0)} %" if b.state_of_charge_pct is not None
+           else "not measured")
+    return {
+        "plan": plan,
+        "b": b,
+        "facts": f"{b.profile_name} · {b.cells_in_series} cells · "
+                 f"{fmt.volts(b.nominal_voltage_v)} nominal · {fmt.num(b.capacity_ah)} Ah · "
+                 f"battery at {fmt.celsius(b.temperature_c)} · state of charge {soc}",
+        "total": None if total is None else
+        f"about {fmt.duration(total[0])}, {fmt.num(total[1], 1)} Ah, {fmt.num(total[2], 0)} Wh",
+        "rows": rows,
+        "interlocks": interlocks,
+        "findings": [(f.severity.value, f.message, f.rule_id) for f in plan.findings
+                     if f.severity != Severity.INFO or explain],
+        "notes": [(f.message, f.rule_id) for f in plan.findings if f.severity == Severity.INFO],
+        "explain": explain,
+    }
+
+
+@lru_cache(maxsize=2)
+def _environment(html: bool) -> Any:
+    from jinja2 import Environment, PackageLoader, StrictUndefined
+
+    env = Environment(
+        loader=PackageLoader("chargeplan", "render/templates"),
+        autoescape=html,  # every value in the HTML page is escaped
+        trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
+        undefined=StrictUndefined,
+    )
+    env.filters["md"] = lambda text: str(text).replace("|", "\\|").replace("\n", " ")
+    return env
+
+
+def render_markdown(plan: ChargePlan, *, explain: bool = False) -> str:
+    return str(_environment(False).get_template("plan.md.j2").render(**_context(plan, explain)))
+
+
+def _trim_hold(plan: ChargePlan, series: dict[str, Any]) -> dict[str, Any]:
+    """Show a holding stage (float, storage hold) only briefly: it runs on for days."""
+    import numpy as np
+
+    held = [i for i, s in enumerate(plan.stages) if s.estimate and s.estimate.per_day]
+    stage = np.asarray(series["stage"])
+    t = np.asarray(series["time_s"])
+    if not held or not np.any(stage == held[0]):
+        return series
+    start = float(t[np.argmax(stage == held[0])])
+    keep = t <= start + max(7200.0, 0.25 * start)
+    return {key: np.asarray(values)[keep] for key, values in series.items()}
+
+
+def render_html(plan: ChargePlan, *, explain: bool = False,
+                series: dict[str, Any] | None = None) -> str:
+    """One self-contained page; with ``series`` (the simulated run), an inline SVG chart."""
+    from markupsafe import Markup
+
+    from chargeplan.render.chart import svg_chart
+
+    chart = ""
+    if series is not None:
+        chart = svg_chart(_trim_hold(plan, series), [s.kind.label for s in plan.stages])
+    return str(_environment(True).get_template("plan.html.j2").render(
+        chart=Markup(chart), **_context(plan, explain)))  # chart text is escaped where drawn

@@ -132,7 +132,9 @@ def plan(
             from chargeplan.errors import InputError
 
             raise InputError("an image is binary", field="--output", fix="give -o FILE")
-        result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step)
+        # the HTML page simulates with its time series below; the others estimate here
+        result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step,
+                           estimate=format is not Format.html)
         if quantisation_report:
             _report_quantisation(result)
         if format is Format.json:

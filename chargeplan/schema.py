@@ -12,6 +12,11 @@ __all__ = ["SCHEMAS", "compare_shipped", "generate", "schema_texts", "write_sche
 SCHEMAS = {
     "battery.schema.json": ("chargeplan.model.battery", "BatteryFile", "chargeplan battery file"),
     "profile.schema.json": ("chargeplan.model.profile", "Profile", "chargeplan chemistry profile"),
+    "channel.schema.json": (
+        "chargeplan.model.charger",
+        "ChargerChannel",
+        "chargeplan charger channel file (also the battery file's charger section)",
+    ),
     "setpoints.schema.json": (
         "chargeplan.model.setpoints",
         "SetpointDocument",

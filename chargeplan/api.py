@@ -43,7 +43,7 @@ def plan_file(
     if estimate:
         from chargeplan.estimate import estimate_plans
 
-        estimate_plans([plan], profiles=profiles)
+        estimate_plans([plan], profiles=profiles, battery_files=[battery_file])
     if table_step_c is not None:
         from chargeplan.tables import temperature_table
 

@@ -13,7 +13,10 @@ import math
 
 import numpy as np
 
+from chargeplan.engine.rules.interlock import BULK_TIMER_FLOOR_S
 from chargeplan.fmt import duration
+from chargeplan.model.battery import BatteryFile
+from chargeplan.model.profile import Profile
 from chargeplan.physics.charge import (
     CellParameters,
     SimulationResult,
@@ -21,15 +24,23 @@ from chargeplan.physics.charge import (
     ocv_grid,
     simulate_charge,
 )
-from chargeplan.plan import ChargePlan, ExitKind, StageEstimate, StageKind, TraceEntry
+from chargeplan.plan import (
+    ChargePlan,
+    ExitKind,
+    Finding,
+    Severity,
+    Stage,
+    StageEstimate,
+    StageKind,
+    TraceEntry,
+)
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["TIMER_FLOOR_S", "TIMER_MARGIN", "arrays_for", "estimate_plans"]
+__all__ = ["CAUTIOUS_KNEE_PCT", "arrays_for", "estimate_plans"]
 
-#: Safety timers are this many times the estimated stage time (common practice: 1.5).
-TIMER_MARGIN = 1.5
-#: ... and never shorter than this, so a battery a little slower than the model is not faulted.
-TIMER_FLOOR_S = {StageKind.PRECHARGE: 900.0, StageKind.BULK: 1800.0}
+#: A bulk timer never allows less than the time to charge to this state of charge
+#: (common practice: lead-acid bulk rarely ends past 90 %).
+CAUTIOUS_KNEE_PCT = 90.0
 
 
 def arrays_for(
@@ -112,41 +123,98 @@ def arrays_for(
     return params, StageArrays(present, volt, amps, exit_v, exit_i, exit_t, stop)
 
 
+def _cautious_bulk_s(plan: ChargePlan, stage: Stage, profile: Profile) -> float:
+    """The bulk time to put back the charge up to a cautious knee at the stage's current.
+
+    The model's knee (where constant voltage begins) rests on one calibration point; a
+    battery that accepts current longer must not be faulted, so the timer never falls
+    below the time to charge to CAUTIOUS_KNEE_PCT at the bulk current.
+    """
+    soc = plan.battery.state_of_charge_pct or 0.0
+    missing = max(CAUTIOUS_KNEE_PCT - soc, 0.0) / 100.0
+    factor = profile.charge.charge_factor.value
+    return missing * plan.battery.capacity_ah * factor / stage.current_a * 3600.0
+
+
 def estimate_plans(
-    plans: list[ChargePlan], *, profiles: ProfileSet | None = None, record: bool = False
+    plans: list[ChargePlan],
+    *,
+    profiles: ProfileSet | None = None,
+    record: bool = False,
+    battery_files: list[BatteryFile] | None = None,
 ) -> SimulationResult:
-    """Simulate ``plans`` together and write the estimates and tightened timers onto them."""
+    """Simulate ``plans`` together and write the estimates and tightened timers onto them.
+
+    Only bulk timers tighten: to the profile's timer margin times the estimate, never below
+    the floor or the cautious-knee time, never above the rule's own timer. A stage the model
+    expects to outlast its safety timer is simulated up to the timer and reported as a
+    warning (the charger would stop with a fault). ``battery_files`` (one per plan) lets the
+    final safety check see the maker's and the channel's limits again.
+    """
     from chargeplan import safety
     from chargeplan.profiles import hard_envelope
 
-    params, stage_arrays = arrays_for(plans, profiles)
+    if record and len(plans) != 1:
+        raise ValueError("a time series is recorded for one plan at a time")
+    profile_set = profiles or ProfileSet(use_environment=False)
+    params, stage_arrays = arrays_for(plans, profile_set)
+    timers = np.full(stage_arrays.present.shape, np.inf)
+    for row, plan in enumerate(plans):
+        for col, stage in enumerate(plan.stages):
+            if stage.timer_s is not None:
+                timers[row, col] = stage.timer_s
+    capped = timers < stage_arrays.exit_duration_s
+    stage_arrays.exit_duration_s = np.minimum(stage_arrays.exit_duration_s, timers)
     result = simulate_charge(params, stage_arrays, record=record)
     for row, plan in enumerate(plans):
-        ok = bool(result.converged[row])
+        ok = bool(result.converged[row]) and bool(np.all(np.isfinite(
+            result.charge_ah[row][stage_arrays.present[row]])))
+        if not ok:
+            for stage in plan.stages:
+                stage.estimate = None
+            plan.estimated = False
+            plan.findings.append(Finding(Severity.WARNING, "CP601", "the charge model did "
+                                         "not settle for this battery: no time estimate"))
+            continue
+        profile = profile_set.get(plan.battery.profile_id)
+        margin = profile.charge.timer_margin.value
+        faulted = False
         for col, stage in enumerate(plan.stages):
+            if faulted:  # the charger stopped on the timer: later stages would not run
+                stage.estimate = None
+                continue
             hold = bool(result.held[row, col])
+            estimated = float(result.duration_s[row, col])
+            timed_out = bool(capped[row, col]) and estimated >= timers[row, col] - 1e-6
             stage.estimate = StageEstimate(
-                duration_s=None if hold or not ok else float(result.duration_s[row, col]),
+                duration_s=None if hold else estimated,
                 charge_ah=float(result.charge_ah[row, col]),
                 energy_wh=float(result.energy_wh[row, col]),
                 end_current_a=float(result.end_current_a[row, col]),
                 per_day=hold,
             )
-            if not ok or hold:
+            if timed_out:
+                plan.findings.append(Finding(
+                    Severity.WARNING, "CP601",
+                    f"the model expects the {stage.kind.label} stage not to reach its exit "
+                    f"within its {duration(timers[row, col])} safety timer: the charger would "
+                    "stop with a fault (at this temperature much of the current may go to "
+                    "gas); charge the battery cooler or check the setpoints"))
+                faulted = True
                 continue
-            estimated = float(result.duration_s[row, col])
-            floor = TIMER_FLOOR_S.get(stage.kind)
-            if floor is None or stage.timer_s is None:
+            if stage.kind != StageKind.BULK or stage.timer_s is None or hold:
                 continue
-            timer = max(TIMER_MARGIN * estimated, floor)
+            cautious = _cautious_bulk_s(plan, stage, profile)
+            timer = max(margin * estimated, BULK_TIMER_FLOOR_S, cautious)
             if timer < stage.timer_s:
                 plan.trace.append(TraceEntry(
-                    "CP601", f"{stage.kind.value}.timer",
-                    f"{duration(timer)} = {TIMER_MARGIN:g} x the estimated "
-                    f"{duration(estimated)} (at least {duration(floor)}; was "
+                    "CP601", "bulk.timer",
+                    f"{duration(timer)} = the longest of {margin:g} x the estimated "
+                    f"{duration(estimated)}, {duration(BULK_TIMER_FLOOR_S)}, and "
+                    f"{duration(cautious)} to charge to {CAUTIOUS_KNEE_PCT:g} % (was "
                     f"{duration(stage.timer_s)})"))
                 stage.timer_s = timer
-        plan.estimated = ok
-        safety.verify(plan, hard_envelope(plan.battery.chemistry))
+        plan.estimated = True
+        battery_file = battery_files[row] if battery_files else None
+        safety.verify(plan, hard_envelope(plan.battery.chemistry), battery_file)
     return result
-

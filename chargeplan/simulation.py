@@ -69,7 +69,12 @@ def simulate_plan(plan: ChargePlan, *, profiles: ProfileSet | None = None) -> Si
     from chargeplan.estimate import estimate_plans
 
     result = estimate_plans([plan], profiles=profiles, record=True)
-    return SimulationRun(plan, result.series)
+    series = result.series
+    stopped = next((i for i, s in enumerate(plan.stages) if s.estimate is None), None)
+    if stopped is not None and series:  # the charger stops on a timer fault before it
+        keep = series["stage"] < stopped
+        series = {key: values[keep] for key, values in series.items()}
+    return SimulationRun(plan, series)
 
 
 def simulate_file(path: str | Path, *, profiles: ProfileSet | None = None) -> SimulationRun:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from chargeplan.estimate import TIMER_MARGIN, estimate_plans
+from chargeplan.estimate import CAUTIOUS_KNEE_PCT, estimate_plans
 from chargeplan.physics.discharge import peukert_runtime_h
 from chargeplan.simulation import simulate_plan
 
@@ -108,13 +108,42 @@ def test_many_batteries_together_equal_each_alone():
 
 
 def test_timers_follow_the_estimate_with_margin_and_never_lengthen():
+    # common practice: timers at the profile's 1.5 x the expected time, never below the time
+    # to charge to a cautious 90 %; pre-charge timers are never tightened
     plan = _plan("nmc", soc="10 %", **NMC)
     rule_timer = plan.stage("bulk").timer_s
     estimate_plans([plan])
     bulk = plan.stage("bulk")
+    cautious = (CAUTIOUS_KNEE_PCT - 10) / 100 * 100 * 1.02 / bulk.current_a * 3600
     assert bulk.timer_s <= rule_timer
-    assert bulk.timer_s == pytest.approx(max(TIMER_MARGIN * bulk.estimate.duration_s, 1800))
+    assert bulk.timer_s == pytest.approx(max(1.5 * bulk.estimate.duration_s, 1800, cautious))
     assert any("estimated" in t.text for t in plan.trace if t.target == "bulk.timer")
+
+
+def test_precharge_timer_is_never_tightened():
+    plan = _plan("lifepo4", soc="0 %")
+    data = battery(battery={"chemistry": "lifepo4", "capacity": "100 Ah"},
+                   state={"rest_voltage": "8.8 V", "cells_verified": True})
+    plan = plan_of(data)
+    before = plan.stage("precharge").timer_s
+    estimate_plans([plan])
+    assert plan.stage("precharge").timer_s == before
+
+
+def test_a_stage_that_cannot_finish_is_reported_not_run_for_years():
+    # a hot flooded battery at C/10: the gas current (IEC 62485-2 Igas) takes the current
+    data = battery(battery={"chemistry": "flooded", "capacity": "100 Ah",
+                            "overrides": {"bulk_current": "10 A"}},
+                   state={"state_of_charge": "50 %"},
+                   conditions={"battery_temperature": "49 degC"})
+    plan = plan_of(data)
+    result = estimate_plans([plan])
+    assert result.converged[0]
+    for stage in plan.stages:
+        assert stage.estimate is None or stage.estimate.charge_ah < 1000
+    if any("would stop with a fault" in f.message for f in plan.findings):
+        bulk = plan.stage("bulk")
+        assert bulk.estimate.duration_s == pytest.approx(bulk.timer_s)
 
 
 def test_lithium_knee_calibration():

@@ -593,7 +593,7 @@ def test_setpoint_document_rounds_toward_safety_and_detects_edits(data):
 def test_estimates_keep_every_plan_safe_and_timers_tight(data):
     """Estimating a plan never loosens it: timers only shorten, never below their floors,
     and the plan still passes the library's safety check (estimate_plans re-runs it)."""
-    from chargeplan.estimate import TIMER_FLOOR_S, estimate_plans
+    from chargeplan.estimate import estimate_plans
 
     outcome = _plan_or_outcome(data)
     assume(not isinstance(outcome, str))
@@ -601,13 +601,16 @@ def test_estimates_keep_every_plan_safe_and_timers_tight(data):
     before = [stage.timer_s for stage in plan.stages]
     estimate_plans([plan])
     for stage, timer in zip(plan.stages, before, strict=True):
-        assert stage.estimate is not None
+        if stage.estimate is None:  # the model did not settle: no estimate, a warning
+            assert any("did not settle" in f.message for f in plan.findings)
+            continue
         assert stage.estimate.charge_ah >= 0 and stage.estimate.energy_wh >= 0
         if timer is None:
             assert stage.timer_s is None
             continue
         assert stage.timer_s <= timer + 1e-9
-        floor = TIMER_FLOOR_S.get(stage.kind)
-        if floor is not None:
-            assert stage.timer_s >= min(floor, timer) - 1e-9
+        if stage.kind.value == "precharge":
+            assert stage.timer_s == timer  # never tightened
+        if stage.kind.value == "bulk":
+            assert stage.timer_s >= min(1800.0, timer) - 1e-9  # the bulk floor
     assert not _independent_violations(data, plan)

@@ -84,7 +84,7 @@ CurrentPerAh = _sourced(
 TempDifference = _sourced(
     "SourcedTemperatureDifference", quantity("temperature_difference", ge=1, le=100), "K"
 )
-Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=0.1, le=3.0)], "")
+Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=1.0, le=3.0)], "")
 Efficiency = _sourced("SourcedEfficiency", Annotated[float, Field(gt=0.5, le=1.0)], "")
 Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0)], "")
 Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")

@@ -47,7 +47,7 @@ DT_MIN_S = 1.0
 DT_MAX_S = 1800.0
 HOLD_DT_MAX_S = 3600.0
 #: A stage still running after this many steps is reported as not converged.
-MAX_STEPS = 200_000
+MAX_STEPS = 20_000
 #: Keeps the polarization resistance finite for an empty cell (model choice).
 SHEPHERD_OFFSET = 0.05
 _GRID = 101  # state-of-charge grid points of the OCV tables (0, 1, ..., 100 %)
@@ -117,6 +117,8 @@ def simulate_charge(
     compacted again only when batteries finish.
     """
     n, width = s.present.shape
+    if record and n != 1:
+        raise ValueError("record=True follows one battery; simulate it alone")
     duration = np.zeros((n, width))
     charge = np.zeros((n, width))
     energy = np.zeros((n, width))
@@ -259,6 +261,14 @@ def simulate_charge(
             warm, x_last, xc_last = warm[keep], x_last[keep], xc_last[keep]
             any_gas = bool(np.any(gas > 0))
 
+    if record and series["time_s"]:
+        # the final state, so the series covers the whole charge
+        series["time_s"].append(t_clock)
+        series["stage"].append(series["stage"][-1])
+        series["voltage_v"].append(series["voltage_v"][-1])
+        series["current_a"].append(0.0)
+        series["soc"].append(float(end_soc[0][~np.isnan(end_soc[0])][-1])
+                             if np.any(~np.isnan(end_soc[0])) else series["soc"][-1])
     result = SimulationResult(duration, charge, energy, end_current, end_soc, held_all,
                               converged)
     if record:

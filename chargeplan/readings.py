@@ -15,6 +15,8 @@ __all__ = ["REST_HOURS", "Runtime", "StateReading", "runtime", "state_of_charge"
 
 #: Hours of rest before an open-circuit reading means much (common practice: several).
 REST_HOURS = 4.0
+#: The loads runtime accepts, in amperes.
+LOAD_RANGE_A = (0.001, 10_000.0)
 #: The trade's rating time when a file gives none: C20 for lead-acid; lithium at 0.2 C.
 DEFAULT_RATED_HOURS = {"lead_acid": 20.0, "lithium": 5.0}
 
@@ -28,18 +30,22 @@ class StateReading:
     notes: list[str] = field(default_factory=list)
 
 
+#: The cell counts of lead-acid batteries as sold (2, 6, 12, 24, 36, 48 V); common practice.
+LEAD_ACID_CELLS = (1, 3, 6, 12, 18, 24)
+
+
 def _cells_from_reading(volts_total: float, table, highest: float, given: int | None,
-                        chemistry: str) -> int:
+                        chemistry: str, family: str) -> int:
     if given is not None:
         return given
     empty = table[0][1]
-    fits = [n for n in range(1, 401) if empty * n <= volts_total <= highest * n]
+    counts = LEAD_ACID_CELLS if family == "lead_acid" else range(1, 401)
+    fits = [n for n in counts if empty * n <= volts_total <= highest * n]
     if len(fits) != 1:
-        options = " or ".join(str(n) for n in fits[:4]) if fits else "no whole number of"
-        raise InputError(
-            f"{volts(volts_total)} of {chemistry} could be {options} cells",
-            field="--cells", fix="give --cells (or --nominal-voltage)",
-        )
+        what = (f"could be {' or '.join(str(n) for n in fits[:4])} rested {chemistry} cells"
+                if fits else f"is no usual count of rested {chemistry} cells (a shorted cell?)")
+        raise InputError(f"{volts(volts_total)} {what}", field="--cells",
+                         fix="give --cells (or --nominal-voltage)")
     return fits[0]
 
 
@@ -64,12 +70,25 @@ def state_of_charge(
     from chargeplan.physics.ocv import soc_from_ocv
 
     profile = (profiles or ProfileSet()).get(chemistry, field="--chemistry")
+    if cells is not None and not 1 <= cells <= 400:
+        raise InputError(f"{cells} is not a cell count", field="--cells",
+                         fix="give the cells in series, e.g. 6 for a 12 V lead-acid battery")
+    if temperature_c is not None and not -60 <= temperature_c <= 100:
+        raise InputError(f"{temperature_c:g} degC is not a battery temperature",
+                         field="--temperature", fix="give the battery's temperature, -60 to "
+                                                    "100 degC")
+    if rested_s is not None and rested_s < 0:
+        raise InputError("cannot be negative", field="--rested-for",
+                         fix="give the time since charging, e.g. 6h")
     if (rest_voltage_v is None) == (specific_gravity is None):
         raise InputError("give one reading", field="--rest-voltage",
                          fix="give --rest-voltage or --specific-gravity")
     notes: list[str] = []
     if nominal_voltage_v is not None and cells is None:
         cells = round(nominal_voltage_v / profile.nominal_cell_voltage.value)
+        if cells < 1:
+            raise InputError(f"{volts(nominal_voltage_v)} is less than one {profile.id} cell",
+                             field="--nominal-voltage", fix="give the battery's nominal voltage")
     if specific_gravity is not None:
         if not profile.vented:
             raise InputError(f"{profile.name} cells are sealed", field="--specific-gravity",
@@ -80,6 +99,10 @@ def state_of_charge(
                              fix="read the hydrometer again (battery acid lies in 1.100-1.300)")
         t = 26.7 if temperature_c is None else temperature_c
         corrected = float(specific_gravity_corrected(specific_gravity, t))
+        if not 1.000 <= corrected <= 1.350:
+            raise InputError(f"{specific_gravity:g} at {celsius(t)} corrects to "
+                             f"{corrected:.3f}, outside 1.000-1.350", field="--temperature",
+                             fix="check the electrolyte's temperature and the reading")
         soc = float(state_of_charge_from_gravity_bci(corrected))
         basis = (f"specific gravity {specific_gravity:.3f} at {celsius(t)} = {corrected:.3f} "
                  "at 26.7 °C (TM 5-4210-230-14&P-1 correction; Battery Council International "
@@ -96,7 +119,7 @@ def state_of_charge(
                              fix="check the leads (red to +) and measure again")
         result_cells = _cells_from_reading(rest_voltage_v, table,
                                            profile.rest_voltage.highest_plausible.value,
-                                           cells, profile.id)
+                                           cells, profile.id, profile.family)
         per_cell = rest_voltage_v / result_cells
         rest = profile.rest_voltage
         low, high = rest.dead_below.value, rest.highest_plausible.value
@@ -159,13 +182,19 @@ def runtime(
         current = power / ctx.nominal_voltage_v
         notes.append(f"{num(power, 1)} W / {volts(ctx.nominal_voltage_v)} nominal = "
                      f"{num(current, 2)} A (the current rises as the voltage sags)")
-    if not current > 0:
-        raise InputError("the load must draw current", field="--load",
-                         fix="give a load above zero")
+    if not LOAD_RANGE_A[0] <= current <= LOAD_RANGE_A[1]:
+        raise InputError(f"{current:.4g} A is outside {LOAD_RANGE_A[0]:g} to "
+                         f"{LOAD_RANGE_A[1]:g} A", field="--load",
+                         fix="give the load's current or power, e.g. '8.3 A' or '100 W'")
     soc = ctx.soc_pct if ctx.soc_pct is not None else 100.0
     if ctx.soc_pct is None:
         notes.append("no state of charge or rest voltage given: starting from full")
     rated = battery_file.battery.capacity_hours or DEFAULT_RATED_HOURS[ctx.profile.family]
     exponent = ctx.profile.physics.peukert_exponent.value
     full_h = float(peukert_runtime_h(ctx.capacity_ah, current, rated, exponent))
+    if current < ctx.capacity_ah / rated:
+        notes.append(f"below the rated current ({num(ctx.capacity_ah / rated, 2)} A) the "
+                     "battery's own self-discharge shortens this; Peukert's law does not "
+                     "count it")
+    notes.append("at low temperatures a battery delivers less than this (not modelled)")
     return Runtime(current, full_h * soc / 100.0, soc, rated, exponent, notes)

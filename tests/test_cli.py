@@ -290,3 +290,30 @@ def test_runtime_with_a_lamp(write_yaml):
     bad = run("runtime", str(path), "--load", "12 V")
     assert bad.exit_code == 2
     _one_line_error(bad, "--load", "100 W")
+
+
+@pytest.mark.parametrize(
+    ("args", "fragment"),
+    [
+        (["--rest-voltage", "11.0V", "--chemistry", "flooded"], "shorted cell"),
+        (["--rest-voltage", "12.3V", "--chemistry", "flooded", "--cells", "0"], "--cells"),
+        (["--rest-voltage", "12.3V", "--chemistry", "flooded", "--nominal-voltage", "1V"],
+         "--nominal-voltage"),
+        (["--rest-voltage", "12.3V", "--chemistry", "flooded", "--temperature", "-300degC"],
+         "--temperature"),
+        (["--rest-voltage", "12.3V", "--chemistry", "flooded", "--rested-for", "-1h"],
+         "--rested-for"),
+    ],
+)
+def test_state_odd_input_exits_2(args, fragment):
+    result = run("state", *args)
+    assert result.exit_code == 2
+    _one_line_error(result, fragment)
+
+
+@pytest.mark.parametrize("load", ["1e-300A", "1e300A", "0A", "-5A"])
+def test_runtime_load_out_of_range_exits_2(write_yaml, load):
+    path = write_yaml(battery())
+    result = run("runtime", str(path), "--load", load)
+    assert result.exit_code == 2
+    _one_line_error(result, "--load")

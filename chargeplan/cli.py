@@ -265,9 +265,9 @@ def runtime(
 
         result = estimate_runtime(load_battery_file(file), load,
                                   profiles=_profile_set(profiles), file=str(file))
-        typer.echo(f"about {duration(result.hours * 3600)} at {result.current_a:.2f} A from "
-                   f"{result.state_of_charge_pct:.0f} % (Peukert's law, k = "
-                   f"{result.exponent:g}, rated over {result.rated_hours:g} h)")
+        typer.echo(f"about {duration(result.runtime_h * 3600)} at {result.current_a:.2f} A "
+                   f"from {result.state_of_charge_pct:.0f} % (Peukert's law, k = "
+                   f"{result.exponent:g}, rated over {result.rated_h:g} h)")
         for note in result.notes:
             typer.echo(f"note: {note}")
 
@@ -411,11 +411,17 @@ def schema(
     out: Annotated[Path | None, typer.Option("--out", help="write the schemas into this "
                                                            "folder")] = None,
     force: Annotated[bool, typer.Option(help="replace schema files that exist")] = False,
+    write: Annotated[bool, typer.Option("--write", help="regenerate the shipped schemas in "
+                                                        "place")] = False,
 ) -> None:
     """Write the JSON Schemas, or check that the shipped ones match the code."""
     with _errors():
         from chargeplan.schema import compare_shipped, write_schemas
 
+        if write:
+            from chargeplan.profiles import data_dir
+
+            out, force = data_dir("schemas"), True
         if out is not None:
             for path in write_schemas(out, force=force):
                 typer.echo(f"wrote {path}")

@@ -152,9 +152,9 @@ def state_of_charge(
 @dataclass
 class Runtime:
     current_a: float
-    hours: float
+    runtime_h: float
     state_of_charge_pct: float
-    rated_hours: float
+    rated_h: float
     exponent: float
     notes: list[str] = field(default_factory=list)
 

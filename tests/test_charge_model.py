@@ -52,8 +52,8 @@ def test_lamp_facts(tmp_path, write_yaml):
                               state={"state_of_charge": "100 %"}))
     result = runtime(load_battery_file(path), "100 W")
     assert result.current_a == pytest.approx(8.33, abs=0.01)
-    assert result.hours < 9 / 8.33 <= 1.1  # less than the plain Ah / A, itself just over 1 h
-    assert result.hours == pytest.approx(20 * (9 / (8.333 * 20)) ** 1.25, rel=1e-3)
+    assert result.runtime_h < 9 / 8.33 <= 1.1  # less than plain Ah / A, itself just over 1 h
+    assert result.runtime_h == pytest.approx(20 * (9 / (8.333 * 20)) ** 1.25, rel=1e-3)
 
 
 @pytest.mark.parametrize("chemistry", ["flooded", "agm", "gel"])

@@ -601,8 +601,10 @@ def test_estimates_keep_every_plan_safe_and_timers_tight(data):
     before = [stage.timer_s for stage in plan.stages]
     estimate_plans([plan])
     for stage, timer in zip(plan.stages, before, strict=True):
-        if stage.estimate is None:  # the model did not settle: no estimate, a warning
-            assert any("did not settle" in f.message for f in plan.findings)
+        if stage.estimate is None:  # no estimate: the model did not settle, or an earlier
+            # stage would end on its safety timer (a fault) so this one would not run
+            assert any("did not settle" in f.message or "would stop with a fault" in f.message
+                       for f in plan.findings)
             continue
         assert stage.estimate.charge_ah >= 0 and stage.estimate.energy_wh >= 0
         if timer is None:

@@ -77,7 +77,7 @@ class CellParameters:
     gas_slope_v: np.ndarray  # volts per e-fold of gas current
     gas_doubling_k: np.ndarray
     temperature_c: np.ndarray
-    soc_start: np.ndarray  # 0..1
+    soc_start: np.ndarray  # a fraction, 0..1 (the plan's state_of_charge_pct / 100)
 
 
 @dataclass
@@ -101,7 +101,7 @@ class SimulationResult:
     charge_ah: np.ndarray
     energy_wh: np.ndarray
     end_current_a: np.ndarray
-    end_soc: np.ndarray
+    end_soc: np.ndarray  # a fraction, 0..1
     held: np.ndarray  # bool: a stage without exits, run for HOLD_WINDOW_S
     converged: np.ndarray  # bool per battery
     series: dict[str, np.ndarray] = field(default_factory=dict)  # N = 1 with record=True

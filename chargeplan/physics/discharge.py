@@ -9,7 +9,7 @@ __all__ = ["peukert_runtime_h"]
 
 
 def peukert_runtime_h(
-    capacity_ah: ArrayLike, current_a: ArrayLike, rated_hours: ArrayLike, exponent: ArrayLike
+    capacity_ah: ArrayLike, current_a: ArrayLike, rated_h: ArrayLike, exponent: ArrayLike
 ) -> np.ndarray:
     """Hours a full battery lasts at a constant current, by Peukert's law.
 
@@ -30,5 +30,5 @@ def peukert_runtime_h(
     """
     c = np.asarray(capacity_ah, dtype=float)
     i = np.asarray(current_a, dtype=float)
-    h = np.asarray(rated_hours, dtype=float)
+    h = np.asarray(rated_h, dtype=float)
     return h * (c / (i * h)) ** np.asarray(exponent, dtype=float)

@@ -25,11 +25,14 @@ def _batteries(n: int, seed: int = 7) -> list[dict]:
     out = []
     for i in range(n):
         chemistry, size = chemistries[i % len(chemistries)]
+        hot = i % 100 == 0  # one in a hundred at the hot edge, where stages may time out
+        lead = chemistry in ("flooded", "agm", "gel")
         out.append({
             "battery": {"name": f"unit {i}", "chemistry": chemistry, **size,
                         "capacity": f"{rng.uniform(5, 200):.1f} Ah"},
-            "state": {"state_of_charge": f"{rng.uniform(0, 90):.0f} %"},
-            "conditions": {"battery_temperature": f"{rng.uniform(10, 35):.1f} degC"},
+            "state": {"state_of_charge": f"{rng.uniform(0, 100):.0f} %"},
+            "conditions": {"battery_temperature":
+                           f"{(49.5 if lead else 44.5) if hot else rng.uniform(0, 40):.1f} degC"},
         })
     return out
 

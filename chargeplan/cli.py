@@ -60,7 +60,8 @@ def _errors() -> Iterator[None]:
         typer.echo(f"refused: {error.reason} [{error.rule_id}]", err=True)
         raise typer.Exit(error.exit_code) from None
     except InputError as error:
-        typer.echo(f"error: {error}", err=True)
+        for line in getattr(error, "lines", None) or [str(error)]:
+            typer.echo(f"error: {line}", err=True)
         raise typer.Exit(error.exit_code) from None
     except ChargeplanError as error:
         typer.echo(f"internal error: {error}", err=True)
@@ -357,6 +358,45 @@ def thermistor(
         for row in table.rows:
             typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "
                        f"{row['code']:>4}")
+
+
+@app.command()
+def storage(
+    site: Annotated[Path, typer.Argument(help="the storage site file (YAML or JSON)")],
+    inventory: Annotated[Path | None, typer.Option("--inventory", help="batteries CSV")] = None,
+    readings: Annotated[Path | None, typer.Option("--readings", help="measured rest voltages "
+                                                  "CSV (date, battery, rest_voltage)")] = None,
+    output: Annotated[Path | None, typer.Option("--output", "-o", help="write the procedure, "
+                                                "schedule and calendar into this folder")] = None,
+    force: Annotated[bool, typer.Option(help="replace files that exist")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Plan winter storage: decay, top-up dates, freeze checks, procedure and calendar."""
+    with _errors():
+        from chargeplan.storage import load_site, plan_storage, read_inventory, read_readings
+
+        site_file = load_site(site)
+        rows = read_inventory(inventory) if inventory is not None else None
+        measured = read_readings(readings) if readings is not None else None
+        found = _profile_set(profiles)
+        plan = plan_storage(site_file, rows, profiles=found,
+                            inventory_file=str(inventory or site))
+        if output is not None:
+            from chargeplan.render.storage_docs import calendar_ics, procedure, schedule_csv
+            from chargeplan.render.write import write_all
+
+            write_all(output, {
+                "procedure.md": procedure(plan, profiles=found),
+                "procedure.html": procedure(plan, profiles=found, html=True),
+                "schedule.csv": schedule_csv(plan),
+                "calendar.ics": calendar_ics(plan),
+            }, force=force)
+            typer.echo(f"wrote {output}/procedure.md, procedure.html, schedule.csv, "
+                       "calendar.ics", err=True)
+        typer.echo(plan.summary(), nl=False)
+        if measured is not None:
+            for flag in plan.compare_readings(measured, found) or ["readings: all as expected"]:
+                typer.echo(f"  reading: {flag}")
 
 
 @app.command("profiles")

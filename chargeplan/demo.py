@@ -8,7 +8,9 @@ from pathlib import Path
 __all__ = ["example_paths"]
 
 
-def example_paths() -> list[Path]:
-    """The bundled example battery files, in the order the demo shows them."""
+def example_paths(*, include_storage: bool = False) -> list[Path]:
+    """The bundled example battery files, in the order the demo shows them (with
+    ``include_storage``, also the storage site examples)."""
     folder = Path(str(files("chargeplan") / "examples"))
-    return sorted(folder.glob("*.yaml"))
+    paths = sorted(folder.glob("*.yaml"))
+    return paths if include_storage else [p for p in paths if not p.name.startswith("storage")]

@@ -17,6 +17,16 @@ SCHEMAS = {
         "ChargerChannel",
         "chargeplan charger channel file (also the battery file's charger section)",
     ),
+    "storage.schema.json": (
+        "chargeplan.model.storage",
+        "SiteFile",
+        "chargeplan storage site file",
+    ),
+    "inventory.schema.json": (
+        "chargeplan.model.storage",
+        "InventoryRow",
+        "chargeplan inventory row (one battery; also the CSV's columns)",
+    ),
     "setpoints.schema.json": (
         "chargeplan.model.setpoints",
         "SetpointDocument",

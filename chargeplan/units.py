@@ -70,6 +70,7 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "resistance": ("ohm", "10 mohm", "a resistance"),
     "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
     "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),
+    "rate": ("percent/day", "4 %/month", "a rate of charge loss such as '4 %/month'"),
 }
 
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")

@@ -223,6 +223,18 @@ class Physics(InputModel):
     gassing: Gassing | None = None
 
 
+Rate = _sourced("SourcedRate", quantity("rate", ge=0, le=10), "%/day")
+
+
+class StorageLoss(InputModel):
+    """How a stored battery loses charge, and when it must be topped up."""
+
+    self_discharge: Rate  # type: ignore[valid-type]
+    reference: Temp  # type: ignore[valid-type]
+    doubling: TempDifference  # type: ignore[valid-type]
+    top_up_below: Percent  # type: ignore[valid-type]
+
+
 class Envelope(InputModel):
     """The hard limits no plan may cross; safety.verify checks every plan against them."""
 
@@ -249,6 +261,7 @@ class Profile(InputModel):
     temperature: Temperature
     rest_voltage: RestVoltage
     physics: Physics
+    storage: StorageLoss
     envelope: Envelope
     cautions: list[str] = Field(default_factory=list)
 

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from chargeplan.errors import InputError
 
-__all__ = ["write_atomic"]
+__all__ = ["write_all", "write_atomic"]
 
 
 def write_atomic(path: str | Path, data: str | bytes, *, force: bool = False) -> Path:
@@ -51,3 +51,26 @@ def write_atomic(path: str | Path, data: str | bytes, *, force: bool = False) ->
                              fix="check the disk and the folder's permissions") from None
         raise
     return target
+
+
+def write_all(folder: str | Path, files: dict[str, str | bytes], *, force: bool = False) -> None:
+    """Write several files into ``folder``: all targets are checked before the first write,
+    so an error leaves nothing half-done; each file is written atomically."""
+    out = Path(folder)
+    if out.is_symlink() or (out.exists() and not out.is_dir()):
+        raise InputError("is not a folder", file=str(out), fix="give a folder to write into")
+    if not out.exists():
+        try:
+            out.mkdir(parents=True)
+        except OSError as error:
+            raise InputError(f"cannot create it ({error.strerror})", file=str(out),
+                             fix="check the path and its permissions") from None
+    for name in files:
+        target = out / name
+        if target.is_symlink():
+            raise InputError("is a symbolic link; chargeplan does not write through links",
+                             file=str(target), fix="remove the link")
+        if target.exists() and not force:
+            raise InputError("already exists", file=str(target), fix="add --force to replace it")
+    for name, data in files.items():
+        write_atomic(out / name, data, force=True)

@@ -16,6 +16,12 @@ from chargeplan.physics.ocv import soc_from_ocv
 NOMINAL_TOLERANCE = {"lead_acid": 0.05, "lithium": 0.08}
 
 
+def cell_counts(nominal_v: float, cell_v: float, tolerance: float) -> list[int]:
+    """The cell counts whose nominal voltage lies within ``tolerance`` of ``nominal_v``."""
+    low, high = max(1, int(nominal_v / cell_v * 0.8)), int(nominal_v / cell_v * 1.2) + 2
+    return [n for n in range(low, high) if abs(n * cell_v - nominal_v) <= tolerance * nominal_v]
+
+
 @rule("CP101", "cells.count", source="IEC 62485-2 (2.0 V per lead-acid cell); common practice: "
       "trade names round lithium pack voltages (12.8 V LiFePO4 is sold as '12 V')")
 def cells_count(ctx: Context) -> None:
@@ -45,11 +51,7 @@ def cells_count(ctx: Context) -> None:
         return
     nominal = battery.nominal_voltage_v
     assert nominal is not None  # the model requires one of the two
-    fits = [
-        n
-        for n in range(max(1, int(nominal / cell_v * 0.8)), int(nominal / cell_v * 1.2) + 2)
-        if abs(n * cell_v - nominal) <= tolerance * nominal
-    ]
+    fits = cell_counts(nominal, cell_v, tolerance)
     if not fits:
         raise ctx.bad_input(
             "battery.nominal_voltage",

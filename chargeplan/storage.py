@@ -186,6 +186,7 @@ class StoragePlan:
     bay_min: np.ndarray | None = None
     bay_index: np.ndarray | None = None
     soc_daily: np.ndarray | None = None  # (batteries, days), at the end of each day
+    maintainer: dict[int, str] = field(default_factory=dict)  # battery -> its hold setting
 
     def compare_readings(self, readings: list[tuple[dt.date, str, float]],
                          profiles: ProfileSet | None = None) -> list[str]:
@@ -411,41 +412,82 @@ def plan_storage(
                        postponed, notes, bay_min, bay_index, soc_daily)
     if plan_top_ups and top_ups:
         _plan_top_ups(plan, profile_set, bay_mean, bay_names)
+    if plan_top_ups and on_maintainer.any():
+        _maintainer_voltages(plan, profile_set, bay_mean)
     return plan
+
+
+def _maintainer_voltages(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray) -> None:
+    """The maintainer's hold voltage for each battery on one: the core engine's storage hold
+    at the bay's mean temperature over the season (compensated for lead-acid)."""
+    from chargeplan.engine.planner import plan_charge
+    from chargeplan.errors import PlanRefused
+    from chargeplan.model.battery import BatteryFile
+    from chargeplan.plan import StageKind
+
+    made: dict[tuple[Any, ...], str] = {}
+    assert plan.bay_index is not None
+    for i in np.flatnonzero(plan.on_maintainer):
+        temp = round(float(bay_mean[plan.bay_index[i]].mean()))
+        key = (plan.chemistry[i], int(plan.cells[i]), round(plan.rows[i].capacity_ah), temp)
+        if key not in made:
+            data = {"battery": {"name": "maintainer", "chemistry": key[0],
+                                "cells_in_series": key[1], "capacity": f"{max(key[2], 1)} Ah"},
+                    "state": {"state_of_charge": "90 %"},
+                    "conditions": {"battery_temperature": f"{temp} degC"},
+                    "storage": {"duration": f"{len(plan.dates)} d"}}
+            try:
+                hold = plan_charge(BatteryFile.model_validate(data),
+                                   profiles=profiles).stage(StageKind.STORAGE_HOLD)
+                made[key] = (f"on a maintainer at {hold.voltage_v:.2f} V (for {temp} degC)"
+                             if hold else "on a maintainer")
+            except PlanRefused as refusal:
+                made[key] = f"not on a maintainer: {refusal.reason}"
+        plan.maintainer[int(i)] = made[key]
 
 
 def _plan_top_ups(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray,
                   bay_names: list[str]) -> None:
-    """A charge plan for each top-up, made once per kind of battery and conditions."""
+    """A charge plan for each top-up, made once per kind of battery and conditions, and all
+    of them estimated together (one simulation of every kind)."""
     from chargeplan.engine.planner import plan_charge
     from chargeplan.errors import PlanRefused
     from chargeplan.estimate import estimate_plans
     from chargeplan.fmt import duration
     from chargeplan.model.battery import BatteryFile
 
-    made: dict[tuple[Any, ...], str] = {}
+    keys: list[tuple[Any, ...]] = []
+    kinds: dict[tuple[Any, ...], int] = {}
+    plans, refused = [], {}
     for top_up in plan.top_ups:
         i = top_up.battery
         row = plan.rows[i]
-        temp = float(bay_mean[bay_names.index(top_up.where), top_up.day])
-        key = (plan.chemistry[i], int(plan.cells[i]), round(row.capacity_ah),
-               int(top_up.soc_before // 5 * 5), round(temp), plan.family[i])
-        if key not in made:
-            remaining = max(len(plan.dates) - top_up.day, 1)
-            data = {
-                "battery": {"name": f"top-up {row.id}", "chemistry": plan.chemistry[i],
-                            "cells_in_series": int(plan.cells[i]),
-                            "capacity": f"{round(row.capacity_ah)} Ah"},
-                "state": {"state_of_charge": f"{int(top_up.soc_before // 5 * 5)} %"},
-                "conditions": {"battery_temperature": f"{round(temp)} degC"},
-                "storage": {"duration": f"{remaining} d"},
-            }
-            try:
-                charge = plan_charge(BatteryFile.model_validate(data), profiles=profiles)
-                estimate_plans([charge], profiles=profiles)
-                total = charge.total_estimate()
-                made[key] = (" -> ".join(s.kind.label for s in charge.stages)
-                             + (f", about {duration(total[0])}" if total else ""))
-            except PlanRefused as refusal:
-                made[key] = f"do not charge here: {refusal.reason}"
-        top_up.plan = made[key]
+        temp = round(float(bay_mean[bay_names.index(top_up.where), top_up.day]))
+        soc = int(top_up.soc_before // 5 * 5)
+        key = (plan.chemistry[i], int(plan.cells[i]), round(row.capacity_ah), soc, temp)
+        keys.append(key)
+        if key in kinds or key in refused:
+            continue
+        remaining = max(len(plan.dates) - top_up.day, 1)
+        data = {
+            "battery": {"name": f"top-up {row.id}", "chemistry": key[0],
+                        "cells_in_series": key[1], "capacity": f"{max(key[2], 1)} Ah"},
+            "state": {"state_of_charge": f"{soc} %"},
+            "conditions": {"battery_temperature": f"{temp} degC"},
+            "storage": {"duration": f"{remaining} d"},
+        }
+        try:
+            plans.append(plan_charge(BatteryFile.model_validate(data), profiles=profiles))
+            kinds[key] = len(plans) - 1
+        except PlanRefused as refusal:
+            refused[key] = f"do not charge here: {refusal.reason}"
+    if plans:
+        estimate_plans(plans, profiles=profiles)
+    text = {}
+    for key, index in kinds.items():
+        charge = plans[index]
+        total = charge.total_estimate()
+        text[key] = (" -> ".join(s.kind.label for s in charge.stages)
+                     + (f", about {duration(total[0])}" if total else ""))
+    for top_up, key in zip(plan.top_ups, keys, strict=True):
+        top_up.plan = text.get(key) or refused[key]

@@ -202,3 +202,13 @@ def test_fast_dischargers_are_flagged():
 def test_bad_rows_exception_lists_each():
     error = InputErrors(["a: line 2: x", "a: line 3: y"])
     assert error.lines == ["a: line 2: x", "a: line 3: y"]
+
+
+def test_maintainer_holds_the_compensated_float():
+    # IEC 62485-2 Table 1: VRLA float 2.27 V/cell; BU-410: -3 mV/degC per cell about 25 degC
+    bays = [{"name": "A", "mains": True}]
+    plan = plan_storage(_site([_battery(1, "agm")], mean="20 degC", policy="maintainer",
+                              bays=bays))
+    assert plan.on_maintainer[0]
+    expected = (2.27 + 0.003 * (25 - 20)) * 6
+    assert f"{expected:.2f} V" in plan.maintainer[0]

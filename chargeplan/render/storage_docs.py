@@ -41,7 +41,8 @@ def schedule_csv(plan: StoragePlan) -> str:
             soc = float(plan.soc_at_rounds[i, r])
             t = by_round[d].get(i)
             if plan.on_maintainer[i]:
-                action, charge = "on maintainer: check it is connected and charging", ""
+                action = "check the maintainer is connected and charging"
+                charge = plan.maintainer.get(i, "on a maintainer")
             elif t is not None:
                 moved = t.where != row.bay
                 action = ("move to " + t.where + " and top up" if moved else "top up")

@@ -399,6 +399,51 @@ def storage(
                 typer.echo(f"  reading: {flag}")
 
 
+@app.command()
+def ventilation(
+    cells: Annotated[int, typer.Option("--cells", help="cells in series per battery")],
+    capacity: Annotated[str, typer.Option("--capacity", help="rated capacity, e.g. 100Ah")],
+    battery_type: Annotated[str, typer.Option("--type", help="vented or vrla")] = "vented",
+    mode: Annotated[str, typer.Option("--mode", help="float or boost")] = "boost",
+    batteries: Annotated[int, typer.Option("--batteries", help="how many")] = 1,
+    room_airflow: Annotated[str | None, typer.Option("--room-airflow",
+                                                     help="the room's airflow, e.g. 50m3/h")] = None,
+    room_opening: Annotated[str | None, typer.Option("--room-opening",
+                                                     help="free opening area, e.g. 200cm2")] = None,
+    as_json: Annotated[bool, typer.Option("--json", help="print JSON")] = False,
+) -> None:
+    """Airflow and opening area a charging room needs (IEC 62485-2 cl. 7), and a room check."""
+    with _errors():
+        from chargeplan.units import option_quantity
+        from chargeplan.ventilation import available_airflow, requirement
+
+        need = requirement(cells, option_quantity(capacity, "capacity", "--capacity") or 0.0,
+                           battery_type, mode, batteries)
+        room = None
+        if room_airflow is not None or room_opening is not None:
+            room = available_airflow(option_quantity(room_airflow, "airflow", "--room-airflow"),
+                                     option_quantity(room_opening, "area", "--room-opening"))
+        if as_json:
+            import json
+
+            out = {"airflow_m3_per_h": need.airflow_m3_per_h,
+                   "opening_area_cm2": need.opening_area_cm2,
+                   "gas_current_mA_per_Ah": need.gas_current_ma_per_ah,
+                   "formula": need.explain()}
+            if room is not None:
+                out |= {"room_airflow_m3_per_h": room, "room_enough": room >= need.airflow_m3_per_h}
+            typer.echo(json.dumps(out, indent=2))
+            return
+        typer.echo(f"airflow needed: {need.airflow_m3_per_h:.4g} m3/h; free opening: "
+                   f"{need.opening_area_cm2:.4g} cm2 (inlet and outlet each)")
+        typer.echo(need.explain())
+        if room is not None:
+            verdict = "enough" if room >= need.airflow_m3_per_h else "NOT enough"
+            typer.echo(f"the room gives {room:.4g} m3/h: {verdict}")
+        typer.echo("keep sparks and flames 0.5 m from the batteries; this does not replace "
+                   "local codes or licensed practice")
+
+
 @app.command("profiles")
 def profiles_command(
     profile_id: Annotated[str | None, typer.Argument(help="show one profile in full")] = None,

@@ -71,7 +71,13 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
     "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),
     "rate": ("percent/day", "4 %/month", "a rate of charge loss such as '4 %/month'"),
+    "airflow": ("m**3/h", "60 m3/h", "an airflow"),
+    "area": ("cm**2", "300 cm2", "an area"),
+    "volume": ("m**3", "40 m3", "a volume"),
 }
+
+#: Kinds whose units users write with a plain exponent: "60 m3/h", "300 cm2".
+_POWERS_WRITTEN_PLAIN = frozenset({"airflow", "area", "volume"})
 
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
 
@@ -134,6 +140,8 @@ def parse_quantity(text: object, kind: str) -> float:
     raw = text.strip()
     if not raw:
         raise ValueError(f"empty; write {wanted}")
+    if kind in _POWERS_WRITTEN_PLAIN:
+        raw = re.sub(r"(?<=[a-z])([23])(?![0-9])", r"**\1", raw.replace("³", "3").replace("²", "2"))
     if _NUMBER_ONLY.match(raw):
         raise ValueError(f"'{raw}' has no unit; write {wanted}")
     simple = _SIMPLE.match(raw)

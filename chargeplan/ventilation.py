@@ -1,0 +1,59 @@
+"""The ventilation a charging room needs (IEC 62485-2 cl. 7), and whether a room has it."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from chargeplan.errors import InputError
+from chargeplan.physics.ventilation import (
+    DILUTION,
+    GAS_CURRENT_MA_PER_AH,
+    HYDROGEN_M3_PER_AH,
+    SAFETY_FACTOR,
+    opening_area_iec62485,
+    ventilation_airflow_iec62485,
+)
+
+__all__ = ["Requirement", "available_airflow", "requirement"]
+
+
+@dataclass(frozen=True)
+class Requirement:
+    cells: int
+    capacity_ah: float
+    battery_type: str
+    mode: str
+    batteries: int
+    gas_current_ma_per_ah: float
+    airflow_m3_per_h: float
+    opening_area_cm2: float
+
+    def explain(self) -> str:
+        return (f"Q = v q s n Igas Crt 10^-3 = {DILUTION:g} x {HYDROGEN_M3_PER_AH:g} m3/Ah x "
+                f"{SAFETY_FACTOR:g} (= 0.05) x {self.cells * self.batteries} cells x "
+                f"{self.gas_current_ma_per_ah:g} mA/Ah ({self.battery_type}, {self.mode}) x "
+                f"{self.capacity_ah:g} Ah x 10^-3 = {self.airflow_m3_per_h:.4g} m3/h; "
+                f"free opening A = 28 Q = {self.opening_area_cm2:.4g} cm2 inlet and outlet "
+                "(IEC 62485-2 cl. 7)")
+
+
+def requirement(cells: int, capacity_ah: float, battery_type: str, mode: str,
+                batteries: int = 1) -> Requirement:
+    """The airflow and opening area for ``batteries`` batteries of ``cells`` cells."""
+    key = (battery_type, mode)
+    if key not in GAS_CURRENT_MA_PER_AH:
+        raise InputError(f"no gas current for {battery_type} on {mode}", field="--type",
+                         fix="use --type vented or vrla and --mode float or boost")
+    if not (1 <= cells <= 1000 and 1 <= batteries <= 100_000 and 0 < capacity_ah <= 1e6):
+        raise InputError("cells, capacity and batteries must be positive", field="--cells",
+                         fix="e.g. --cells 6 --capacity 100Ah --batteries 2")
+    igas = GAS_CURRENT_MA_PER_AH[key]
+    q = float(ventilation_airflow_iec62485(cells * batteries, capacity_ah, igas))
+    return Requirement(cells, capacity_ah, battery_type, mode, batteries, igas, q,
+                       float(opening_area_iec62485(q)))
+
+
+def available_airflow(airflow_m3_per_h: float | None, opening_area_cm2: float | None) -> float:
+    """The airflow a room gives: its mechanical airflow, plus what its openings allow by
+    natural ventilation (Q = A / 28, IEC 62485-2 cl. 7)."""
+    return (airflow_m3_per_h or 0.0) + (opening_area_cm2 or 0.0) / 28.0

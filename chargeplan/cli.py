@@ -407,7 +407,7 @@ def ventilation(
     mode: Annotated[str, typer.Option("--mode", help="float or boost")] = "boost",
     batteries: Annotated[int, typer.Option("--batteries", help="how many")] = 1,
     room_airflow: Annotated[str | None, typer.Option("--room-airflow",
-                                                     help="the room's airflow, e.g. 50m3/h")] = None,
+                                                     help="room airflow, e.g. 50m3/h")] = None,
     room_opening: Annotated[str | None, typer.Option("--room-opening",
                                                      help="free opening area, e.g. 200cm2")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="print JSON")] = False,

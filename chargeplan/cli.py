@@ -400,6 +400,33 @@ def storage(
 
 
 @app.command()
+def bench(
+    file: Annotated[Path, typer.Argument(help="the bench file (YAML or JSON)")],
+    batteries: Annotated[Path | None, typer.Option("--batteries", help="batteries CSV")] = None,
+    output: Annotated[Path | None, typer.Option("--output", "-o", help="write bench.md, "
+                                                "bench.html and setpoint files here")] = None,
+    force: Annotated[bool, typer.Option(help="replace files that exist")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Plan a charging bench: compatibility, schedule, ventilation, setup cards."""
+    with _errors():
+        from chargeplan.bench import load_bench, plan_bench, read_bench_batteries
+
+        found = _profile_set(profiles)
+        rows = read_bench_batteries(batteries) if batteries is not None else None
+        plan = plan_bench(load_bench(file), rows, profiles=found)
+        if output is not None:
+            from chargeplan.render.bench_docs import bench_document, setpoint_files
+            from chargeplan.render.write import write_all
+
+            write_all(output, {"bench.md": bench_document(plan),
+                               "bench.html": bench_document(plan, html=True),
+                               **setpoint_files(plan)}, force=force)
+            typer.echo(f"wrote {output}/bench.md, bench.html and the setpoint files", err=True)
+        typer.echo(plan.summary(), nl=False)
+
+
+@app.command()
 def ventilation(
     cells: Annotated[int, typer.Option("--cells", help="cells in series per battery")],
     capacity: Annotated[str, typer.Option("--capacity", help="rated capacity, e.g. 100Ah")],

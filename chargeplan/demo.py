@@ -10,7 +10,9 @@ __all__ = ["example_paths"]
 
 def example_paths(*, include_storage: bool = False) -> list[Path]:
     """The bundled example battery files, in the order the demo shows them (with
-    ``include_storage``, also the storage site examples)."""
+    ``include_storage``, also the storage-site and bench examples)."""
     folder = Path(str(files("chargeplan") / "examples"))
     paths = sorted(folder.glob("*.yaml"))
-    return paths if include_storage else [p for p in paths if not p.name.startswith("storage")]
+    if include_storage:
+        return paths
+    return [p for p in paths if not p.name.startswith(("storage", "bench"))]

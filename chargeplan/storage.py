@@ -52,6 +52,11 @@ def load_site(path: str | Path) -> SiteFile:
 
 def read_inventory(path: str | Path) -> list[InventoryRow]:
     """The inventory CSV; every bad row is reported (with its line) before anything is done."""
+    return read_rows(path, InventoryRow)
+
+
+def read_rows(path: str | Path, model: Any) -> list[Any]:
+    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
     from pydantic import ValidationError
 
     from chargeplan.loading import input_error
@@ -80,9 +85,9 @@ def read_inventory(path: str | Path) -> list[InventoryRow]:
             except ValueError:
                 pass
         try:
-            rows.append(InventoryRow.model_validate(data))
+            rows.append(model.model_validate(data))
         except ValidationError as error:
-            problem = input_error(error, file=f"{shown}: line {line}", model=InventoryRow)
+            problem = input_error(error, file=f"{shown}: line {line}", model=model)
             errors.append(str(problem))
     if errors:
         raise InputErrors(errors)

@@ -71,8 +71,13 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     reader = csv.DictReader(text.splitlines())
     if reader.fieldnames is None:
         raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
-    rows, errors = [], []
-    for line, raw in enumerate(reader, start=2):
+    rows, errors, seen = [], [], set()
+    for raw in reader:
+        line = reader.line_num
+        if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
+            errors.append(f"{shown}: line {line}: a quote is not closed; check the row for a "
+                          "stray double quote")
+            continue
         if raw.get(None):
             errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
                           "stray comma or quote")
@@ -84,6 +89,11 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
                 data["cells_in_series"] = int(data["cells_in_series"])
             except ValueError:
                 pass
+        if data.get("id") in seen:
+            errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
+                          "each battery its own id")
+            continue
+        seen.add(data.get("id"))
         try:
             rows.append(model.model_validate(data))
         except ValidationError as error:
@@ -211,7 +221,9 @@ class StoragePlan:
                 continue
             table = profile_set.get(self.chemistry[i]).rest_voltage.table
             measured = float(soc_from_ocv(volts / self.cells[i], table))
-            predicted = float(self.soc_daily[i, day])
+            topped = [t for t in self.top_ups if t.battery == i and t.day == day]
+            # on a top-up day, the reading is taken before the top-up
+            predicted = topped[0].soc_before if topped else float(self.soc_daily[i, day])
             if self.chemistry[i] == "lifepo4" and 20 < measured < 90 and 20 < predicted < 90:
                 continue  # LiFePO4's flat curve: a rest voltage cannot tell 30 % from 80 %
             if measured < predicted - FAST_LOSS_POINTS:
@@ -242,6 +254,34 @@ class StoragePlan:
     @property
     def round_step(self) -> int:
         return int(self.site_file.site.round_interval_s // 86400)
+
+
+def _damaged(rows: list[InventoryRow], profiles_of: list[Any], profile_set: ProfileSet,
+             notes: list[tuple[int, str]]) -> list[int]:
+    """Batteries whose intake voltage the core rules refuse (reversed, dead or shorted cell,
+    wrong cell count, over-discharged lithium): they are not to be stored as they are."""
+    from chargeplan.engine.planner import derive_state
+    from chargeplan.errors import PlanRefused
+    from chargeplan.model.battery import BatteryFile
+
+    refused = []
+    for i, row in enumerate(rows):
+        if row.rest_voltage_v is None:
+            continue
+        battery: dict[str, Any] = {"name": row.id, "chemistry": row.chemistry,
+                                   "capacity": f"{row.capacity_ah} Ah"}
+        if row.cells_in_series is not None:
+            battery["cells_in_series"] = row.cells_in_series
+        if row.nominal_voltage_v is not None:
+            battery["nominal_voltage"] = f"{row.nominal_voltage_v} V"
+        data = {"battery": battery, "state": {"rest_voltage": f"{row.rest_voltage_v} V"},
+                "conditions": {"battery_temperature": "20 degC"}}
+        try:
+            derive_state(BatteryFile.model_validate(data), profiles=profile_set)
+        except PlanRefused as refusal:
+            refused.append(i)
+            notes.append((i, f"do not store it as it is: {refusal.reason}"))
+    return refused
 
 
 def _cells(row: InventoryRow, profile) -> int | None:
@@ -344,12 +384,28 @@ def plan_storage(
     start = np.where(lead, 100.0, np.maximum(np.minimum(intake, 100.0), storage_level))
     start = np.where(~lead & (intake > storage_level), intake, start)
 
-    # maintainers
+    # the charge-temperature window of each battery (its profile's, inside the envelope)
+    low_c = np.array([max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value)
+                      for p in profiles_of])
+    high_c = np.array([min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value)
+                       for p in profiles_of])
+    low_c = np.where(lead, low_c, np.maximum(low_c, 0.0))  # never lithium below 0 degC
+    floats = np.array(["float" not in p.envelope.forbidden_stages for p in profiles_of])
+
+    # maintainers: mains, a whole season inside the charge window, lithium only with a lithium
+    # maintainer and never a chemistry that must not be floated (NMC)
     bays = site_file.bays
-    mains = np.array([b.mains for b in bays])[bay_index]
-    li_ok = np.array([b.lithium_maintainer for b in bays])[bay_index] & (
-        bay_min.min(axis=1)[bay_index] >= 0.0)
-    on_maintainer = (site.policy == "maintainer") & mains & (lead | li_ok)
+    mains_bay = np.array([b.mains for b in bays])
+    mains = mains_bay[bay_index]
+    season_min = bay_min.min(axis=1)[bay_index]
+    season_max = bay_mean.max(axis=1)[bay_index]
+    in_window = (season_min >= low_c) & (season_max <= high_c)
+    li_ok = np.array([b.lithium_maintainer for b in bays])[bay_index] & floats
+    excluded = np.zeros(n, dtype=bool)
+    for i in _damaged(rows, profiles_of, profile_set, notes):
+        excluded[i] = True
+    on_maintainer = ((site.policy == "maintainer") & mains & in_window & (lead | li_ok)
+                     & ~excluded)
 
     # daily loss, %/day: self-discharge at the bay's mean temperature plus the draw
     loss = self_discharge_rate(rate[:, None], bay_mean[bay_index], ref[:, None],
@@ -365,18 +421,27 @@ def plan_storage(
     top_ups: list[TopUp] = []
     postponed: list[tuple[int, int]] = []
     pending = np.zeros(n, dtype=bool)
+    waiting_since = np.full(n, -1)
     flagged = np.zeros(n, dtype=bool)
     cum = np.cumsum(loss, axis=1, dtype=np.float64)
     full_freeze = float(freezing_point_tm5_1185(specific_gravity_bci(100.0)))
-    would_freeze = lead & (bay_min.min(axis=1)[bay_index] <= full_freeze)
+    would_freeze = lead & (season_min <= full_freeze)
+    target = np.where(lead, 100.0, storage_level)
+
+    def chargeable(bay: np.ndarray | int, d: int, level: np.ndarray) -> np.ndarray:
+        """Inside the charge window in that bay today (lead-acid: and not frozen)."""
+        ok = (bay_min[bay, d] >= low_c) & (bay_mean[bay, d] <= high_c)
+        frozen = bay_min[bay, d] <= freezing_point_tm5_1185(specific_gravity_bci(level))
+        return ok & ~(lead & frozen)
+
     for r, d in enumerate(round_days):
         soc_rounds[:, r] = soc
         end = min(d + step, days)
         before = cum[:, d - 1] if d > 0 else 0.0
         ahead = cum[:, d:end] - (before[:, None] if d > 0 else 0.0)  # loss by each coming day
         predicted = soc[:, None] - ahead
-        full = soc >= np.where(lead, 100.0, storage_level) - 0.5
-        short = ~on_maintainer & (predicted[:, -1] < threshold)
+        full = soc >= target - 0.5
+        short = ~on_maintainer & ~excluded & (predicted[:, -1] < threshold)
         for i in np.flatnonzero(short & full & ~flagged):
             flagged[i] = True
             notes.append((int(i), f"loses {ahead[i, -1]:.0f} % between rounds even when full: "
@@ -385,21 +450,26 @@ def plan_storage(
         need = short | (pending & ~on_maintainer)
         if lead.any():
             freeze = freezing_point_tm5_1185(specific_gravity_bci(np.clip(predicted, 0, 100)))
-            cold = (bay_min[bay_index][:, d:end] <= freeze + FREEZE_MARGIN_K).any(axis=1)
-            need |= lead & ~on_maintainer & cold & (soc < 100.0)
-        lithium_cold = need & ~lead & (bay_min[bay_index, d] < 0.0)
-        if warm is not None:
-            lithium_cold &= bay_min[warm, d] < 0.0
-        for i in np.flatnonzero(lithium_cold):
+            cold = (bay_min[:, d:end][bay_index] <= freeze + FREEZE_MARGIN_K).any(axis=1)
+            need |= lead & ~on_maintainer & ~excluded & cold & (soc < 100.0)
+        need &= ~full
+        # where to charge: its own bay if it has mains and is inside the window, else the
+        # warm room; otherwise wait for a later round (and say so)
+        here = chargeable(bay_index, d, soc) & mains
+        there = (chargeable(warm, d, soc) & mains_bay[warm]) if warm is not None else (
+            np.zeros(n, dtype=bool))
+        go = need & (here | there)
+        wait = need & ~go
+        for i in np.flatnonzero(wait):
             postponed.append((int(i), d))
-        pending = lithium_cold
-        go = need & ~lithium_cold & ~full
+            if waiting_since[i] < 0:
+                waiting_since[i] = d
+        waiting_since[go] = -1
+        pending = wait
         for i in np.flatnonzero(go):
-            where = bay_names[bay_index[i]]
-            if not lead[i] and bay_min[bay_index[i], d] < 0.0 and warm is not None:
-                where = bay_names[warm]
+            where = bay_names[bay_index[i]] if here[i] else bay_names[warm]  # type: ignore[index]
             top_ups.append(TopUp(int(i), d, float(soc[i]), where))
-        soc = np.where(go, np.where(lead, 100.0, storage_level), soc)
+        soc = np.where(go, target, soc)
         for day in range(d, end):
             soc = np.where(on_maintainer, soc, np.maximum(soc - loss[:, day], 0.0))
             soc_daily[:, day] = soc
@@ -407,12 +477,18 @@ def plan_storage(
                 freeze_now = freezing_point_tm5_1185(specific_gravity_bci(soc))
                 hit = lead & (bay_min[bay_index, day] <= freeze_now) & (first_freeze < 0)
                 first_freeze[hit] = day
+    for i in sorted({i for i, _d in postponed}):
+        low = float(soc_daily[i].min())
+        since = dates[min(d for j, d in postponed if j == i)].isoformat()
+        notes.append((int(i), f"a top-up is due from {since} but no bay with mains is inside "
+                              f"its charge window; it falls to {low:.0f} % this season: move "
+                              "it to a warm room with mains"))
     for i in np.flatnonzero(would_freeze):
         notes.append((int(i), f"its bay falls to {bay_min[bay_index[i]].min():.0f} degC, at "
                               "or below the freezing point of even a full battery: store it "
                               "indoors"))
     plan = StoragePlan(site_file, rows, dates, round_days, [p.id for p in profiles_of], family,
-                       cells, start, np.where(lead, 100.0, storage_level), threshold,
+                       cells, start, target, threshold,
                        on_maintainer, soc_rounds, top_ups, first_freeze, would_freeze,
                        postponed, notes, bay_min, bay_index, soc_daily)
     if plan_top_ups and top_ups:
@@ -479,8 +555,9 @@ def _plan_top_ups(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray,
                         "cells_in_series": key[1], "capacity": f"{max(key[2], 1)} Ah"},
             "state": {"state_of_charge": f"{soc} %"},
             "conditions": {"battery_temperature": f"{temp} degC"},
-            "storage": {"duration": f"{remaining} d"},
         }
+        if plan.family[top_up.battery] == "lithium":  # to its storage level, then stop
+            data["storage"] = {"duration": f"{remaining} d"}
         try:
             plans.append(plan_charge(BatteryFile.model_validate(data), profiles=profiles))
             kinds[key] = len(plans) - 1
@@ -492,7 +569,9 @@ def _plan_top_ups(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray,
     for key, index in kinds.items():
         charge = plans[index]
         total = charge.total_estimate()
-        text[key] = (" -> ".join(s.kind.label for s in charge.stages)
-                     + (f", about {duration(total[0])}" if total else ""))
+        timed = [s.kind.label for s in charge.stages
+                 if not (s.estimate and s.estimate.per_day)]
+        text[key] = (" -> ".join(timed) + (", then disconnect" if len(timed) < len(
+            charge.stages) else "") + (f", about {duration(total[0])}" if total else ""))
     for top_up, key in zip(plan.top_ups, keys, strict=True):
         top_up.plan = text.get(key) or refused[key]

@@ -30,7 +30,7 @@ def _site(batteries, *, mean="20 degC", low="15 degC", days=61, round_days=None,
         "site": site,
         "periods": [{"start": dt.date(2026, 11, 1), "end": dt.date(2027, 12, 31),
                      "mean": mean, "min": low}],
-        "bays": bays or [{"name": "A", "mains": False}],
+        "bays": bays or [{"name": "A", "mains": True}],
         "inventory": batteries,
     })
 
@@ -102,7 +102,7 @@ def test_lithium_never_charged_in_a_frozen_bay():
     cold = plan_storage(_site(batteries, mean="-5 degC", low="-10 degC", days=60,
                               round_days=7))
     assert not cold.top_ups and cold.postponed
-    bays = [{"name": "A"}, {"name": "warm", "offset": "+20 K"}]
+    bays = [{"name": "A", "mains": True}, {"name": "warm", "mains": True, "offset": "+20 K"}]
     moved = plan_storage(_site(batteries, mean="-5 degC", low="-10 degC", days=60,
                                round_days=7, bays=bays, warm_room="warm"))
     assert moved.top_ups and all(t.where == "warm" for t in moved.top_ups)
@@ -171,7 +171,7 @@ def test_outputs_are_written_and_well_formed(tmp_path):
                                                "schedule.csv", "calendar.ics"}
     cal = icalendar.Calendar.from_ical((out / "calendar.ics").read_bytes())
     events = [c for c in cal.walk("VEVENT")]
-    assert len(events) == 13  # 182 days, a round every 14 days
+    assert len(events) == 14  # 183 days (both ends in), a round every 14 days
     procedure = (out / "procedure.md").read_text()
     # Battery Council International table: 75 % rested is 12.45 V on 6 cells
     assert "12.45 V (75 %)" in procedure
@@ -212,3 +212,37 @@ def test_maintainer_holds_the_compensated_float():
     assert plan.on_maintainer[0]
     expected = (2.27 + 0.003 * (25 - 20)) * 6
     assert f"{expected:.2f} V" in plan.maintainer[0]
+
+
+def test_a_top_up_that_cannot_be_done_is_flagged_not_assumed():
+    # BU-410 Table 1: lead-acid charges from -20 degC; below that, or in a bay without mains,
+    # the top-up waits, and the freeze risk it leaves is reported (TM 5-1185 Table III)
+    site = _site([_battery(1, "flooded", parasitic_draw="100 mA")], mean="-25 degC",
+                 low="-45 degC", days=60, round_days=14)
+    plan = plan_storage(site)
+    assert not plan.top_ups and plan.postponed
+    assert (plan.first_freeze_day >= 0).any()
+    assert any("no bay with mains" in why for _, why in plan.notes)
+    no_mains = plan_storage(_site([_battery(1, "flooded")], days=150, round_days=14,
+                                  bays=[{"name": "A", "mains": False}]))
+    assert not no_mains.top_ups and no_mains.postponed
+
+
+def test_nmc_is_never_floated_on_a_maintainer():
+    # BU-702 / BU-808a: no float or trickle for lithium-ion (NMC)
+    bays = [{"name": "A", "mains": True, "lithium_maintainer": True}]
+    plan = plan_storage(_site([_battery(1, "nmc", soc="50 %")], low="5 degC",
+                              policy="maintainer", bays=bays), plan_top_ups=False)
+    assert not plan.on_maintainer[0]
+
+
+def test_damaged_batteries_are_not_stored_as_they_are():
+    # BU-808a: never revive lithium cells below 1.5 V/cell; a 12 V lead-acid battery at 6.3 V
+    # reads like three cells (BCI table)
+    nmc = {"id": "N", "chemistry": "nmc", "cells_in_series": 3, "capacity": "5 Ah",
+           "rest_voltage": "4.0 V", "bay": "A"}
+    agm = {"id": "G", "chemistry": "agm", "nominal_voltage": "12 V", "capacity": "20 Ah",
+           "rest_voltage": "6.3 V", "bay": "A"}
+    plan = plan_storage(_site([nmc, agm]), plan_top_ups=False)
+    notes = " | ".join(why for _, why in plan.notes)
+    assert notes.count("do not store it as it is") == 2

@@ -83,7 +83,7 @@ class Site(InputModel):
     @property
     def days(self) -> int:
         if self.end is not None:
-            return (self.end - self.start).days
+            return (self.end - self.start).days + 1  # the end day is in the season
         assert self.duration_s is not None
         return int(self.duration_s // 86400)
 
@@ -125,6 +125,9 @@ class SiteFile(InputModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> SiteFile:
+        for months in [self.monthly, *(b.monthly for b in self.bays)]:
+            if months is not None and len({m.month for m in months}) != len(months):
+                raise ValueError("a month is listed twice; give each month once")
         if (self.monthly is None) == (self.periods is None):
             raise ValueError("give the site's temperatures as monthly or as periods")
         names = [b.name for b in self.bays]

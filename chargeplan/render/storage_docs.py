@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+import hashlib
 import io
 from collections import defaultdict
 from functools import lru_cache
@@ -44,11 +45,19 @@ def schedule_csv(plan: StoragePlan) -> str:
                 action = "check the maintainer is connected and charging"
                 charge = plan.maintainer.get(i, "on a maintainer")
             elif t is not None:
-                moved = t.where != row.bay
-                action = ("move to " + t.where + " and top up" if moved else "top up")
+                if t.where != row.bay:
+                    action = (f"move to {t.where}; wait until the battery itself is above "
+                              "0 degC (measure it; hours to overnight), then top up")
+                else:
+                    action = "top up"
+                if plan.family[i] == "lead_acid" and plan.bay_min is not None and (
+                        plan.bay_index is not None and plan.bay_min[plan.bay_index[i], d] < 0):
+                    action += "; first check it is not frozen (no ice, no bulging case)"
                 charge = t.plan
             elif i in waiting[d]:
-                action, charge = "top-up due, but its bay is below 0 degC: wait", ""
+                action = ("top-up due, but no bay with mains is inside its charge window "
+                          "today: move it to a warm room with mains")
+                charge = ""
             else:
                 action, charge = "measure the rested voltage", ""
             freeze = plan.first_freeze_day[i]
@@ -73,7 +82,8 @@ def calendar_ics(plan: StoragePlan) -> bytes:
     for d in plan.round_days:
         due = by_day.get(d, [])
         event = icalendar.Event()
-        event.add("uid", f"{plan.dates[d].isoformat()}-{abs(hash(name)) % 10**8}@chargeplan")
+        site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
+        event.add("uid", f"{plan.dates[d].isoformat()}-{site_key}@chargeplan")
         event.add("dtstamp", stamp)
         event.add("dtstart", plan.dates[d])
         event.add("dtend", plan.dates[d] + dt.timedelta(days=1))
@@ -129,7 +139,7 @@ def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None,
         for line in cautions_for(family, vented=vented and family == "lead_acid")[:-1]:
             if line not in cautions:
                 cautions.append(line)
-    deferral = cautions_for("lead_acid", vented=False)[-1]
+    from chargeplan.cautions import DEFERRAL as deferral
     first = plan.first_freeze_day[plan.first_freeze_day >= 0]
     context = {
         "site": plan.site_file.site, "plan": plan, "bands": _bands(plan, profile_set),

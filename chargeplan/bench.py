@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+from bisect import insort
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -41,6 +42,8 @@ __all__ = [
 
 #: Mains power = battery power / this (common practice: switch-mode chargers near 85 %).
 CHARGER_EFFICIENCY = 0.85
+#: The most moves the local search makes (each moves the last-finishing battery).
+LOCAL_SEARCH_MOVES = 50
 #: A lead-acid battery with no probe is unfit when its temperature is this far from the
 #: profile's reference (compensation needs the probe; common practice).
 PROBE_NEEDED_K = 10.0
@@ -251,29 +254,58 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
                      peak_power, lower, notes)
 
 
-def _usage_ok(jobs: list[Job], start: float, end: float, airflow: float, watts: float,
-              room: float, budget: float) -> bool:
-    """Whether a job over [start, end) keeps airflow and power within the room's limits."""
-    overlapping = [j for j in jobs if j.start_min < end and j.end_min > start]
-    if not overlapping:
-        return airflow <= room + 1e-9 and watts <= budget + 1e-9
-    points = [start] + [j.start_min for j in overlapping if start < j.start_min < end]
+def _earliest(jobs: list[Job], free: float, minutes: float, airflow: float, watts: float,
+              room: float, budget: float) -> float | None:
+    """The earliest start at or after ``free`` at which a job of ``minutes`` keeps the room's
+    airflow and the mains budget: tried at ``free`` and at each later end of a placed job,
+    checked at every start inside the window (numpy over the jobs placed)."""
+    if airflow > room + 1e-9 or watts > budget + 1e-9:
+        return None
+    later = jobs  # the caller passes only the jobs that end after ``free``
+    if not later:
+        return free
+    first = [j for j in later if j.start_min < free + minutes]
+    if _fits(first, free, free + minutes, airflow, watts, room, budget):
+        return free
+    starts = np.fromiter((j.start_min for j in later), float, len(later))
+    ends = np.fromiter((j.end_min for j in later), float, len(later))
+    air = np.fromiter((j.airflow_m3_per_h for j in later), float, len(later))
+    power = np.fromiter((j.power_w for j in later), float, len(later))
+    for t in np.unique(np.concatenate(([free], ends[ends > free]))):
+        stop = t + minutes
+        near = (starts < stop) & (ends > t)
+        if not near.any():
+            return float(t)
+        s_, e_ = starts[near], ends[near]
+        points = np.concatenate(([t], s_[(s_ > t) & (s_ < stop)]))
+        inside = (s_[None, :] <= points[:, None]) & (points[:, None] < e_[None, :])
+        if ((inside @ air[near]).max() + airflow <= room + 1e-9
+                and (inside @ power[near]).max() + watts <= budget + 1e-9):
+            return float(t)
+    return None
+
+
+def _fits(jobs: list[Job], start: float, stop: float, airflow: float, watts: float,
+          room: float, budget: float) -> bool:
+    """Whether a job over [start, stop) fits beside ``jobs`` (all overlapping or not)."""
+    running = [j for j in jobs if j.start_min < stop and j.end_min > start]
+    if not running:
+        return True
+    points = [start, *(j.start_min for j in running if start < j.start_min < stop)]
     for t in points:
-        running = [j for j in overlapping if j.start_min <= t < j.end_min]
-        if sum(j.airflow_m3_per_h for j in running) + airflow > room + 1e-9:
-            return False
-        if sum(j.power_w for j in running) + watts > budget + 1e-9:
+        here = [j for j in running if j.start_min <= t < j.end_min]
+        if (sum(j.airflow_m3_per_h for j in here) + airflow > room + 1e-9
+                or sum(j.power_w for j in here) + watts > budget + 1e-9):
             return False
     return True
 
 
-def _earliest(jobs: list[Job], free: float, minutes: float, airflow: float, watts: float,
-              room: float, budget: float) -> float | None:
-    candidates = sorted({free, *(j.end_min for j in jobs if j.end_min > free)})
-    for t in candidates:
-        if _usage_ok(jobs, t, t + minutes, airflow, watts, room, budget):
-            return t
-    return None
+def _ending_after(placed: list[Job], t: float) -> list[Job]:
+    """The placed jobs (kept sorted by end) that end after ``t``: the only ones a job
+    starting at or after ``t`` can overlap."""
+    from bisect import bisect_right
+
+    return placed[bisect_right(placed, t, key=lambda j: j.end_min):]
 
 
 def _schedule(rows, channels, duration, airflow, power, room, budget, day_min, day_start):
@@ -317,12 +349,28 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
     jobs: list[Job] = []
     free = [0.0] * len(channels)
 
+    # at most one battery a channel runs at once: if even the largest such set stays inside
+    # the room's airflow and the budget, the limits never bind and need no checking
+    top = len(channels)
+    most_air = sum(sorted(float(airflow[i]) for i in by_battery)[-top:])
+    most_power = sum(sorted(max(power[(i, c)] for c in by_battery[i])
+                            for i in by_battery)[-top:])
+    if most_air <= room + 1e-9:
+        room = math.inf
+    if most_power <= budget + 1e-9:
+        budget = math.inf
+
     def place(i: int, channel_free: list[float], placed: list[Job]) -> Job | None:
+        """The compatible channel where battery i finishes earliest. Channels are tried in
+        order of their earliest possible finish, and the search stops once no later channel
+        can beat the best found."""
         best: Job | None = None
-        for c in by_battery[i]:
+        for c in sorted(by_battery[i], key=lambda c: channel_free[c] + duration[(i, c)]):
             minutes = duration[(i, c)]
-            start = _earliest(placed, channel_free[c], minutes, float(airflow[i]),
-                              power[(i, c)], room, budget)
+            if best is not None and channel_free[c] + minutes >= best.end_min:
+                break
+            start = _earliest(_ending_after(placed, channel_free[c]), channel_free[c],
+                              minutes, float(airflow[i]), power[(i, c)], room, budget)
             if start is None:
                 continue
             if start + minutes > day_min and not channels[c].unattended:
@@ -349,10 +397,10 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
             unscheduled[i] = (f"{ends} (with the room's ventilation and the mains budget); "
                               "give it a channel that may run unattended, or another day")
             continue
-        jobs.append(job)
+        insort(jobs, job, key=lambda j: j.end_min)
         free[job.channel] = job.end_min
     # local search: move the last-finishing battery while that ends the bench sooner
-    for _ in range(len(jobs)):
+    for _ in range(min(len(jobs), LOCAL_SEARCH_MOVES)):
         if not jobs:
             break
         last = max(jobs, key=lambda j: j.end_min)
@@ -362,7 +410,8 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
         moved = place(last.battery, channel_free, others)
         if moved is None or moved.end_min >= last.end_min - 1e-6:
             break
-        jobs = [*others, moved]
+        jobs = others
+        insort(jobs, moved, key=lambda j: j.end_min)
     if any(j.staggered for j in jobs):
         notes.append("some batteries start later than their channel is free, so that the room's "
                      "ventilation (or the mains budget) is never exceeded")
@@ -371,7 +420,10 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
 
 def _lower_bound(rows, channels, duration, airflow, room, jobs) -> float:
     placed = {j.battery for j in jobs}
-    shortest = {i: min(d for (b, _c), d in duration.items() if b == i) for i in placed}
+    shortest: dict[int, float] = {}
+    for (b, _c), d in duration.items():
+        if b in placed:
+            shortest[b] = min(d, shortest.get(b, math.inf))
     if not shortest:
         return 0.0
     longest = max(shortest.values())

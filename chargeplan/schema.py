@@ -22,6 +22,7 @@ SCHEMAS = {
         "SiteFile",
         "chargeplan storage site file",
     ),
+    "bench.schema.json": ("chargeplan.model.bench", "BenchFile", "chargeplan bench file"),
     "inventory.schema.json": (
         "chargeplan.model.storage",
         "InventoryRow",

@@ -106,8 +106,8 @@ class BenchPlan:
         lines = [f"bench: {len(self.batteries)} batteries, {len(names)} channels; "
                  f"{len(self.jobs)} scheduled, finishing at {self.clock(self.makespan_min)}"]
         gap = (self.makespan_min / self.lower_bound_min - 1) * 100 if self.lower_bound_min else 0
-        lines.append(f"  lower bound {self.clock(self.lower_bound_min)}: at most {gap:.0f} % "
-                     "from the best possible order")
+        lines.append(f"  lower bound {self.clock(self.lower_bound_min)} for the scheduled "
+                     f"batteries: at most {gap:.0f} % from the best possible order")
         lines.append(f"  ventilation: the room gives {self.room_airflow_m3_per_h:.3g} m3/h; "
                      f"peak need {self.peak_airflow_m3_per_h:.3g} m3/h (IEC 62485-2 cl. 7)")
         if self.bench.mains_budget_w:
@@ -123,6 +123,8 @@ class BenchPlan:
                 else:
                     took = job.end_min - job.start_min
                     why = (f"its charge takes {took / 60:.1f} h" if took > due_min
+                           else f"held back for ventilation or mains until "
+                                f"{self.clock(job.start_min)}" if job.staggered
                            else f"waited for a channel until {self.clock(job.start_min)}")
                     due = "  due " + b.due.strftime("%H:%M") + f": MISSED ({why})"
             lines.append(f"  {names[job.channel]:<14} {b.id:<14} {self.clock(job.start_min)} -> "
@@ -166,6 +168,11 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
 
     profile_set = profiles or ProfileSet(use_environment=False)
     rows = list(bench.batteries or []) + list(batteries or [])
+    ids = [b.id for b in rows]
+    twice = sorted({i for i in ids if ids.count(i) > 1})
+    if twice:
+        raise InputError(f"battery id '{twice[0]}' is listed twice", field="batteries",
+                         fix="give each battery its own id")
     if not rows:
         raise InputError("no batteries on the bench", field="batteries",
                          fix="list them under batteries: or give --batteries FILE.csv")
@@ -221,7 +228,8 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
         total = p.total_estimate()
         channel = channels[c]
         if total is None or any("would stop with a fault" in f.message for f in p.findings):
-            fit[i][c] = "the charge would not finish (timer fault or no estimate)"
+            fit[i][c] = ("current too low to finish: the model expects a stage to outlast its "
+                         "safety timer (or has no estimate)")
             continue
         minutes = total[0] / 60.0
         if minutes > day_min and not channel.unattended:
@@ -391,11 +399,8 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
             continue
         job = place(i, free, jobs)
         if job is None:
-            ends = ", ".join(
-                f"on {channels[c].name} it would end {free[c] + duration[(i, c)] - day_min:.0f} "
-                "min after the working day" for c in by_battery[i])
-            unscheduled[i] = (f"{ends} (with the room's ventilation and the mains budget); "
-                              "give it a channel that may run unattended, or another day")
+            unscheduled[i] = _why_not(i, free, jobs, by_battery, duration, airflow, power,
+                                      channels, room, budget, day_min)
             continue
         insort(jobs, job, key=lambda j: j.end_min)
         free[job.channel] = job.end_min
@@ -416,6 +421,35 @@ def _list_schedule(order, rows, channels, duration, airflow, power, room, budget
         notes.append("some batteries start later than their channel is free, so that the room's "
                      "ventilation (or the mains budget) is never exceeded")
     return jobs, unscheduled, notes
+
+
+def _why_not(i, free, jobs, by_battery, duration, airflow, power, channels, room, budget,
+             day_min) -> str:
+    """Why battery i found no place: the day, the room's ventilation or the mains budget."""
+    from chargeplan.physics.ventilation import opening_area_iec62485
+
+    ends = [free[c] + duration[(i, c)] for c in by_battery[i]]
+    if all(e > day_min and not channels[c].unattended for c, e in zip(by_battery[i], ends,
+                                                                      strict=True)):
+        late = min(e - day_min for e in ends)
+        return (f"its channels are taken: it would end at least {late:.0f} min after the "
+                "working day; give it a channel that may run unattended, or another day")
+    peak = 0.0
+    watts = 0.0
+    for c in by_battery[i]:
+        running = [j for j in jobs if j.end_min > free[c]
+                   and j.start_min < free[c] + duration[(i, c)]]
+        peak = max(peak, sum(j.airflow_m3_per_h for j in running) + float(airflow[i]))
+        watts = max(watts, sum(j.power_w for j in running) + power[(i, c)])
+    if peak > room + 1e-9:
+        return (f"the room's ventilation ({room:.3g} m3/h) is taken by batteries gassing at the "
+                f"same time, even staggered within the day: charging it beside them needs "
+                f"{peak:.3g} m3/h of airflow or {float(opening_area_iec62485(peak)):.3g} cm2 "
+                "of openings (IEC 62485-2 cl. 7)")
+    if watts > budget + 1e-9:
+        return (f"the mains budget ({budget:.0f} W) is taken, even staggered within the day: "
+                f"it needs {watts:.0f} W at once")
+    return "no compatible channel is free within the working day"
 
 
 def _lower_bound(rows, channels, duration, airflow, room, jobs) -> float:

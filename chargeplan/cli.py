@@ -453,8 +453,8 @@ def ventilation(
         if as_json:
             import json
 
-            out = {"airflow_m3_per_h": need.airflow_m3_per_h,
-                   "opening_area_cm2": need.opening_area_cm2,
+            out = {"airflow_m3_per_h": round(need.airflow_m3_per_h, 6),
+                   "opening_area_cm2": round(need.opening_area_cm2, 6),
                    "gas_current_mA_per_Ah": need.gas_current_ma_per_ah,
                    "formula": need.explain()}
             if room is not None:

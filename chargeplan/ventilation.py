@@ -54,6 +54,10 @@ def requirement(cells: int, capacity_ah: float, battery_type: str, mode: str,
 
 
 def available_airflow(airflow_m3_per_h: float | None, opening_area_cm2: float | None) -> float:
-    """The airflow a room gives: its mechanical airflow, plus what its openings allow by
-    natural ventilation (Q = A / 28, IEC 62485-2 cl. 7)."""
-    return (airflow_m3_per_h or 0.0) + (opening_area_cm2 or 0.0) / 28.0
+    """The airflow a room gives: its mechanical airflow or what its openings allow by
+    natural ventilation (Q = A / 28, IEC 62485-2 cl. 7), whichever is larger. The standard
+    gives them as alternatives, so they are not added together."""
+    if (airflow_m3_per_h or 0.0) < 0 or (opening_area_cm2 or 0.0) < 0:
+        raise InputError("a room's airflow and openings cannot be negative",
+                         field="--room-airflow", fix="give the room's ventilation, e.g. 50m3/h")
+    return max(airflow_m3_per_h or 0.0, (opening_area_cm2 or 0.0) / 28.0)

@@ -31,6 +31,8 @@ def test_iec62485_formula_and_factors():
     # A = 28 Q cm2
     assert opening_area_iec62485(0.6) == pytest.approx(16.8)
     assert available_airflow(None, 28.0) == pytest.approx(1.0)
+    # mechanical and natural ventilation are alternatives: the larger counts, not the sum
+    assert available_airflow(2.0, 28.0) == pytest.approx(2.0)
 
 
 def test_ventilation_command_json():
@@ -125,6 +127,8 @@ def test_schedule_respects_channels_airflow_and_budget(bench):
         channel = bench.channels[job.channel]
         if b.chemistry in ("lifepo4", "nmc"):
             assert channel.lithium_mode and channel.can_disable_high_voltage_stages
+        if not channel.unattended:  # nothing runs past the day on an attended channel
+            assert job.end_min <= bench.hours.minutes + 1e-6
         same = [j for j in plan.jobs if j.channel == job.channel and j is not job]
         assert all(j.end_min <= job.start_min + 1e-6 or j.start_min >= job.end_min - 1e-6
                    for j in same)
@@ -158,7 +162,30 @@ def test_bench_command_writes_documents(tmp_path):
     assert result.exit_code == 0, result.output
     html = (out / "bench.html").read_text()
     assert "<svg" in html and "Setup cards" in html and "0.5 m" in html
+    assert "hydrogen" in html and "thermal runaway" in html and "Ventilation" in html
     assert "licensed practice" in (out / "bench.md").read_text()
     docs = [p for p in out.iterdir() if p.name.startswith("setpoints-")]
     assert docs and all(json.loads(p.read_text())["format"] == "chargeplan-setpoints"
                         for p in docs)
+
+
+def test_duplicate_battery_ids_are_refused(tmp_path):
+    path = tmp_path / "bench.yaml"
+    path.write_text("room: {airflow: 5 m3/h}\nchannels: [{name: A, max_voltage: 16 V, "
+                    "max_current: 4 A}]\nbatteries:\n"
+                    "  - {id: x, chemistry: agm, nominal_voltage: 12 V, capacity: 9 Ah, "
+                    "state_of_charge: 50 %, temperature: 20 degC}\n"
+                    "  - {id: x, chemistry: flooded, nominal_voltage: 12 V, capacity: 9 Ah, "
+                    "state_of_charge: 50 %, temperature: 20 degC}\n")
+    result = runner.invoke(app, ["bench", str(path)])
+    assert result.exit_code == 2 and "share an id" in result.stderr
+
+
+def test_ventilation_shortfall_names_the_airflow_needed():
+    # two 24 Ah flooded batteries gas 0.144 m3/h each on boost (IEC 62485-2); a 0.2 m3/h room
+    # takes one at a time, and the day is too short for three in a row
+    batteries = [_battery(i, "flooded", "24 Ah", "30 %") for i in (1, 2, 3)]
+    channels = [{"name": "A", **CHANNEL}, {"name": "B", **CHANNEL}]
+    plan = plan_bench(_bench(batteries, channels, room={"airflow": "0.2 m3/h"}))
+    reasons = " | ".join(plan.unscheduled.values())
+    assert plan.unscheduled and "m3/h of airflow" in reasons and "cm2" in reasons

@@ -32,8 +32,8 @@ class Room(InputModel):
 def _clock(raw: object) -> dt.time:
     if isinstance(raw, dt.time):
         return raw
-    if isinstance(raw, int) and 0 <= raw < 24 * 60:  # YAML reads 08:00 as minutes
-        return dt.time(raw // 60, raw % 60)
+    if isinstance(raw, int | float):
+        raise ValueError(f"{raw} is not a time of day; write it as 08:00 (in quotes)")
     try:
         return dt.time.fromisoformat(str(raw).strip())
     except ValueError:
@@ -85,6 +85,8 @@ class BenchBattery(InputModel):
     def _voltage(self) -> BenchBattery:
         if self.nominal_voltage_v is None and self.cells_in_series is None:
             raise ValueError("give nominal_voltage (e.g. '12 V') or cells_in_series")
+        if self.state_of_charge_pct is not None and self.rest_voltage_v is not None:
+            raise ValueError("give state_of_charge or rest_voltage, not both")
         return self
 
 
@@ -93,11 +95,16 @@ class BenchFile(InputModel):
     mains_budget_w: quantity("power", ge=1, le=1e7) | None = Field(
         default=None, alias="mains_budget")
     hours: Hours = Field(default_factory=Hours)
-    channels: list[BenchChannel] = Field(min_length=1)
+    channels: list[BenchChannel]
     batteries: list[BenchBattery] | None = None
 
     @model_validator(mode="after")
     def _names(self) -> BenchFile:
+        if not self.channels:
+            raise ValueError("a bench needs channels; add at least one under channels:")
+        ids = [b.id for b in self.batteries or []]
+        if len(set(ids)) != len(ids):
+            raise ValueError("two batteries share an id; give each battery its own id")
         names = [c.name for c in self.channels]
         twice = sorted({n for n in names if names.count(n) > 1})
         if twice:

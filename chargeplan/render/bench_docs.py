@@ -16,7 +16,7 @@ __all__ = ["BENCH_CAUTIONS", "bench_document", "gantt_svg", "setpoint_files"]
 BENCH_CAUTIONS = (
     "Wear eye protection; keep an eyewash and running water at the bench.",
     "No sparks, flames or smoking within 0.5 m of a charging battery (IEC 62485-2); keep the "
-    "room ventilated as worked out below.",
+    "room ventilated as worked out under Ventilation.",
     "Connect the battery before switching a channel on; switch off before disconnecting.",
     "Charge lithium on a non-combustible surface, away from anything that burns, and never "
     "leave it charging unattended unless its channel is marked for unattended use.",
@@ -60,6 +60,14 @@ def gantt_svg(plan: BenchPlan) -> str:
     return "\n".join(out)
 
 
+def file_name(plan: BenchPlan, battery: int) -> str:
+    """A setpoint file name for a battery that no other battery's can collide with."""
+    import re
+
+    safe = re.sub(r"[^A-Za-z0-9._-]", "_", plan.batteries[battery].id)
+    return f"setpoints-{battery + 1:03d}-{safe}.json"
+
+
 def _cards(plan: BenchPlan) -> list[dict[str, Any]]:
     cards = []
     names = [c.name for c in plan.bench.channels]
@@ -69,6 +77,7 @@ def _cards(plan: BenchPlan) -> list[dict[str, Any]]:
             "id": plan.batteries[job.battery].id,
             "channel": names[job.channel],
             "loads_files": plan.bench.channels[job.channel].loads_files,
+            "file": file_name(plan, job.battery),
             "start": plan.clock(job.start_min), "end": plan.clock(job.end_min),
             "summary": charge.summary(),
             "stages": [{"label": s.kind.label, "voltage": f"{s.voltage_v:.2f} V",
@@ -78,6 +87,33 @@ def _cards(plan: BenchPlan) -> list[dict[str, Any]]:
             "cautions": charge.cautions[:-1],
         })
     return cards
+
+
+def _chemistry_cautions(plan: BenchPlan) -> list[str]:
+    """The cautions of every chemistry on the bench, once each (the deferral is apart)."""
+    seen: list[str] = []
+    for job in plan.jobs:
+        for line in plan.plans[(job.battery, job.channel)].cautions[:-1]:
+            if line not in seen:
+                seen.append(line)
+    return seen
+
+
+def _ventilation(plan: BenchPlan) -> list[str]:
+    from chargeplan.physics.ventilation import opening_area_iec62485
+
+    room = plan.bench.room
+    lines = [f"The room gives {plan.room_airflow_m3_per_h:.3g} m3/h (the larger of its "
+             f"airflow, {room.airflow_m3_per_h or 0:g} m3/h, and its openings, "
+             f"{room.opening_area_cm2 or 0:g} cm2 / 28; IEC 62485-2 cl. 7)."]
+    lines.append(f"At the busiest moment the batteries charging together need "
+                 f"{plan.peak_airflow_m3_per_h:.3g} m3/h, or "
+                 f"{float(opening_area_iec62485(plan.peak_airflow_m3_per_h)):.3g} cm2 of free "
+                 "inlet and outlet (Q = 0.05 n Igas Crt 10^-3 on boost; A = 28 Q).")
+    if room.airflow_m3_per_h is None and room.opening_area_cm2 is None:
+        lines.append("No ventilation was given for the room: lead-acid batteries, which gas, "
+                     "cannot be charged in it.")
+    return lines
 
 
 @lru_cache(maxsize=2)
@@ -99,6 +135,8 @@ def bench_document(plan: BenchPlan, *, html: bool = False) -> str:
         "plan": plan, "names": names, "cards": _cards(plan),
         "matrix": [(plan.batteries[i].id, row) for i, row in enumerate(plan.fit)],
         "summary": plan.summary(), "cautions": BENCH_CAUTIONS, "deferral": DEFERRAL,
+        "chemistry_cautions": _chemistry_cautions(plan),
+        "ventilation": _ventilation(plan),
         "gantt": Markup(gantt_svg(plan)) if html else "",
     }
     name = "bench.html.j2" if html else "bench.md.j2"
@@ -107,13 +145,11 @@ def bench_document(plan: BenchPlan, *, html: bool = False) -> str:
 
 def setpoint_files(plan: BenchPlan) -> dict[str, str]:
     """``setpoints/<battery>.json`` for each battery on a channel that loads files."""
-    import re
-
     from chargeplan.render.setpoints import to_json
 
     files = {}
     for job in plan.jobs:
         if plan.bench.channels[job.channel].loads_files:
-            safe = re.sub(r"[^A-Za-z0-9._-]", "_", plan.batteries[job.battery].id)
-            files[f"setpoints-{safe}.json"] = to_json(plan.plans[(job.battery, job.channel)])
+            files[file_name(plan, job.battery)] = to_json(plan.plans[(job.battery,
+                                                                      job.channel)])
     return files

@@ -55,11 +55,10 @@ def read_inventory(path: str | Path) -> list[InventoryRow]:
     return read_rows(path, InventoryRow)
 
 
-def read_rows(path: str | Path, model: Any) -> list[Any]:
-    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
-    from pydantic import ValidationError
-
-    from chargeplan.loading import input_error
+def _csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
+    """A CSV file (UTF-8, with or without a byte-order mark, any line ends) as a reader whose
+    ``line_num`` is the physical line."""
+    import io
 
     shown = str(path)
     try:
@@ -68,15 +67,25 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
         raise InputError("no such file", file=shown, fix="check the path") from None
     except UnicodeDecodeError:
         raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
-    reader = csv.DictReader(text.splitlines())
+    return shown, csv.DictReader(io.StringIO(text, newline=""))
+
+
+def read_rows(path: str | Path, model: Any) -> list[Any]:
+    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
+    from pydantic import ValidationError
+
+    from chargeplan.loading import input_error
+
+    shown, reader = _csv_reader(path)
     if reader.fieldnames is None:
         raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
     rows, errors, seen = [], [], set()
+    previous = reader.line_num
     for raw in reader:
-        line = reader.line_num
+        line, first, previous = reader.line_num, previous + 1, reader.line_num
         if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
-            errors.append(f"{shown}: line {line}: a quote is not closed; check the row for a "
-                          "stray double quote")
+            errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
+                          f"{line}); check the row for a stray double quote")
             continue
         if raw.get(None):
             errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
@@ -108,15 +117,10 @@ def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
     """The readings log: CSV columns date (YYYY-MM-DD), battery, rest_voltage ('12.41 V')."""
     from chargeplan.units import parse_quantity
 
-    shown = str(path)
-    try:
-        text = Path(path).read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise InputError("no such file", file=shown, fix="check the path") from None
-    except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
+    shown, reader = _csv_reader(path)
     readings, errors = [], []
-    for line, raw in enumerate(csv.DictReader(text.splitlines()), start=2):
+    for raw in reader:
+        line = reader.line_num
         try:
             date = dt.date.fromisoformat((raw.get("date") or "").strip())
             volts = parse_quantity((raw.get("rest_voltage") or "").strip(), "voltage")

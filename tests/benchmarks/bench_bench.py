@@ -42,6 +42,22 @@ def _bench(n: int, channels: int = 40):
         "batteries": batteries})
 
 
+def measure(n: int) -> dict[str, float]:
+    """Seconds to schedule ``n`` batteries on 40 channels and to write the documents."""
+    from chargeplan.bench import plan_bench
+    from chargeplan.render.bench_docs import bench_document, setpoint_files
+
+    bench = _bench(n)
+    start = time.perf_counter()
+    plan = plan_bench(bench)
+    planned = time.perf_counter()
+    bench_document(plan)
+    bench_document(plan, html=True)
+    setpoint_files(plan)
+    return {"plan_s": planned - start, "documents_s": time.perf_counter() - planned,
+            "scheduled": len(plan.jobs)}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[50, 500, 5000])

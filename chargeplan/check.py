@@ -94,8 +94,13 @@ def load_channel_file(path: str | Path) -> ChargerChannel:
 def _schema_violations(doc: dict[str, Any]) -> list[str]:
     from pydantic import ValidationError
 
+    from chargeplan.model import SETPOINT_VERSION
     from chargeplan.model.setpoints import SetpointDocument
 
+    if doc.get("version") != SETPOINT_VERSION:
+        return [f"version: {doc.get('version')!r} is not the setpoint format version this "
+                f"chargeplan reads ({SETPOINT_VERSION}); write the document again with "
+                "'chargeplan plan -f json'"]
     try:
         SetpointDocument.model_validate(doc)
     except ValidationError as error:

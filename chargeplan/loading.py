@@ -77,6 +77,9 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
         data = _parse_json(text, shown)
     else:
         data = _parse_yaml(text, shown)
+    if data is None:  # only comments or blank lines
+        raise InputError("holds no keys, only comments or blank lines", file=shown,
+                         fix=f"write the {what} in YAML or JSON")
     if not isinstance(data, dict):
         raise InputError(
             f"the top level is a {type(data).__name__}, not a mapping of keys",
@@ -126,6 +129,8 @@ def _resolver() -> type:
                 first = table.get(value[0] if value else "", [])
                 for tag, regexp in [*first, *table.get(None, [])]:
                     if regexp.match(value):
+                        if tag == "tag:yaml.org,2002:timestamp":
+                            break  # dates stay text: the model reads them and names the field
                         return Tag(suffix=tag)
                 implicit = (False, implicit[1])
             return super().resolve(kind, value, implicit)
@@ -194,6 +199,8 @@ def _known_keys(model: type[BaseModel], loc: tuple[int | str, ...]) -> list[str]
 def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) -> InputError:
     """The first problem of a validation error as one line; the count of the rest."""
     problems = error.errors(include_url=False)
+    # a misspelt key also shows up as the missing key it was meant to be: name the spelling
+    problems.sort(key=lambda p: p["type"] != "extra_forbidden")
     first = problems[0]
     loc = tuple(first["loc"])
     field = _location(loc) or None

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -70,16 +71,8 @@ def _csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
     return shown, csv.DictReader(io.StringIO(text, newline=""))
 
 
-def read_rows(path: str | Path, model: Any) -> list[Any]:
-    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
-    from pydantic import ValidationError
-
-    from chargeplan.loading import input_error
-
-    shown, reader = _csv_reader(path)
-    if reader.fieldnames is None:
-        raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
-    rows, errors, seen = [], [], set()
+def _csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, dict[str, str]]]:
+    """Each row's line and non-empty cells; a stray quote or an extra cell is an error."""
     previous = reader.line_num
     for raw in reader:
         line, first, previous = reader.line_num, previous + 1, reader.line_num
@@ -92,10 +85,25 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
                           "stray comma or quote")
             continue
         data = {(k or "").strip(): (v or "").strip() for k, v in raw.items()}
-        data = {k: v for k, v in data.items() if v != ""}
+        yield line, {k: v for k, v in data.items() if v != ""}
+
+
+def read_rows(path: str | Path, model: Any) -> list[Any]:
+    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
+    from pydantic import ValidationError
+
+    from chargeplan.loading import input_error
+
+    shown, reader = _csv_reader(path)
+    if reader.fieldnames is None:
+        raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
+    rows: list[Any] = []
+    errors: list[str] = []
+    seen: set[str | None] = set()
+    for line, data in _csv_rows(reader, shown, errors):
         if "cells_in_series" in data:
             try:
-                data["cells_in_series"] = int(data["cells_in_series"])
+                data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
             except ValueError:
                 pass
         if data.get("id") in seen:
@@ -113,23 +121,40 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     return rows
 
 
+READING_COLUMNS = ("date", "battery", "rest_voltage")
+
+
 def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
     """The readings log: CSV columns date (YYYY-MM-DD), battery, rest_voltage ('12.41 V')."""
     from chargeplan.units import parse_quantity
 
     shown, reader = _csv_reader(path)
-    readings, errors = [], []
-    for raw in reader:
-        line = reader.line_num
+    if reader.fieldnames is None:
+        raise InputError("is empty", file=shown,
+                         fix="write the header date,battery,rest_voltage, then one row a reading")
+    missing = [c for c in READING_COLUMNS if c not in [f.strip() for f in reader.fieldnames]]
+    if missing:
+        raise InputError(f"has no {', '.join(missing)} column", file=shown, field=missing[0],
+                         fix="write the header date,battery,rest_voltage")
+    readings: list[tuple[dt.date, str, float]] = []
+    errors: list[str] = []
+    for line, data in _csv_rows(reader, shown, errors):
+        where = f"{shown}: line {line}"
         try:
-            date = dt.date.fromisoformat((raw.get("date") or "").strip())
-            volts = parse_quantity((raw.get("rest_voltage") or "").strip(), "voltage")
-            battery = (raw.get("battery") or "").strip()
-            if not battery:
-                raise ValueError("battery is empty; give the battery id")
-            readings.append((date, battery, volts))
+            date = dt.date.fromisoformat(data.get("date", ""))
+        except ValueError:
+            errors.append(f"{where}: date: '{data.get('date', '')}' is not a date; write it as "
+                          "YYYY-MM-DD, e.g. 2026-12-01")
+            continue
+        if not data.get("battery"):
+            errors.append(f"{where}: battery: is empty; give the battery id")
+            continue
+        try:
+            volts = parse_quantity(data.get("rest_voltage", ""), "voltage")
         except ValueError as error:
-            errors.append(f"{shown}: line {line}: {error}")
+            errors.append(f"{where}: rest_voltage: {error}")
+            continue
+        readings.append((date, data["battery"], volts))
     if errors:
         raise InputErrors(errors)
     return readings

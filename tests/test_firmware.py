@@ -253,6 +253,20 @@ def test_quantisation_that_leaves_the_range_is_refused():
     assert caught.value.rule_id == "CP405"
     with pytest.raises(PlanRefused):
         _quantised("50 mV", "5 A")  # 2.4 A on a 5 A step is 0 A
+    # absorption 13.65 V + 0.018 V/K x 18 K = 13.974 V and float 13.944 V (BU-410 arithmetic)
+    # both land on 13.9 V on a 100 mV step: held at charge voltage for ever, so refused
+    from .conftest import plan_of
+
+    data = battery(battery={"capacity": "12 Ah", "overrides": {"absorption_voltage": "13.65 V"}},
+                   state={"rest_voltage": "12.31 V"},
+                   conditions={"battery_temperature": "7 degC"},
+                   charger={"max_voltage": "16 V", "max_current": "4 A", "voltage_step": "100 mV",
+                            "can_disable_high_voltage_stages": True})
+    with pytest.raises(PlanRefused, match="no lower than the charge voltage") as caught:
+        plan_of(data)
+    assert caught.value.rule_id == "CP405"
+    data["charger"]["voltage_step"] = "10 mV"
+    assert plan_of(data).stage("float").voltage_v < plan_of(data).stage("absorption").voltage_v
 
 
 def test_quantisation_report_on_the_command_line(write_yaml):

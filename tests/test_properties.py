@@ -293,6 +293,9 @@ def battery_files(
         channel["can_disable_high_voltage_stages"] = draw(st.integers(0, 4)) > 0
         if draw(st.booleans()):
             channel["name"] = f"bench channel {draw(st.sampled_from('ABCDEF'))}"
+        if draw(st.integers(0, 2)) == 0:  # a channel that sets its outputs in steps
+            channel["voltage_step"] = f"{draw(st.sampled_from([1, 5, 10, 20, 50, 100]))} mV"
+            channel["current_step"] = f"{draw(st.sampled_from([1, 10, 50, 100, 250]))} mA"
         data["charger"] = channel
     return data
 
@@ -461,7 +464,7 @@ def test_profile_files_stay_inside_published_limits():
     assert boundary <= LITHIUM_WINDOW_C[1] and cell_v <= NMC_WARM_CELL_V  # JEITA (2007)
 
 
-@settings(max_examples=1500, deadline=None)
+@settings(max_examples=2000, deadline=None)
 @given(data=battery_files())
 def test_any_valid_battery_file_gets_a_safe_plan_or_a_clean_refusal(data):
     outcome = _plan_or_outcome(data)
@@ -479,7 +482,7 @@ def test_any_valid_battery_file_gets_a_safe_plan_or_a_clean_refusal(data):
     safety.verify(plan, hard_envelope(plan.battery.chemistry))
 
 
-@settings(max_examples=500, deadline=None)
+@settings(max_examples=800, deadline=None)
 @given(
     data=battery_files(LEAD_ACID, with_channel=False),
     t1=st.integers(-200, 500),
@@ -616,3 +619,119 @@ def test_estimates_keep_every_plan_safe_and_timers_tight(data):
         if stage.kind.value == "bulk":
             assert stage.timer_s >= min(1800.0, timer) - 1e-9  # the bulk floor
     assert not _independent_violations(data, plan)
+
+
+_DEFINE = re.compile(r"^#define (CP_\w+) \(?(-?\d+)u?\)?$", re.M)
+_STAGE = re.compile(r"\{(CP_KIND_\w+), (\d+)u, (\d+)u, (\d+)u, (\d+u|CP_NONE_U32),\s+"
+                    r"(\d+)u, (\d+)u, (\d+)u, (\d+)u, (\d+)u, (\d+)u\}")
+_ROW = re.compile(r"^    \{(-?\d+), (\d+)u, (\d+)u, (\d+)u\},?$", re.M)
+NONE_U32 = 0xFFFFFFFF
+
+
+def _exit_of(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
+    for e in stage["exits"]:
+        if e["condition"] == condition:
+            return e[key], 0 if e["then"] == "next" else 1
+    return NONE_U32, 0
+
+
+@settings(max_examples=1200, deadline=None)
+@given(data=battery_files(), bit=st.integers(0, 1 << 20))
+def test_json_header_and_image_carry_the_same_numbers(data, bit):
+    """The three firmware outputs agree number for number: the header is read back with
+    regular expressions written here, the image through its decoder; one flipped bit in the
+    image is always caught (zlib.crc32 detects every single-bit error, ITU-T V.42)."""
+    from chargeplan.render import image
+    from chargeplan.render.c_header import render_c_header
+
+    outcome = _plan_or_outcome(data)
+    if isinstance(outcome, str):
+        event(outcome)
+    assume(not isinstance(outcome, str))
+    doc = encode(outcome)
+    header = render_c_header(outcome, doc)
+    defines = {name: int(value) for name, value in _DEFINE.findall(header)}
+    lock = doc["interlocks"]
+    assert defines["CP_FORMAT_VERSION"] == doc["version"]
+    assert defines["CP_CELLS_IN_SERIES"] == doc["cells_in_series"]
+    assert defines["CP_PLANNED_TEMPERATURE_DC"] == doc["planned_temperature_dC"]
+    for key in ("charge_temperature_min_dC", "charge_temperature_max_dC", "cell_voltage_max_mV",
+                "battery_voltage_max_mV", "current_max_mA"):
+        assert defines["CP_" + key.upper()] == lock[key], key
+    assert f'#define CP_DIGEST "{doc["digest"]}"' in header
+    stages = _STAGE.findall(header)
+    assert len(stages) == defines["CP_STAGE_COUNT"] == len(doc["stages"])
+    for row, stage in zip(stages, doc["stages"], strict=True):
+        kind, comp, volts, amps, timer, *exits = row
+        assert kind == "CP_KIND_" + stage["kind"].upper()
+        assert int(comp) == int(stage["compensated"])
+        assert (int(volts), int(amps)) == (stage["voltage_mV"], stage["current_mA"])
+        assert timer == ("CP_NONE_U32" if stage["timer_s"] is None else f"{stage['timer_s']}u")
+        assert [int(v) for v in exits] == [
+            *_exit_of(stage, "voltage_reached", "voltage_mV"),
+            *_exit_of(stage, "current_below", "current_mA"),
+            *_exit_of(stage, "duration", "duration_s")]
+    table = doc["temperature_table"]
+    rows = [[int(v) for v in r] for r in _ROW.findall(header)]
+    assert rows == [[r["temperature_dC"], r["charge_voltage_mV"], r["hold_voltage_mV"] or 0,
+                     r["current_max_mA"]] for r in (table["rows"] if table else [])]
+    # The image decodes to the document's numbers.
+    data_bytes = image.encode(doc)
+    back = image.decode(data_bytes)
+    for key in ("cells_in_series", "planned_temperature_dC", "interlocks",
+                "temperature_compensation", "temperature_table", "digest"):
+        assert back[key] == doc[key], key
+    for mine, theirs in zip(back["stages"], doc["stages"], strict=True):
+        assert mine == {k: theirs[k] for k in mine}
+    flipped = bytearray(data_bytes)
+    where = bit % (len(flipped) * 8)
+    flipped[where // 8] ^= 1 << (where % 8)
+    try:
+        image.decode(bytes(flipped))
+    except image.ImageError:
+        pass
+    else:
+        raise AssertionError(f"bit {where} flipped went unnoticed")
+
+
+@settings(max_examples=600, deadline=None)
+@given(data=battery_files(in_window=True),
+       voltage_step=st.sampled_from([1, 5, 10, 20, 50, 100, 200]),
+       current_step=st.sampled_from([1, 10, 50, 100, 250, 500]))
+def test_quantisation_never_moves_a_limit_toward_danger(data, voltage_step, current_step):
+    """The same battery on a channel with and without output steps: on the steps every
+    voltage and current limit is at or below, every tail current at or above (the stage ends
+    sooner), and no stage can put in more charge before its timer trips (common practice:
+    round limits toward safety)."""
+    data.setdefault("charger", {"max_voltage": "60 V", "max_current": "500 A",
+                                "can_disable_high_voltage_stages": True})
+    data["charger"].pop("voltage_step", None)
+    data["charger"].pop("current_step", None)
+    plain = _plan_or_outcome(data)
+    assume(not isinstance(plain, str))
+    stepped_data = copy.deepcopy(data)
+    stepped_data["charger"]["voltage_step"] = f"{voltage_step} mV"
+    stepped_data["charger"]["current_step"] = f"{current_step} mA"
+    stepped = _plan_or_outcome(stepped_data)
+    if isinstance(stepped, str):
+        event(f"stepped: {stepped}")  # refused (CP405) when a step leaves the channel's range
+        return
+    event("both planned")
+    assert [s.kind for s in stepped.stages] == [s.kind for s in plain.stages]
+    for a, b in zip(plain.stages, stepped.stages, strict=True):
+        assert b.voltage_v <= a.voltage_v + FLOAT_NOISE
+        assert b.current_a <= a.current_a + FLOAT_NOISE
+        if a.timer_s is not None:
+            # a lower current may run longer, but the charge a stage can put in before its
+            # timer trips never grows (timers are set from the stage's charge, common practice)
+            assert b.timer_s is not None
+            assert b.current_a * b.timer_s <= a.current_a * a.timer_s * (1 + 1e-9) + 1e-6
+        for e, f in zip(a.exits, b.exits, strict=True):
+            if e.kind == ExitKind.CURRENT_BELOW:
+                assert f.value >= e.value - FLOAT_NOISE
+            else:
+                assert f.value <= e.value + FLOAT_NOISE
+    lock_a, lock_b = plain.interlocks, stepped.interlocks
+    assert lock_b.battery_voltage_max_v <= lock_a.battery_voltage_max_v + FLOAT_NOISE
+    assert lock_b.current_max_a <= lock_a.current_max_a + FLOAT_NOISE
+    assert lock_b.charge_temperature_min_c >= lock_a.charge_temperature_min_c - FLOAT_NOISE

@@ -51,12 +51,23 @@ def _schema(kind: str, description: str | None = None) -> dict[str, Any]:
     }
 
 
+def _shown(value: float, unit: str) -> str:
+    """A bound or value as a person wrote it: durations in days or hours, not seconds."""
+    if unit == "s" and value == 0:
+        return "0 d"
+    if unit == "s" and abs(value) >= 3600:
+        return f"{value / 86400:g} d" if abs(value) >= 86400 else f"{value / 3600:g} h"
+    return f"{value:g} {unit}"
+
+
 def _bounded(kind: str, low: float | None, high: float | None, unit: str):
     def check(value: float) -> float:
         if low is not None and value < low:
-            raise ValueError(f"{value:g} {unit} is below the least sensible {low:g} {unit}")
+            raise ValueError(f"{_shown(value, unit)} is below the least sensible "
+                             f"{_shown(low, unit)}")
         if high is not None and value > high:
-            raise ValueError(f"{value:g} {unit} is above the largest sensible {high:g} {unit}")
+            raise ValueError(f"{_shown(value, unit)} is above the largest sensible "
+                             f"{_shown(high, unit)}")
         return value
 
     return check

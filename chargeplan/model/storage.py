@@ -133,6 +133,11 @@ class SiteFile(InputModel):
         names = [b.name for b in self.bays]
         if len(set(names)) != len(names):
             raise ValueError("two bays share a name; give each bay its own name")
+        ids = [row.id for row in self.inventory or []]
+        if len(set(ids)) != len(ids):
+            twice = next(i for i in ids if ids.count(i) > 1)
+            raise ValueError(f"battery id '{twice}' is listed twice in the inventory; give each "
+                             "battery its own id")
         if self.site.warm_room is not None and self.site.warm_room not in names:
             raise ValueError(f"warm_room '{self.site.warm_room}' is not one of the bays")
         if self.periods:

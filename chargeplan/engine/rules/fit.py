@@ -205,3 +205,16 @@ def charger_quantisation(ctx: Context) -> None:
                 e = Exit(e.kind, tail, e.then)
             exits.append(e)
         stage.voltage_v, stage.current_a, stage.exits = v_new, i_new, exits
+    # a lead-acid hold stage must stay below the charge voltage: on a coarse step both can
+    # land on the same value, and a battery held at absorption voltage forever is overcharged
+    held = [s for s in ctx.stages if s.kind.value in ("float", "storage_hold")]
+    charged = [s.voltage_v for s in ctx.stages if s.kind.value in ("bulk", "absorption")]
+    if held and charged and not ctx.lithium:
+        for stage in held:
+            if stage.voltage_v >= max(charged) - 1e-9:
+                raise ctx.refuse(
+                    f"on the channel's {volts(v_step or 0)} step the {stage.kind.label} voltage "
+                    f"{volts(stage.voltage_v)} is no lower than the charge voltage "
+                    f"{volts(max(charged))}, so the battery would be held at charge voltage; "
+                    "use a channel with a finer voltage step"
+                )

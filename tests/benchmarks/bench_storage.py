@@ -46,12 +46,18 @@ def _site(n: int):
 def child(n: int, write: bool) -> None:
     import resource
 
+    from chargeplan.errors import InputError
     from chargeplan.render.storage_docs import calendar_ics, schedule_csv
     from chargeplan.storage import plan_storage
 
     site = _site(n)
     start = time.perf_counter()
-    plan = plan_storage(site)
+    try:
+        plan = plan_storage(site)
+    except InputError as error:  # too large for the memory limit: refused before any work
+        print(json.dumps({"n": n, "refused": str(error), "plan_s": time.perf_counter() - start,
+                          "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
+        return
     planned = time.perf_counter()
     written = planned
     if write:
@@ -77,6 +83,10 @@ def main() -> None:
         out = subprocess.run([sys.executable, __file__, "--child", str(n)], check=True,
                              capture_output=True, text=True).stdout
         r = json.loads(out)
+        if "refused" in r:
+            print(f"{n:>10} refused after {r['plan_s']:.2f} s, peak {r['peak_mb']:.0f} MB "
+                  f"(the inventory itself): {r['refused']}")
+            continue
         print(f"{n:>10} {r['plan_s']:8.2f} {r['plan_s'] / n * 1e6:11.1f} {r['top_ups']:>8} "
               f"{r['peak_mb']:8.0f}")
     out = subprocess.run([sys.executable, __file__, "--child", "10000", "--write"], check=True,

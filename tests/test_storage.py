@@ -243,6 +243,10 @@ def test_damaged_batteries_are_not_stored_as_they_are():
            "rest_voltage": "4.0 V", "bay": "A"}
     agm = {"id": "G", "chemistry": "agm", "nominal_voltage": "12 V", "capacity": "20 Ah",
            "rest_voltage": "6.3 V", "bay": "A"}
-    plan = plan_storage(_site([nmc, agm]), plan_top_ups=False)
+    # a negative reading is a meter on reversed leads (common practice), named as such
+    reversed_leads = {"id": "R", "chemistry": "flooded", "nominal_voltage": "12 V",
+                      "capacity": "60 Ah", "rest_voltage": "-12.4 V", "bay": "A"}
+    plan = plan_storage(_site([nmc, agm, reversed_leads]), plan_top_ups=False)
     notes = " | ".join(why for _, why in plan.notes)
-    assert notes.count("do not store it as it is") == 2
+    assert notes.count("do not store it as it is") == 3
+    assert "leads are reversed" in notes

@@ -8,6 +8,7 @@ from pydantic import Field, field_validator, model_validator
 
 from chargeplan.model.charger import ChargerChannel
 from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.rows import BatteryRow
 
 __all__ = ["BenchBattery", "BenchChannel", "BenchFile", "Hours", "Room"]
 
@@ -65,26 +66,16 @@ class BenchChannel(ChargerChannel):
     power_max_w: quantity("power", ge=1, le=1e6) | None = Field(default=None, alias="power_max")
 
 
-class BenchBattery(InputModel):
-    id: Text
-    chemistry: Text
-    nominal_voltage_v: quantity("voltage", ge=1, le=1000) | None = Field(
-        default=None, alias="nominal_voltage")
-    cells_in_series: int | None = Field(default=None, ge=1, le=400)
-    capacity_ah: quantity("capacity", ge=0.05, le=100_000) = Field(alias="capacity")
-    state_of_charge_pct: quantity("fraction", ge=0, le=100) | None = Field(
-        default=None, alias="state_of_charge")
-    rest_voltage_v: quantity("voltage", ge=-1000, le=1000) | None = Field(
-        default=None, alias="rest_voltage")
+class BenchBattery(BatteryRow):
+    """One battery on the bench: a row's fields, its temperature and when it is wanted."""
+
     temperature_c: quantity("temperature", ge=-60, le=100) = Field(alias="temperature")
     due: dt.time | None = None
 
     _due = field_validator("due", mode="before")(lambda raw: None if raw is None else _clock(raw))
 
     @model_validator(mode="after")
-    def _voltage(self) -> BenchBattery:
-        if self.nominal_voltage_v is None and self.cells_in_series is None:
-            raise ValueError("give nominal_voltage (e.g. '12 V') or cells_in_series")
+    def _state(self) -> BenchBattery:
         if self.state_of_charge_pct is not None and self.rest_voltage_v is not None:
             raise ValueError("give state_of_charge or rest_voltage, not both")
         return self

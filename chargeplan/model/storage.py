@@ -10,6 +10,7 @@ from typing import Literal
 from pydantic import Field, model_validator
 
 from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.rows import BatteryRow
 
 __all__ = ["Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile"]
 
@@ -88,20 +89,10 @@ class Site(InputModel):
         return int(self.duration_s // 86400)
 
 
-class InventoryRow(InputModel):
+class InventoryRow(BatteryRow):
     """One battery in store (a CSV row, or an inline entry)."""
 
-    id: Text
     owner: str = ""
-    chemistry: Text
-    nominal_voltage_v: quantity("voltage", ge=1, le=1000) | None = Field(
-        default=None, alias="nominal_voltage")
-    cells_in_series: int | None = Field(default=None, ge=1, le=400)
-    capacity_ah: quantity("capacity", ge=0.05, le=100_000) = Field(alias="capacity")
-    state_of_charge_pct: quantity("fraction", ge=0, le=100) | None = Field(
-        default=None, alias="state_of_charge")
-    rest_voltage_v: quantity("voltage", ge=0, le=1000) | None = Field(
-        default=None, alias="rest_voltage")
     bay: Text
     parasitic_draw_a: quantity("current", ge=0, le=100) | None = Field(
         default=None, alias="parasitic_draw",
@@ -109,8 +100,6 @@ class InventoryRow(InputModel):
 
     @model_validator(mode="after")
     def _reading(self) -> InventoryRow:
-        if self.nominal_voltage_v is None and self.cells_in_series is None:
-            raise ValueError("give nominal_voltage (e.g. '12 V') or cells_in_series")
         if (self.state_of_charge_pct is None) == (self.rest_voltage_v is None):
             raise ValueError("give state_of_charge or rest_voltage at intake (one of them)")
         return self

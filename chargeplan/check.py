@@ -7,7 +7,6 @@ battery file and a charger channel), never the rules that made it.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -41,7 +40,7 @@ class CheckReport:
 def read_setpoint_file(path: str | Path) -> tuple[dict[str, Any], str, list[str]]:
     """The document in a JSON file or an image, its kind, and integrity violations found
     while reading (digest or CRC). A file that is neither is an InputError."""
-    from chargeplan.loading import MAX_INPUT_BYTES
+    from chargeplan.loading import MAX_INPUT_BYTES, parse_json
     from chargeplan.render import image
 
     shown = str(path)
@@ -64,11 +63,15 @@ def read_setpoint_file(path: str | Path) -> tuple[dict[str, Any], str, list[str]
             raise InputError(str(error), file=shown,
                              fix="write the image again with 'chargeplan plan -f image'") from None
     try:
-        doc = json.loads(raw.decode("utf-8-sig"))
-    except (UnicodeDecodeError, json.JSONDecodeError):
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = ""
+    if not text.lstrip().startswith(("{", "[")):
         raise InputError("is neither a setpoint JSON document nor a setpoint image",
                          file=shown, fix="give the file 'chargeplan plan -f json' or "
-                                         "'-f image' wrote") from None
+                                         "'-f image' wrote")
+    # strict JSON: a duplicate key (the last would silently win) or NaN is refused
+    doc = parse_json(text, shown)
     if not isinstance(doc, dict) or doc.get("format") != "chargeplan-setpoints":
         raise InputError("is JSON but not a chargeplan setpoint document", file=shown,
                          field="format", fix="give the file 'chargeplan plan -f json' wrote")

@@ -74,7 +74,7 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     if not text.strip():
         raise InputError("is empty", file=shown, fix=f"write the {what} in YAML or JSON")
     if path.suffix.lower() == ".json":
-        data = _parse_json(text, shown)
+        data = parse_json(text, shown)
     else:
         data = _parse_yaml(text, shown)
     if data is None:  # only comments or blank lines
@@ -89,7 +89,8 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     return data
 
 
-def _parse_json(text: str, shown: str) -> Any:
+def parse_json(text: str, shown: str) -> Any:
+    """Strict JSON: a duplicate key, NaN or Infinity is refused, with the line and column."""
     try:
         return json.loads(text, parse_constant=_reject_constant,
                           object_pairs_hook=_no_duplicate_keys)

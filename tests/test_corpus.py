@@ -75,8 +75,7 @@ def _run_bad(kind: str, file: Path, code: int, fragment: str, tmp_path: Path,
     (out / "keep.txt").write_text("a file that was here before\n")
     before = _snapshot(out)
     result = runner.invoke(app, _command(kind, file, out, setpoints))
-    assert not isinstance(result.exception, Exception) or isinstance(
-        result.exception, SystemExit), result.exception
+    assert result.exception is None or isinstance(result.exception, SystemExit), result.exception
     text = result.stderr + result.stdout
     assert "Traceback" not in text and "internal error" not in text, text
     assert result.exit_code == code, text
@@ -120,8 +119,8 @@ def test_good_partners_pass(tmp_path, good_setpoints):
 
 
 def _flip_json_digit(good: dict[str, Path], folder: Path) -> Path:
-    doc = json.loads(good["json"].read_text())
     text = good["json"].read_text()
+    doc = json.loads(text)
     voltage = doc["stages"][1]["voltage_mV"]
     edited = text.replace(f'"voltage_mV": {voltage}', f'"voltage_mV": {voltage ^ 1}', 1)
     assert edited != text

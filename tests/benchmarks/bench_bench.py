@@ -62,20 +62,10 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[50, 500, 5000])
     args = parser.parse_args()
-    from chargeplan.bench import plan_bench
-    from chargeplan.render.bench_docs import bench_document, setpoint_files
-
     print(f"{'batteries':>10} {'plan s':>8} {'documents s':>12} {'scheduled':>10}")
     for n in args.sizes:
-        bench = _bench(n)
-        start = time.perf_counter()
-        plan = plan_bench(bench)
-        planned = time.perf_counter()
-        bench_document(plan)
-        bench_document(plan, html=True)
-        setpoint_files(plan)
-        done = time.perf_counter()
-        print(f"{n:>10} {planned - start:8.2f} {done - planned:12.2f} {len(plan.jobs):>10}")
+        r = measure(n)
+        print(f"{n:>10} {r['plan_s']:8.2f} {r['documents_s']:12.2f} {r['scheduled']:>10}")
     print("target: 500 batteries on 40 channels with documents under 3 s")
 
 

@@ -207,8 +207,9 @@ def charger_quantisation(ctx: Context) -> None:
         stage.voltage_v, stage.current_a, stage.exits = v_new, i_new, exits
     # a lead-acid hold stage must stay below the charge voltage: on a coarse step both can
     # land on the same value, and a battery held at absorption voltage forever is overcharged
-    held = [s for s in ctx.stages if s.kind.value in ("float", "storage_hold")]
-    charged = [s.voltage_v for s in ctx.stages if s.kind.value in ("bulk", "absorption")]
+    held = [s for s in ctx.stages if s.kind in (StageKind.FLOAT, StageKind.STORAGE_HOLD)]
+    charged = [s.voltage_v for s in ctx.stages
+               if s.kind in (StageKind.BULK, StageKind.ABSORPTION)]
     if held and charged and not ctx.lithium:
         for stage in held:
             if stage.voltage_v >= max(charged) - 1e-9:

@@ -5,7 +5,6 @@ Exit codes (DESIGN.md): 0 ok; 1 the plan is refused for safety; 2 bad input;
 that needs them.
 """
 
-from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -547,20 +546,5 @@ def schema(
 
 
 def main() -> None:
-    """Console entry point.
-
-    The cyclic garbage collector is held back while the command runs and its objects are
-    frozen before exit, so the interpreter does not sweep every module's objects on the way
-    out (a third of a short command's time; tests/benchmarks/bench_startup.py).
-    """
-    import gc
-
-    gc.set_threshold(50_000, 20, 100)
-    try:
-        app(prog_name="chargeplan")
-    finally:
-        gc.freeze()
-
-
-if __name__ == "__main__":  # pragma: no cover
-    main()
+    """Run the command line (the console entry point, chargeplan.__main__.run, wraps it)."""
+    app(prog_name="chargeplan")

@@ -15,10 +15,14 @@ from __future__ import annotations
 import math
 import re
 from functools import cache, lru_cache
-from importlib.resources import files
+from pathlib import Path
 from typing import Any
 
 import pint
+from pint.delegates.base_defparser import ParserConfig
+from pint.delegates.txt_defparser.plain import PrefixDefinition, UnitDefinition
+
+from chargeplan.errors import InternalError
 
 __all__ = [
     "DIMENSIONS",
@@ -34,19 +38,27 @@ __all__ = [
 def _registry() -> pint.UnitRegistry:
     """The registry, defined line by line from ``units.txt``.
 
-    Feeding the lines to ``define`` skips pint's file parser and builds the same units in
-    about a third of the time (start-up matters: see tests/benchmarks/bench_startup.py).
+    Each line is read by pint's own statement classes (prefix, then unit) and handed to
+    ``define``: that skips pint's file tokenizer, which costs 4x as much for the same
+    definitions (start-up matters: tests/benchmarks/bench_startup.py). tests/test_units.py
+    checks that the result matches pint's own file parser, unit by unit.
     """
     registry = pint.UnitRegistry(None, cache_folder=None, autoconvert_offset_to_baseunit=True)
-    text = (files("chargeplan") / "units.txt").read_text(encoding="utf-8")
+    config = ParserConfig(registry.non_int_type)
+    text = Path(__file__).with_name("units.txt").read_text(encoding="utf-8")
     in_block = False
-    for raw in text.splitlines():
+    for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.split("#", 1)[0].strip()
         if line.startswith("@"):  # directive blocks (@defaults ... @end) are for pint's parser
             in_block = not line.startswith("@end")
             continue
-        if line and not in_block:
-            registry.define(line)
+        if not line or in_block:
+            continue
+        definition = (PrefixDefinition.from_string_and_config(line, config)
+                      or UnitDefinition.from_string_and_config(line, config))
+        if definition is None or isinstance(definition, Exception):
+            raise InternalError(f"units.txt line {number} is not a unit definition: {line}")
+        registry.define(definition)
     return registry
 
 
@@ -140,6 +152,8 @@ def parse_quantity(text: object, kind: str) -> float:
     raw = text.strip()
     if not raw:
         raise ValueError(f"empty; write {wanted}")
+    # pint reads "°" as the word "degree", so "°C" would become the undefined "degreeC"
+    raw = raw.replace("°C", "degC").replace("°F", "degF")
     if kind in _POWERS_WRITTEN_PLAIN:
         raw = re.sub(r"(?<=[a-z])([23])(?![0-9])", r"**\1", raw.replace("³", "3").replace("²", "2"))
     if _NUMBER_ONLY.match(raw):

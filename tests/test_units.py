@@ -30,6 +30,11 @@ def test_registry_converts_like_the_si_definitions():
         ("0.1 It", "c_rate", 0.1),
         ("500 mA", "current", 0.5),
         ("9Ah", "capacity", 9.0),
+        # the degree sign, as people write it (pint alone reads "°C" as "degreeC")
+        ("5 °C", "temperature", 5.0),
+        ("-4°C", "temperature", -4.0),
+        ("41 °F", "temperature", 5.0),
+        ("10 Ω", "resistance", 10.0),
     ],
 )
 def test_parse_quantity(text, kind, expected):
@@ -60,3 +65,31 @@ def test_c_rate_is_never_coulombs():
     with pytest.raises(ValueError):
         parse_quantity("0.1 C", "current")
     assert not math.isnan(parse_quantity("0.1 It", "c_rate"))
+
+
+def test_registry_matches_pints_own_file_parser():
+    # chargeplan.units defines units.txt line by line through pint's statement classes;
+    # pint.UnitRegistry(filename) reads the same file with pint's full parser
+    # (library: pint, UnitRegistry). Every unit, alias and prefixed unit must agree.
+    from pathlib import Path
+
+    import pint
+
+    import chargeplan.units
+
+    ours = chargeplan.units._registry()  # fresh: use caches prefixed units as they are met
+    reference = pint.UnitRegistry(
+        str(Path(chargeplan.units.__file__).with_name("units.txt")), cache_folder=None,
+        autoconvert_offset_to_baseunit=True,
+    )
+    # (pint's parser also caches the prefixed units the definitions use, e.g. kilogram)
+    assert set(ours._units) <= set(reference._units)
+    assert set(ours._prefixes) == set(reference._prefixes)
+    # ("°C" is left out: pint reads "°" as "degree"; parse_quantity rewrites it first)
+    names = [*(name for name in reference._units if "°" not in name),
+             "mV/K/cell", "mA/Ah", "ohm*Ah", "percent/day", "m**3/h", "kWh", "µA", "degF"]
+    for name in names:
+        mine = ours.Quantity(1.7, name).to_base_units()
+        theirs = reference.Quantity(1.7, name).to_base_units()
+        assert mine.magnitude == pytest.approx(theirs.magnitude, rel=1e-12), name
+        assert str(mine.units) == str(theirs.units), name

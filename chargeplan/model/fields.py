@@ -9,11 +9,13 @@ the one pint registry and stores a plain float in the kind's canonical unit (see
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Annotated, Any
 
-from pydantic import AfterValidator, BeforeValidator, ConfigDict, WithJsonSchema
 from pydantic import BaseModel as _BaseModel
+from pydantic import ConfigDict
+from pydantic_core import core_schema
 
 from chargeplan.units import DIMENSIONS, describe_dimension, parse_quantity
 
@@ -22,6 +24,7 @@ __all__ = [
     "CurrentOrRate",
     "CurrentSpec",
     "InputModel",
+    "Parsed",
     "Text",
     "VoltageSpec",
     "quantity",
@@ -42,6 +45,28 @@ class InputModel(_BaseModel):
     )
 
 
+@dataclass(frozen=True, slots=True, eq=False)
+class Parsed:
+    """Field metadata: ``parse`` alone reads the raw value from the file and returns the
+    attribute's value, or raises ValueError saying what to write; ``json_schema`` is the
+    field's entry in the published JSON Schemas.
+
+    Pydantic builds one plain validator for the field and no schema for the type
+    ``parse`` returns. (A BeforeValidator would build the inner type's validator too, a
+    whole dataclass schema for CurrentSpec: twice the start-up cost per field, see
+    tests/benchmarks/bench_startup.py.)
+    """
+
+    parse: Callable[[Any], Any]
+    json_schema: dict[str, Any]
+
+    def __get_pydantic_core_schema__(self, source: Any, handler: Any) -> Any:
+        return core_schema.no_info_plain_validator_function(self.parse)
+
+    def __get_pydantic_json_schema__(self, schema: Any, handler: Any) -> dict[str, Any]:
+        return dict(self.json_schema)
+
+
 def _schema(kind: str, description: str | None = None) -> dict[str, Any]:
     return {
         "type": "string",
@@ -60,8 +85,12 @@ def _shown(value: float, unit: str) -> str:
     return f"{value:g} {unit}"
 
 
-def _bounded(kind: str, low: float | None, high: float | None, unit: str):
-    def check(value: float) -> float:
+def _reader(kind: str, low: float | None, high: float | None) -> Callable[[object], float]:
+    """Parse a quantity string of ``kind`` and check it against the sensible bounds."""
+    unit = DIMENSIONS[kind][0]
+
+    def read(raw: object) -> float:
+        value = parse_quantity(raw, kind)
         if low is not None and value < low:
             raise ValueError(f"{_shown(value, unit)} is below the least sensible "
                              f"{_shown(low, unit)}")
@@ -70,7 +99,7 @@ def _bounded(kind: str, low: float | None, high: float | None, unit: str):
                              f"{_shown(high, unit)}")
         return value
 
-    return check
+    return read
 
 
 def quantity(
@@ -84,14 +113,7 @@ def quantity(
 
     ``ge``/``le`` bound the value in the kind's canonical unit.
     """
-    unit = DIMENSIONS[kind][0]
-    return Annotated[
-        float,
-        BeforeValidator(lambda raw: parse_quantity(raw, kind)),
-        AfterValidator(_bounded(kind, ge, le, unit)),
-        WithJsonSchema(_schema(kind, description)),
-    ]
-
+    return Annotated[float, Parsed(_reader(kind, ge, le), _schema(kind, description))]
 
 
 TEXT_MAX = 200
@@ -110,11 +132,7 @@ def _text(raw: object) -> str:
     return value
 
 
-Text = Annotated[
-    str,
-    BeforeValidator(_text),
-    WithJsonSchema({"type": "string", "minLength": 1, "maxLength": TEXT_MAX}),
-]
+Text = Annotated[str, Parsed(_text, {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
 
 
 @dataclass(frozen=True, slots=True)
@@ -163,8 +181,8 @@ def _current_or_rate(raw: object) -> CurrentSpec:
 
 CurrentOrRate = Annotated[
     CurrentSpec,
-    BeforeValidator(_current_or_rate),
-    WithJsonSchema(
+    Parsed(
+        _current_or_rate,
         {
             "type": "string",
             "pattern": _NUMBER_WITH_UNIT,
@@ -212,8 +230,8 @@ def _pack_or_cell(raw: object) -> VoltageSpec:
 
 CellOrPackVoltage = Annotated[
     VoltageSpec,
-    BeforeValidator(_pack_or_cell),
-    WithJsonSchema(
+    Parsed(
+        _pack_or_cell,
         {
             "type": "string",
             "pattern": _NUMBER_WITH_UNIT,

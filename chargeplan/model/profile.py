@@ -9,9 +9,9 @@ from __future__ import annotations
 from itertools import pairwise
 from typing import Annotated, ClassVar, Literal
 
-from pydantic import BeforeValidator, Field, WithJsonSchema, create_model, model_validator
+from pydantic import Field, create_model, model_validator
 
-from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.fields import InputModel, Parsed, Text, quantity
 
 __all__ = [
     "Compensation",
@@ -39,9 +39,7 @@ def _source_text(raw: object) -> str:
     return raw.strip()
 
 
-Source = Annotated[
-    str, BeforeValidator(_source_text), WithJsonSchema({"type": "string", "minLength": 6})
-]
+Source = Annotated[str, Parsed(_source_text, {"type": "string", "minLength": 6})]
 
 
 class Sourced(InputModel):

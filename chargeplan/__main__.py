@@ -8,7 +8,12 @@ Start-up is most of a short command's time, so before the command line is even i
 - pydantic is told not to look for plugins: a plugin would watch the validation of the
   user's files, which this closed tool does not want, and the search reads the metadata
   of every installed package (typer does the same while it builds its own validators).
-  A value the user has set for ``PYDANTIC_DISABLE_PLUGINS`` is kept.
+- numpy's OpenBLAS is asked for one thread. chargeplan's numeric work is element-wise
+  (batteries in arrays), which BLAS threads do not speed up; starting a pool of them at
+  ``import numpy`` costs every command time and, on a small machine, a core.
+
+A value the user has set for ``PYDANTIC_DISABLE_PLUGINS`` or ``OPENBLAS_NUM_THREADS`` is
+kept, and the library (``import chargeplan``) changes neither.
 
 tests/benchmarks/bench_startup.py measures the effect.
 """
@@ -22,6 +27,7 @@ def run() -> None:
 
     gc.set_threshold(50_000, 20, 100)
     os.environ.setdefault("PYDANTIC_DISABLE_PLUGINS", "__all__")
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     try:
         from chargeplan.cli import main
 

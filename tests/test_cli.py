@@ -317,3 +317,31 @@ def test_runtime_load_out_of_range_exits_2(write_yaml, load):
     result = run("runtime", str(path), "--load", load)
     assert result.exit_code == 2
     _one_line_error(result, "--load")
+
+
+def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
+    # `python -m chargeplan` goes through chargeplan.__main__.run (the console script's
+    # entry): the same document as the library call, and the contract's exit code 2 with
+    # one line for a missing file.
+    import os
+    import subprocess
+    import sys
+
+    from chargeplan.api import plan_file
+    from chargeplan.demo import example_paths
+    from chargeplan.render.setpoints import to_json
+
+    example = example_paths()[1]
+    env = {k: v for k, v in os.environ.items()
+           if k not in ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS")}
+    done = subprocess.run([sys.executable, "-m", "chargeplan", "plan", str(example),
+                           "--format", "json"], capture_output=True, text=True, env=env,
+                          cwd=tmp_path, check=False)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout == to_json(plan_file(example))
+    missing = subprocess.run([sys.executable, "-m", "chargeplan", "plan", "absent.yaml"],
+                             capture_output=True, text=True, env=env, cwd=tmp_path,
+                             check=False)
+    assert missing.returncode == 2
+    assert missing.stderr.strip() == "error: absent.yaml: no such file; check the path"
+    assert missing.stdout == ""

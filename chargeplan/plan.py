@@ -1,15 +1,18 @@
 """Output models: a charge plan with its stages, exits, interlocks, findings and trace.
 
-Plain dataclasses of floats whose names carry their unit (``voltage_v``,
-``current_a``, ``duration_s``, ``temperature_c``). The setpoint document
-(:mod:`chargeplan.render.setpoints`) is the integer form of the same plan.
+Plain records of floats whose names carry their unit (``voltage_v``,
+``current_a``, ``duration_s``, ``temperature_c``). What no rule changes once made (an
+exit, a finding, a trace entry, the battery) is an immutable named tuple, the cheapest
+record Python builds at start-up; the stages, interlocks and plan that rules fill in are
+dataclasses. The setpoint document (:mod:`chargeplan.render.setpoints`) is the integer
+form of the same plan.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from enum import StrEnum
-from typing import Any
+from typing import Any, NamedTuple
 
 __all__ = [
     "ChargePlan",
@@ -58,8 +61,7 @@ class ExitKind(StrEnum):
     DURATION = "duration"  # the stage has run this long
 
 
-@dataclass(frozen=True, slots=True)
-class Exit:
+class Exit(NamedTuple):
     kind: ExitKind
     value: float  # V, A or s by kind
     then: str = "next"  # "next" stage or "stop" charging
@@ -69,8 +71,7 @@ class Exit:
         return {"voltage_reached": "V", "current_below": "A", "duration": "s"}[self.kind]
 
 
-@dataclass(frozen=True, slots=True)
-class StageEstimate:
+class StageEstimate(NamedTuple):
     """What the physics simulation expects of a stage (chargeplan.estimate)."""
 
     duration_s: float | None  # None for a hold stage (it runs until disconnected)
@@ -92,8 +93,7 @@ class Stage:
     estimate: StageEstimate | None = None  # set by chargeplan.estimate
 
 
-@dataclass(frozen=True, slots=True)
-class Compensation:
+class Compensation(NamedTuple):
     """Lead-acid voltage compensation, for firmware with a probe."""
 
     coefficient_v_per_k_per_cell: float
@@ -121,22 +121,19 @@ class Severity(StrEnum):
     REFUSAL = "refusal"
 
 
-@dataclass(frozen=True, slots=True)
-class Finding:
+class Finding(NamedTuple):
     severity: Severity
     rule_id: str
     message: str
 
 
-@dataclass(frozen=True, slots=True)
-class TraceEntry:
+class TraceEntry(NamedTuple):
     rule_id: str
     target: str  # what was decided: "absorption.voltage", "cells_in_series", ...
     text: str  # the decision and its arithmetic
 
 
-@dataclass(frozen=True, slots=True)
-class Quantised:
+class Quantised(NamedTuple):
     """A setpoint moved onto the channel's step: what was asked, what is encoded."""
 
     what: str  # "bulk.voltage", "absorption.exit_current", ...
@@ -145,8 +142,7 @@ class Quantised:
     unit: str  # "V" or "A"
 
 
-@dataclass(frozen=True, slots=True)
-class PlannedBattery:
+class PlannedBattery(NamedTuple):
     name: str
     profile_id: str
     chemistry: str

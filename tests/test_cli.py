@@ -345,3 +345,22 @@ def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
     assert missing.returncode == 2
     assert missing.stderr.strip() == "error: absent.yaml: no such file; check the path"
     assert missing.stdout == ""
+
+
+def test_console_entry_point_is_quiet_when_the_reader_stops_early(tmp_path):
+    # `chargeplan demo | head -0`: the reader has closed the pipe before the first write
+    # (start-up takes far longer than the close); no traceback, not even from the entry
+    # point's final flush, and the exit is quiet, as other tools do.
+    import os
+    import subprocess
+    import sys
+
+    with subprocess.Popen([sys.executable, "-m", "chargeplan", "demo"],
+                          stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=tmp_path,
+                          env=dict(os.environ)) as reader:
+        assert reader.stdout is not None and reader.stderr is not None
+        reader.stdout.close()
+        stderr = reader.stderr.read().decode()
+        reader.wait(timeout=60)
+    assert "Traceback" not in stderr and "Exception ignored" not in stderr, stderr
+    assert reader.returncode == 0

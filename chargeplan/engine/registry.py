@@ -10,9 +10,8 @@ from __future__ import annotations
 import inspect
 import re
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
 from enum import IntEnum
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, NamedTuple
 
 if TYPE_CHECKING:
     from chargeplan.engine.context import Context
@@ -35,8 +34,7 @@ _ID = re.compile(r"^CP([1-6])\d\d$")
 _NAME = re.compile(r"^[a-z]+(\.[a-z_]+)+$")
 
 
-@dataclass(frozen=True, slots=True)
-class Rule:
+class Rule(NamedTuple):
     id: str
     name: str
     phase: Phase

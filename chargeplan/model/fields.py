@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Annotated, Any
+from typing import Annotated, Any, NamedTuple
 
 from pydantic import BaseModel as _BaseModel
 from pydantic import ConfigDict
@@ -53,7 +53,7 @@ class Parsed:
 
     Pydantic builds one plain validator for the field and no schema for the type
     ``parse`` returns. (A BeforeValidator would build the inner type's validator too, a
-    whole dataclass schema for CurrentSpec: twice the start-up cost per field, see
+    whole schema for CurrentSpec: twice the start-up cost per field, see
     tests/benchmarks/bench_startup.py.)
     """
 
@@ -135,8 +135,7 @@ def _text(raw: object) -> str:
 Text = Annotated[str, Parsed(_text, {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
 
 
-@dataclass(frozen=True, slots=True)
-class CurrentSpec:
+class CurrentSpec(NamedTuple):
     """A current given in amperes or as a C-rate (It) of the battery's capacity."""
 
     amperes: float | None = None
@@ -194,8 +193,7 @@ CurrentOrRate = Annotated[
 ]
 
 
-@dataclass(frozen=True, slots=True)
-class VoltageSpec:
+class VoltageSpec(NamedTuple):
     """A voltage for the whole battery ('14.7 V') or per cell ('2.45 V/cell')."""
 
     volts: float

@@ -17,8 +17,10 @@ kept, and the library (``import chargeplan``) changes neither.
 When the command has finished, the process leaves without the interpreter's teardown of
 every module (a twentieth of a short command's time). Nothing is lost by that: every
 file a command writes is complete, synced and renamed into place before the command
-returns (chargeplan.render.write), and standard output and error are flushed here. An
-exception other than the command's own exit takes the interpreter's normal way out.
+returns (chargeplan.render.write), and standard output and error are flushed here. The
+interpreter's normal way out is kept when a tracer, profiler or coverage tool is
+watching (it writes its results at exit), and for any exception other than the
+command's own exit.
 
 tests/benchmarks/bench_startup.py measures all of this.
 """
@@ -31,33 +33,52 @@ import sys
 from typing import NoReturn
 
 
-def run() -> NoReturn:
+def run() -> None:
     gc.set_threshold(50_000, 20, 100)
     os.environ.setdefault("PYDANTIC_DISABLE_PLUGINS", "__all__")
     os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
-    code: object = 0
     try:
         from chargeplan.cli import main
 
         main()
     except SystemExit as stop:
-        code = stop.code
-    _leave(code)
+        if _watched():
+            raise
+        _leave(stop.code)
+
+
+def _watched() -> bool:
+    """A tracer, profiler or coverage tool is running and must see the normal exit."""
+    if sys.gettrace() is not None or sys.getprofile() is not None:
+        return True
+    monitoring = getattr(sys, "monitoring", None)  # Python 3.12+
+    return monitoring is not None and any(
+        monitoring.get_tool(tool) is not None for tool in range(6)
+    )
 
 
 def _leave(code: object) -> NoReturn:
     """Flush standard output and error, then end the process with ``sys.exit``'s status
-    for ``code`` (None: 0; an int: itself; anything else: printed, then 1)."""
+    for ``code`` (None: 0; an int: itself; anything else: printed, then 1).
+
+    A reader that closed the pipe (``| head``) is not an error. Any other failure to write
+    the output is: one line on stderr and exit 3, as the command itself would report it.
+    """
     status = 0 if code is None else code if isinstance(code, int) else 1
-    streams = (sys.stdout, sys.stderr)
-    if not isinstance(code, int | None) and sys.stderr is not None:
-        print(code, file=sys.stderr)
-    for stream in streams:
-        try:
+    try:
+        if not isinstance(code, int | None):
+            print(code, file=sys.stderr)
+        for stream in (sys.stdout, sys.stderr):
             if stream is not None:
                 stream.flush()
-        except (OSError, ValueError):  # a reader that closed the pipe (| head)
+    except BrokenPipeError:
+        pass
+    except (OSError, ValueError) as error:
+        try:
+            os.write(2, f"internal error: could not write the output ({error})\n".encode())
+        except OSError:
             pass
+        status = 3
     os._exit(status)
 
 

@@ -548,3 +548,9 @@ def schema(
 def main() -> None:
     """Run the command line (the console entry point, chargeplan.__main__.run, wraps it)."""
     app(prog_name="chargeplan")
+
+
+if __name__ == "__main__":  # python -m chargeplan.cli: the console entry's own way in
+    from chargeplan.__main__ import run
+
+    run()

@@ -1,18 +1,15 @@
 """Output models: a charge plan with its stages, exits, interlocks, findings and trace.
 
-Plain records of floats whose names carry their unit (``voltage_v``,
-``current_a``, ``duration_s``, ``temperature_c``). What no rule changes once made (an
-exit, a finding, a trace entry, the battery) is an immutable named tuple, the cheapest
-record Python builds at start-up; the stages, interlocks and plan that rules fill in are
-dataclasses. The setpoint document (:mod:`chargeplan.render.setpoints`) is the integer
-form of the same plan.
+Plain dataclasses of floats whose names carry their unit (``voltage_v``,
+``current_a``, ``duration_s``, ``temperature_c``). The setpoint document
+(:mod:`chargeplan.render.setpoints`) is the integer form of the same plan.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from enum import StrEnum
-from typing import Any, NamedTuple
+from typing import Any
 
 __all__ = [
     "ChargePlan",
@@ -61,7 +58,8 @@ class ExitKind(StrEnum):
     DURATION = "duration"  # the stage has run this long
 
 
-class Exit(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class Exit:
     kind: ExitKind
     value: float  # V, A or s by kind
     then: str = "next"  # "next" stage or "stop" charging
@@ -71,7 +69,8 @@ class Exit(NamedTuple):
         return {"voltage_reached": "V", "current_below": "A", "duration": "s"}[self.kind]
 
 
-class StageEstimate(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class StageEstimate:
     """What the physics simulation expects of a stage (chargeplan.estimate)."""
 
     duration_s: float | None  # None for a hold stage (it runs until disconnected)
@@ -93,7 +92,8 @@ class Stage:
     estimate: StageEstimate | None = None  # set by chargeplan.estimate
 
 
-class Compensation(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class Compensation:
     """Lead-acid voltage compensation, for firmware with a probe."""
 
     coefficient_v_per_k_per_cell: float
@@ -121,19 +121,22 @@ class Severity(StrEnum):
     REFUSAL = "refusal"
 
 
-class Finding(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class Finding:
     severity: Severity
     rule_id: str
     message: str
 
 
-class TraceEntry(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class TraceEntry:
     rule_id: str
     target: str  # what was decided: "absorption.voltage", "cells_in_series", ...
     text: str  # the decision and its arithmetic
 
 
-class Quantised(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class Quantised:
     """A setpoint moved onto the channel's step: what was asked, what is encoded."""
 
     what: str  # "bulk.voltage", "absorption.exit_current", ...
@@ -142,7 +145,8 @@ class Quantised(NamedTuple):
     unit: str  # "V" or "A"
 
 
-class PlannedBattery(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class PlannedBattery:
     name: str
     profile_id: str
     chemistry: str

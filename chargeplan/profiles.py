@@ -9,10 +9,10 @@ would cross that envelope. A new chemistry needs a built-in profile.
 from __future__ import annotations
 
 import os
+from dataclasses import dataclass
 from functools import cache
 from importlib.resources import files
 from pathlib import Path
-from typing import NamedTuple
 
 from chargeplan.errors import InputError, InternalError
 from chargeplan.loading import read_mapping, validate
@@ -63,7 +63,8 @@ def load_builtin(profile_id: str) -> Profile:
     return profile
 
 
-class HardEnvelope(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class HardEnvelope:
     """The hard limits of a built-in chemistry, as plain floats, for safety.verify."""
 
     chemistry: str

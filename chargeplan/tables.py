@@ -8,7 +8,7 @@ rules refuse to charge has no row: firmware must not charge there.
 from __future__ import annotations
 
 import math
-from typing import NamedTuple
+from dataclasses import dataclass
 
 from chargeplan.errors import PlanRefused
 from chargeplan.model.battery import BatteryFile, Conditions
@@ -24,7 +24,8 @@ _CHARGE = (StageKind.ABSORPTION, StageKind.BULK)
 _HOLD = (StageKind.FLOAT, StageKind.STORAGE_HOLD)
 
 
-class TableRow(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class TableRow:
     temperature_c: float
     charge_voltage_v: float  # absorption (or, charging to storage, the storage hold) voltage
     hold_voltage_v: float | None  # float or lead-acid storage hold; None for lithium

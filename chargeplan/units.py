@@ -15,14 +15,18 @@ from __future__ import annotations
 import math
 import re
 from functools import cache, lru_cache
-from pathlib import Path
+from importlib.resources import files
 from typing import Any
 
 import pint
-from pint.delegates.base_defparser import ParserConfig
-from pint.delegates.txt_defparser.plain import PrefixDefinition, UnitDefinition
 
 from chargeplan.errors import InternalError
+
+try:  # pint's statement classes: not its documented API, so a pint that moves them is met
+    from pint.delegates.base_defparser import ParserConfig
+    from pint.delegates.txt_defparser.plain import PrefixDefinition, UnitDefinition
+except ImportError:  # pragma: no cover - depends on the installed pint
+    ParserConfig = None
 
 __all__ = [
     "DIMENSIONS",
@@ -35,17 +39,19 @@ __all__ = [
 
 
 
-def _registry() -> pint.UnitRegistry:
+def _registry(*, statements: bool = True) -> pint.UnitRegistry:
     """The registry, defined line by line from ``units.txt``.
 
     Each line is read by pint's own statement classes (prefix, then unit) and handed to
     ``define``: that skips pint's file tokenizer, which costs 4x as much for the same
-    definitions (start-up matters: tests/benchmarks/bench_startup.py). tests/test_units.py
-    checks that the result matches pint's own file parser, unit by unit.
+    definitions (start-up matters: tests/benchmarks/bench_startup.py). Where the installed
+    pint lacks those classes (or ``statements`` is false), each line goes to ``define`` as
+    text, pint's documented way. tests/test_units.py checks that both give the units pint's
+    own file parser gives.
     """
     registry = pint.UnitRegistry(None, cache_folder=None, autoconvert_offset_to_baseunit=True)
-    config = ParserConfig(registry.non_int_type)
-    text = Path(__file__).with_name("units.txt").read_text(encoding="utf-8")
+    config = ParserConfig(registry.non_int_type) if statements and ParserConfig else None
+    text = (files("chargeplan") / "units.txt").read_text(encoding="utf-8")
     in_block = False
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.split("#", 1)[0].strip()
@@ -53,6 +59,9 @@ def _registry() -> pint.UnitRegistry:
             in_block = not line.startswith("@end")
             continue
         if not line or in_block:
+            continue
+        if config is None:
+            registry.define(line)
             continue
         definition = (PrefixDefinition.from_string_and_config(line, config)
                       or UnitDefinition.from_string_and_config(line, config))
@@ -91,6 +100,8 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
 #: Kinds whose units users write with a plain exponent: "60 m3/h", "300 cm2".
 _POWERS_WRITTEN_PLAIN = frozenset({"airflow", "area", "volume"})
 
+_DEGREES_C = re.compile(r"(?<![A-Za-z_])(degC|celsius|degree_Celsius)(?![A-Za-z_])")
+_DEGREES_F = re.compile(r"(?<![A-Za-z_])(degF|degree_Fahrenheit)(?![A-Za-z_])")
 _NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
 
 
@@ -100,7 +111,7 @@ def _reference(kind: str) -> Any:
 
 
 _SIMPLE = re.compile(
-    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z°%][A-Za-z°%/*]*)\s*$"
+    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z°%][A-Za-z_°%/*]*)\s*$"
 )
 
 
@@ -149,15 +160,20 @@ def parse_quantity(text: object, kind: str) -> float:
         raise ValueError(f"{text} has no unit; write {wanted}")
     if not isinstance(text, str):
         raise ValueError(f"expected {wanted}, got {type(text).__name__}")
-    raw = text.strip()
+    shown = raw = text.strip()  # messages quote ``shown``, the text as the user wrote it
     if not raw:
         raise ValueError(f"empty; write {wanted}")
     # pint reads "°" as the word "degree", so "°C" would become the undefined "degreeC"
     raw = raw.replace("°C", "degC").replace("°F", "degF")
+    if kind == "temperature_difference":
+        # a difference written in degrees is that many kelvin (or 5/9 K per °F), not a
+        # temperature: "+8 °C" warmer is 8 K, never 281.15 K
+        raw = _DEGREES_C.sub("delta_degC", raw)
+        raw = _DEGREES_F.sub("delta_degF", raw)
     if kind in _POWERS_WRITTEN_PLAIN:
         raw = re.sub(r"(?<=[a-z])([23])(?![0-9])", r"**\1", raw.replace("³", "3").replace("²", "2"))
     if _NUMBER_ONLY.match(raw):
-        raise ValueError(f"'{raw}' has no unit; write {wanted}")
+        raise ValueError(f"'{shown}' has no unit; write {wanted}")
     simple = _SIMPLE.match(raw)
     if simple:  # "<number> <unit>": convert with the unit's cached affine map
         number, unit_text = float(simple.group(1)), simple.group(2)
@@ -166,7 +182,7 @@ def parse_quantity(text: object, kind: str) -> float:
             scale, shift = convert
             magnitude = number * scale + shift
             if not math.isfinite(magnitude):
-                raise ValueError(f"'{raw}' is not a finite number; write {wanted}")
+                raise ValueError(f"'{shown}' is not a finite number; write {wanted}")
             return magnitude
     try:
         quantity = Q_(raw)
@@ -176,22 +192,22 @@ def parse_quantity(text: object, kind: str) -> float:
         if name == "C":
             hint = (" (write degrees Celsius as 'degC')" if kind.startswith("temperature")
                     else " (write a C-rate as '0.1 It')")
-        raise ValueError(f"unknown unit '{name}' in '{raw}'{hint}; write {wanted}") from None
+        raise ValueError(f"unknown unit '{name}' in '{shown}'{hint}; write {wanted}") from None
     except Exception:
-        raise ValueError(f"cannot read '{raw}' as a quantity; write {wanted}") from None
+        raise ValueError(f"cannot read '{shown}' as a quantity; write {wanted}") from None
     if not isinstance(quantity, pint.Quantity):
-        raise ValueError(f"'{raw}' has no unit; write {wanted}")
+        raise ValueError(f"'{shown}' has no unit; write {wanted}")
     if quantity.dimensionality != _reference(kind):
         raise ValueError(
-            f"'{raw}' is not {label} "
+            f"'{shown}' is not {label} "
             f"(its unit is {quantity.units:~}); write {wanted}"
         )
     try:
         magnitude = float(quantity.to(unit).magnitude)
     except Exception:
-        raise ValueError(f"cannot convert '{raw}' to {unit}; write {wanted}") from None
+        raise ValueError(f"cannot convert '{shown}' to {unit}; write {wanted}") from None
     if not math.isfinite(magnitude):
-        raise ValueError(f"'{raw}' is not a finite number; write {wanted}")
+        raise ValueError(f"'{shown}' is not a finite number; write {wanted}")
     return magnitude
 
 
@@ -201,9 +217,6 @@ def option_quantity(text: str | None, kind: str, option: str) -> float | None:
         return None
     from chargeplan.errors import InputError
 
-    if kind == "temperature_difference":
-        # a step or a difference written in degrees Celsius is that many kelvin
-        text = re.sub(r"\s*(degC|°C|celsius)\s*$", " K", text.strip())
     try:
         return parse_quantity(text, kind)
     except ValueError as error:

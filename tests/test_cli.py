@@ -319,11 +319,22 @@ def test_runtime_load_out_of_range_exits_2(write_yaml, load):
     _one_line_error(result, "--load")
 
 
+def _entry_env() -> dict[str, str]:
+    """The environment for running this checkout's code in a child process (not whatever
+    chargeplan is installed), without the variables the entry point sets itself."""
+    import os
+
+    env = {k: v for k, v in os.environ.items()
+           if k not in ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS")}
+    env["PYTHONPATH"] = os.pathsep.join(filter(None, [str(REPO), env.get("PYTHONPATH")]))
+    return env
+
+
 def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
     # `python -m chargeplan` goes through chargeplan.__main__.run (the console script's
-    # entry): the same document as the library call, and the contract's exit code 2 with
-    # one line for a missing file.
-    import os
+    # entry), which leaves without the interpreter's teardown: the same document as the
+    # library call, and the contract's exit code 2 with one line for a missing file, also
+    # through `python -m chargeplan.cli`.
     import subprocess
     import sys
 
@@ -332,32 +343,46 @@ def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
     from chargeplan.render.setpoints import to_json
 
     example = example_paths()[1]
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS")}
     done = subprocess.run([sys.executable, "-m", "chargeplan", "plan", str(example),
-                           "--format", "json"], capture_output=True, text=True, env=env,
-                          cwd=tmp_path, check=False)
+                           "--format", "json"], capture_output=True, text=True,
+                          env=_entry_env(), cwd=tmp_path, check=False)
     assert done.returncode == 0, done.stderr
     assert done.stdout == to_json(plan_file(example))
-    missing = subprocess.run([sys.executable, "-m", "chargeplan", "plan", "absent.yaml"],
-                             capture_output=True, text=True, env=env, cwd=tmp_path,
-                             check=False)
-    assert missing.returncode == 2
-    assert missing.stderr.strip() == "error: absent.yaml: no such file; check the path"
-    assert missing.stdout == ""
+    for module in ("chargeplan", "chargeplan.cli"):
+        missing = subprocess.run([sys.executable, "-m", module, "plan", "absent.yaml"],
+                                 capture_output=True, text=True, env=_entry_env(),
+                                 cwd=tmp_path, check=False)
+        assert missing.returncode == 2, module
+        assert missing.stderr.strip() == "error: absent.yaml: no such file; check the path"
+        assert missing.stdout == ""
+
+
+def test_console_entry_point_lets_a_profiler_write_its_results(tmp_path):
+    # a profiler (here the standard library's cProfile) writes its file at the
+    # interpreter's exit, so the entry point must not skip that exit while one runs
+    import pstats
+    import subprocess
+    import sys
+
+    out = tmp_path / "run.prof"
+    done = subprocess.run([sys.executable, "-m", "cProfile", "-o", str(out), "-m",
+                           "chargeplan", "plan", "absent.yaml"], capture_output=True,
+                          text=True, env=_entry_env(), cwd=tmp_path, check=False)
+    # (cProfile's runner swallows the command's exit code: it exits 0 itself)
+    assert done.stderr.strip() == "error: absent.yaml: no such file; check the path"
+    assert pstats.Stats(str(out)).total_calls > 0
 
 
 def test_console_entry_point_is_quiet_when_the_reader_stops_early(tmp_path):
-    # `chargeplan demo | head -0`: the reader has closed the pipe before the first write
-    # (start-up takes far longer than the close); no traceback, not even from the entry
-    # point's final flush, and the exit is quiet, as other tools do.
-    import os
+    # `chargeplan demo | head -0` through the real entry point: the reader has closed the
+    # pipe before the first write (start-up takes far longer than the close); no traceback
+    # and a quiet exit 0, as other tools do
     import subprocess
     import sys
 
     with subprocess.Popen([sys.executable, "-m", "chargeplan", "demo"],
                           stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=tmp_path,
-                          env=dict(os.environ)) as reader:
+                          env=_entry_env()) as reader:
         assert reader.stdout is not None and reader.stderr is not None
         reader.stdout.close()
         stderr = reader.stderr.read().decode()

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import pytest
 
 from chargeplan import safety
@@ -75,7 +77,7 @@ def test_nan_and_wrong_envelope_are_caught():
 
 def test_battery_outside_its_own_interlocks_is_caught():
     plan = _lfp_plan()
-    plan.battery = plan.battery._replace(temperature_c=-3.0)
+    plan.battery = dataclasses.replace(plan.battery, temperature_c=-3.0)
     assert any("outside the interlocks" in v
                for v in safety.violations(plan, hard_envelope("lifepo4")))
 
@@ -94,7 +96,7 @@ def test_planner_never_returns_a_plan_that_fails():
 
     patched = RuleSet()
     for each in RULES:
-        patched.register(each._replace(apply=unsafe)
+        patched.register(dataclasses.replace(each, apply=unsafe)
                          if each.id == "CP204" else each)
     from chargeplan.engine.planner import plan_charge
     from chargeplan.model.battery import BatteryFile

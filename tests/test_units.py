@@ -77,19 +77,46 @@ def test_registry_matches_pints_own_file_parser():
 
     import chargeplan.units
 
-    ours = chargeplan.units._registry()  # fresh: use caches prefixed units as they are met
     reference = pint.UnitRegistry(
         str(Path(chargeplan.units.__file__).with_name("units.txt")), cache_folder=None,
         autoconvert_offset_to_baseunit=True,
     )
-    # (pint's parser also caches the prefixed units the definitions use, e.g. kilogram)
-    assert set(ours._units) <= set(reference._units)
-    assert set(ours._prefixes) == set(reference._prefixes)
-    # ("°C" is left out: pint reads "°" as "degree"; parse_quantity rewrites it first)
-    names = [*(name for name in reference._units if "°" not in name),
-             "mV/K/cell", "mA/Ah", "ohm*Ah", "percent/day", "m**3/h", "kWh", "µA", "degF"]
-    for name in names:
-        mine = ours.Quantity(1.7, name).to_base_units()
-        theirs = reference.Quantity(1.7, name).to_base_units()
-        assert mine.magnitude == pytest.approx(theirs.magnitude, rel=1e-12), name
-        assert str(mine.units) == str(theirs.units), name
+    # both ways of building it: pint's statement classes, and plain define(text), which is
+    # what runs where the installed pint has moved those classes
+    for ours in (chargeplan.units._registry(), chargeplan.units._registry(statements=False)):
+        # (pint's parser also caches the prefixed units the definitions use, e.g. kilogram)
+        assert set(ours._units) <= set(reference._units)
+        assert set(ours._prefixes) == set(reference._prefixes)
+        # ("°C" is left out: pint reads "°" as "degree"; parse_quantity rewrites it first)
+        names = [*(name for name in reference._units if "°" not in name),
+                 "mV/K/cell", "mA/Ah", "ohm*Ah", "percent/day", "m**3/h", "kWh", "µA", "degF"]
+        for name in names:
+            mine = ours.Quantity(1.7, name).to_base_units()
+            theirs = reference.Quantity(1.7, name).to_base_units()
+            assert mine.magnitude == pytest.approx(theirs.magnitude, rel=1e-12), name
+            assert str(mine.units) == str(theirs.units), name
+
+
+@pytest.mark.parametrize(
+    ("text", "expected_k"),
+    [
+        # SI Brochure (BIPM, 9th ed., 2.3.1): a temperature difference has the same numerical
+        # value in degrees Celsius as in kelvin
+        ("+8 °C", 8.0),
+        ("8 degC", 8.0),
+        ("-3 celsius", -3.0),
+        ("5 K", 5.0),
+        # a difference of 1 °F is 5/9 K (the Fahrenheit degree is 5/9 of a kelvin)
+        ("9 degF", 5.0),
+        ("18 °F", 10.0),
+    ],
+)
+def test_a_temperature_difference_in_degrees_is_that_many_kelvin(text, expected_k):
+    # never the absolute temperature: "+8 °C" warmer than the site is not 281.15 K
+    assert parse_quantity(text, "temperature_difference") == pytest.approx(expected_k)
+
+
+def test_messages_quote_the_text_as_written():
+    with pytest.raises(ValueError) as caught:
+        parse_quantity("1 mA/°C", "current")
+    assert "'1 mA/°C' is not a current" in str(caught.value)

@@ -10,8 +10,9 @@ from __future__ import annotations
 import inspect
 import re
 from collections.abc import Callable, Iterator
+from dataclasses import dataclass
 from enum import IntEnum
-from typing import TYPE_CHECKING, NamedTuple
+from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
     from chargeplan.engine.context import Context
@@ -34,7 +35,8 @@ _ID = re.compile(r"^CP([1-6])\d\d$")
 _NAME = re.compile(r"^[a-z]+(\.[a-z_]+)+$")
 
 
-class Rule(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class Rule:
     id: str
     name: str
     phase: Phase

@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Annotated, Any, NamedTuple
+from typing import Annotated, Any
 
 from pydantic import BaseModel as _BaseModel
 from pydantic import ConfigDict
@@ -53,7 +53,7 @@ class Parsed:
 
     Pydantic builds one plain validator for the field and no schema for the type
     ``parse`` returns. (A BeforeValidator would build the inner type's validator too, a
-    whole schema for CurrentSpec: twice the start-up cost per field, see
+    whole dataclass schema for CurrentSpec: twice the start-up cost per field, see
     tests/benchmarks/bench_startup.py.)
     """
 
@@ -91,6 +91,8 @@ def _reader(kind: str, low: float | None, high: float | None) -> Callable[[objec
 
     def read(raw: object) -> float:
         value = parse_quantity(raw, kind)
+        if not math.isfinite(value):  # parse_quantity refuses these too; a NaN passes < and >
+            raise ValueError(f"'{raw}' is not a finite number")
         if low is not None and value < low:
             raise ValueError(f"{_shown(value, unit)} is below the least sensible "
                              f"{_shown(low, unit)}")
@@ -135,7 +137,8 @@ def _text(raw: object) -> str:
 Text = Annotated[str, Parsed(_text, {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
 
 
-class CurrentSpec(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class CurrentSpec:
     """A current given in amperes or as a C-rate (It) of the battery's capacity."""
 
     amperes: float | None = None
@@ -193,7 +196,8 @@ CurrentOrRate = Annotated[
 ]
 
 
-class VoltageSpec(NamedTuple):
+@dataclass(frozen=True, slots=True)
+class VoltageSpec:
     """A voltage for the whole battery ('14.7 V') or per cell ('2.45 V/cell')."""
 
     volts: float

@@ -3,8 +3,10 @@
 Exit codes (DESIGN.md): 0 ok; 1 the plan is refused for safety; 2 bad input;
 3 internal error. No domain logic lives here; heavy imports wait for the command
 that needs them.
-"""
 
+No ``from __future__ import annotations`` here: typer reads every command's signature at
+start-up, and string annotations would each be evaluated (DEVELOPERS.md, start-up).
+"""
 
 from collections.abc import Iterator
 from contextlib import contextmanager

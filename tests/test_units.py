@@ -30,7 +30,8 @@ def test_registry_converts_like_the_si_definitions():
         ("0.1 It", "c_rate", 0.1),
         ("500 mA", "current", 0.5),
         ("9Ah", "capacity", 9.0),
-        # the degree sign, as people write it (pint alone reads "°C" as "degreeC")
+        # the degree sign, as people write it (pint alone reads "°C" as "degreeC");
+        # 41 °F = 5 °C by the Fahrenheit definition (NIST SP 811, Appendix B, from memory)
         ("5 °C", "temperature", 5.0),
         ("-4°C", "temperature", -4.0),
         ("41 °F", "temperature", 5.0),
@@ -106,7 +107,7 @@ def test_registry_matches_pints_own_file_parser():
         ("8 degC", 8.0),
         ("-3 celsius", -3.0),
         ("5 K", 5.0),
-        # a difference of 1 °F is 5/9 K (the Fahrenheit degree is 5/9 of a kelvin)
+        # a difference of 1 °F is 5/9 K (NIST SP 811, Appendix B, from memory)
         ("9 degF", 5.0),
         ("18 °F", 10.0),
     ],

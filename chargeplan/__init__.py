@@ -47,7 +47,7 @@ _EXPORTS = {
     "Finding": "chargeplan.plan",
     "Severity": "chargeplan.plan",
     "verify": "chargeplan.safety",
-    "encode_setpoints": "chargeplan.render.setpoints",
+    "encode_setpoints": "chargeplan.firmware.setpoints",
     "render_text": "chargeplan.render.text",
     "example_paths": "chargeplan.demo",
     "ChargeplanError": "chargeplan.errors",

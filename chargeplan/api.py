@@ -45,7 +45,7 @@ def plan_file(
 
         estimate_plans([plan], profiles=profiles, battery_files=[battery_file])
     if table_step_c is not None:
-        from chargeplan.tables import temperature_table
+        from chargeplan.firmware.tables import temperature_table
 
         plan.temperature_table = temperature_table(battery_file, plan, step_c=table_step_c,
                                                    profiles=profiles)

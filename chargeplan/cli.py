@@ -140,12 +140,12 @@ def plan(
         if quantisation_report:
             _report_quantisation(result)
         if format is Format.json:
-            from chargeplan.render.setpoints import to_json
+            from chargeplan.firmware.setpoints import to_json
 
             _emit(to_json(result), output, force)
         elif format is Format.c_header:
-            from chargeplan.render.c_header import render_c_header
-            from chargeplan.render.setpoints import encode
+            from chargeplan.firmware.c_header import render_c_header
+            from chargeplan.firmware.setpoints import encode
 
             _emit(render_c_header(result, encode(result)), output, force)
         elif format is Format.markdown:
@@ -159,8 +159,8 @@ def plan(
             run = simulate_plan(result, profiles=_profile_set(profiles))
             _emit(render_html(run.plan, explain=explain, series=run.series), output, force)
         elif format is Format.image:
-            from chargeplan.render import image
-            from chargeplan.render.setpoints import encode
+            from chargeplan.firmware import image
+            from chargeplan.firmware.setpoints import encode
 
             _emit(image.encode(encode(result)), output, force)
         else:
@@ -233,7 +233,7 @@ def state(
 ) -> None:
     """State of charge from a rest voltage or a hydrometer reading."""
     with _errors():
-        from chargeplan.readings import state_of_charge
+        from chargeplan.planners.readings import state_of_charge
         from chargeplan.units import option_quantity
 
         reading = state_of_charge(
@@ -263,7 +263,7 @@ def runtime(
     with _errors():
         from chargeplan.api import load_battery_file
         from chargeplan.fmt import duration
-        from chargeplan.readings import runtime as estimate_runtime
+        from chargeplan.planners.readings import runtime as estimate_runtime
 
         result = estimate_runtime(load_battery_file(file), load,
                                   profiles=_profile_set(profiles), file=str(file))
@@ -284,7 +284,7 @@ def check(
 ) -> None:
     """Check a setpoint file before flashing: exit 1 and every violation if it fails."""
     with _errors():
-        from chargeplan.check import check_file, load_channel_file
+        from chargeplan.firmware.check import check_file, load_channel_file
 
         battery_file = None
         if battery is not None:
@@ -321,7 +321,7 @@ def thermistor(
     """ADC codes of an NTC thermistor divider: the interlock thresholds and a lookup table."""
     with _errors():
         from chargeplan.errors import InputError
-        from chargeplan.thermistor import Divider, thermistor_table
+        from chargeplan.firmware.thermistor import Divider, thermistor_table
         from chargeplan.units import option_quantity
 
         given = [v is not None for v in (a, b, c)]
@@ -374,7 +374,12 @@ def storage(
 ) -> None:
     """Plan winter storage: decay, top-up dates, freeze checks, procedure and calendar."""
     with _errors():
-        from chargeplan.storage import load_site, plan_storage, read_inventory, read_readings
+        from chargeplan.planners.storage import (
+            load_site,
+            plan_storage,
+            read_inventory,
+            read_readings,
+        )
 
         site_file = load_site(site)
         rows = read_inventory(inventory) if inventory is not None else None
@@ -411,7 +416,7 @@ def bench(
 ) -> None:
     """Plan a charging bench: compatibility, schedule, ventilation, setup cards."""
     with _errors():
-        from chargeplan.bench import load_bench, plan_bench, read_bench_batteries
+        from chargeplan.planners.bench import load_bench, plan_bench, read_bench_batteries
 
         found = _profile_set(profiles)
         rows = read_bench_batteries(batteries) if batteries is not None else None
@@ -442,8 +447,8 @@ def ventilation(
 ) -> None:
     """Airflow and opening area a charging room needs (IEC 62485-2 cl. 7), and a room check."""
     with _errors():
+        from chargeplan.planners.ventilation import available_airflow, requirement
         from chargeplan.units import option_quantity
-        from chargeplan.ventilation import available_airflow, requirement
 
         need = requirement(cells, option_quantity(capacity, "capacity", "--capacity") or 0.0,
                            battery_type, mode, batteries)

@@ -2,7 +2,7 @@
 
 Plain dataclasses of floats whose names carry their unit (``voltage_v``,
 ``current_a``, ``duration_s``, ``temperature_c``). The setpoint document
-(:mod:`chargeplan.render.setpoints`) is the integer form of the same plan.
+(:mod:`chargeplan.firmware.setpoints`) is the integer form of the same plan.
 """
 
 from __future__ import annotations
@@ -12,6 +12,7 @@ from enum import StrEnum
 from typing import Any
 
 __all__ = [
+    "EXIT_THEN",
     "ChargePlan",
     "Compensation",
     "Exit",
@@ -56,17 +57,28 @@ class ExitKind(StrEnum):
     VOLTAGE_REACHED = "voltage_reached"  # terminal voltage rises to the value
     CURRENT_BELOW = "current_below"  # current falls below the value (tail current)
     DURATION = "duration"  # the stage has run this long
+    # Guards: each ends the charge with a fault (``then="fault"``) when what it watches goes wrong.
+    CHARGE_ABOVE = "charge_above"  # Ah put in since the charge began exceeds the value
+    CURRENT_RISING = "current_rising"  # at constant voltage, current rose the value (A) above
+    #                                    the lowest current of this stage: thermal runaway sign
+    TEMPERATURE_RISE = "temperature_rise"  # battery temperature rose the value (K) above its
+    #                                        temperature when this stage began
+
+
+#: What follows an exit: the next stage, a normal stop, or a fault (stop and report).
+EXIT_THEN = ("next", "stop", "fault")
 
 
 @dataclass(frozen=True, slots=True)
 class Exit:
     kind: ExitKind
-    value: float  # V, A or s by kind
-    then: str = "next"  # "next" stage or "stop" charging
+    value: float  # V, A, s, Ah or K by kind (see ``unit``)
+    then: str = "next"  # one of EXIT_THEN
 
     @property
     def unit(self) -> str:
-        return {"voltage_reached": "V", "current_below": "A", "duration": "s"}[self.kind]
+        return {"voltage_reached": "V", "current_below": "A", "duration": "s",
+                "charge_above": "Ah", "current_rising": "A", "temperature_rise": "K"}[self.kind]
 
 
 @dataclass(frozen=True, slots=True)
@@ -172,7 +184,7 @@ class ChargePlan:
     finish: str  # what happens after the last stage: "hold" or "stop"
     estimated: bool = False  # the stages carry physics estimates
     quantisation: list[Quantised] = field(default_factory=list)  # rule CP405's changes
-    temperature_table: list[Any] | None = None  # chargeplan.tables rows, when made
+    temperature_table: list[Any] | None = None  # chargeplan.firmware.tables rows, when made
     table_step_c: float | None = None
 
     def total_estimate(self) -> tuple[float, float, float] | None:

@@ -29,7 +29,7 @@ SCHEMAS = {
         "chargeplan inventory row (one battery; also the CSV's columns)",
     ),
     "setpoints.schema.json": (
-        "chargeplan.model.setpoints",
+        "chargeplan.firmware.document",
         "SetpointDocument",
         "chargeplan setpoint document, version 3",
     ),

@@ -9,11 +9,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-from chargeplan.bench import plan_bench
 from chargeplan.cli import app
 from chargeplan.model.bench import BenchFile
 from chargeplan.physics.ventilation import opening_area_iec62485, ventilation_airflow_iec62485
-from chargeplan.ventilation import available_airflow, requirement
+from chargeplan.planners.bench import plan_bench
+from chargeplan.planners.ventilation import available_airflow, requirement
 
 runner = CliRunner()
 

@@ -42,7 +42,7 @@ def test_lamp_facts(tmp_path, write_yaml):
     # it takes about 2.1 Ah, near a quarter of a 9 Ah battery; a 9 Ah lead-acid battery is
     # flat in just over an hour at the very most, and sooner with Peukert's law.
     from chargeplan.api import load_battery_file
-    from chargeplan.readings import runtime
+    from chargeplan.planners.readings import runtime
 
     amps = 100 / 12
     assert amps == pytest.approx(8.3, abs=0.05)

@@ -340,7 +340,7 @@ def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
 
     from chargeplan.api import plan_file
     from chargeplan.demo import example_paths
-    from chargeplan.render.setpoints import to_json
+    from chargeplan.firmware.setpoints import to_json
 
     example = example_paths()[1]
     done = subprocess.run([sys.executable, "-m", "chargeplan", "plan", str(example),

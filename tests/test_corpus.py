@@ -17,7 +17,7 @@ from ruamel.yaml import YAML
 from typer.testing import CliRunner
 
 from chargeplan.cli import app
-from chargeplan.render.setpoints import compute_digest
+from chargeplan.firmware.setpoints import compute_digest
 
 CORPUS = Path(__file__).parent / "corpus"
 EXPECTED: dict[str, list] = dict(YAML(typ="safe").load((CORPUS / "expected.yaml").read_text()))

@@ -11,12 +11,12 @@ import pytest
 from typer.testing import CliRunner
 
 from chargeplan.api import plan_file
-from chargeplan.check import check_document
 from chargeplan.cli import app
 from chargeplan.demo import example_paths
-from chargeplan.render import image
-from chargeplan.render.c_header import c_comment, render_c_header
-from chargeplan.render.setpoints import compute_digest, encode
+from chargeplan.firmware import image
+from chargeplan.firmware.c_header import c_comment, render_c_header
+from chargeplan.firmware.check import check_document
+from chargeplan.firmware.setpoints import compute_digest, encode
 
 from .conftest import battery
 

@@ -26,10 +26,10 @@ from ruamel.yaml import YAML
 from chargeplan import safety
 from chargeplan.engine.planner import plan_charge
 from chargeplan.errors import InputError, PlanRefused
+from chargeplan.firmware.setpoints import compute_digest, encode
 from chargeplan.model.battery import BatteryFile
 from chargeplan.plan import ChargePlan, ExitKind
 from chargeplan.profiles import hard_envelope
-from chargeplan.render.setpoints import compute_digest, encode
 
 REPO = Path(__file__).resolve().parent.parent
 CHEMISTRIES = ("flooded", "agm", "gel", "lifepo4", "nmc")
@@ -641,8 +641,8 @@ def test_json_header_and_image_carry_the_same_numbers(data, bit):
     """The three firmware outputs agree number for number: the header is read back with
     regular expressions written here, the image through its decoder; one flipped bit in the
     image is always caught (zlib.crc32 detects every single-bit error, ITU-T V.42)."""
-    from chargeplan.render import image
-    from chargeplan.render.c_header import render_c_header
+    from chargeplan.firmware import image
+    from chargeplan.firmware.c_header import render_c_header
 
     outcome = _plan_or_outcome(data)
     if isinstance(outcome, str):

@@ -9,7 +9,7 @@ import json
 import pytest
 from jsonschema import Draft202012Validator
 
-from chargeplan.render.setpoints import compute_digest, down, encode, up
+from chargeplan.firmware.setpoints import compute_digest, down, encode, up
 from chargeplan.render.text import render_text
 
 from .conftest import REPO, battery, plan_of

@@ -12,8 +12,8 @@ from chargeplan.cli import app
 from chargeplan.errors import InputError
 from chargeplan.model.storage import SiteFile
 from chargeplan.physics.self_discharge import self_discharge_rate
+from chargeplan.planners.storage import InputErrors, plan_storage
 from chargeplan.profiles import load_builtin
-from chargeplan.storage import InputErrors, plan_storage
 
 runner = CliRunner()
 MONTH = 30.4375  # days
@@ -183,7 +183,7 @@ def test_outputs_are_written_and_well_formed(tmp_path):
 
 
 def test_huge_inventories_are_refused_up_front(monkeypatch):
-    import chargeplan.storage as storage
+    import chargeplan.planners.storage as storage
 
     monkeypatch.setattr(storage, "MEMORY_LIMIT_BYTES", 1000)
     with pytest.raises(InputError, match="split the inventory"):

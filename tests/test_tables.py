@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pytest
 
+from chargeplan.firmware.setpoints import encode
+from chargeplan.firmware.tables import temperature_table
 from chargeplan.model.battery import BatteryFile
-from chargeplan.render.setpoints import encode
-from chargeplan.tables import temperature_table
 
 from .conftest import battery, plan_of
 

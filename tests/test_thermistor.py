@@ -6,13 +6,13 @@ import math
 
 import pytest
 
+from chargeplan.firmware.thermistor import Divider, round_trip_error_c, thermistor_table
 from chargeplan.physics.thermistor import (
     adc_code,
     resistance_beta,
     resistance_steinhart_hart,
     temperature_steinhart_hart,
 )
-from chargeplan.thermistor import Divider, round_trip_error_c, thermistor_table
 
 from .conftest import battery, plan_of
 

@@ -7,8 +7,8 @@ from functools import lru_cache
 from html import escape
 from typing import Any
 
-from chargeplan.bench import BenchPlan
 from chargeplan.cautions import DEFERRAL
+from chargeplan.planners.bench import BenchPlan
 from chargeplan.render.text import describe_exit
 
 __all__ = ["BENCH_CAUTIONS", "bench_document", "gantt_svg", "setpoint_files"]
@@ -145,7 +145,7 @@ def bench_document(plan: BenchPlan, *, html: bool = False) -> str:
 
 def setpoint_files(plan: BenchPlan) -> dict[str, str]:
     """``setpoints/<battery>.json`` for each battery on a channel that loads files."""
-    from chargeplan.render.setpoints import to_json
+    from chargeplan.firmware.setpoints import to_json
 
     files = {}
     for job in plan.jobs:

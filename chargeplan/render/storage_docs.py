@@ -14,8 +14,8 @@ import numpy as np
 
 from chargeplan.cautions import cautions_for
 from chargeplan.physics.ocv import ocv_from_soc
+from chargeplan.planners.storage import StoragePlan
 from chargeplan.profiles import ProfileSet
-from chargeplan.storage import StoragePlan
 
 __all__ = ["calendar_ics", "procedure", "schedule_csv"]
 

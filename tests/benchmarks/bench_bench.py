@@ -44,7 +44,7 @@ def _bench(n: int, channels: int = 40):
 
 def measure(n: int) -> dict[str, float]:
     """Seconds to schedule ``n`` batteries on 40 channels and to write the documents."""
-    from chargeplan.bench import plan_bench
+    from chargeplan.planners.bench import plan_bench
     from chargeplan.render.bench_docs import bench_document, setpoint_files
 
     bench = _bench(n)

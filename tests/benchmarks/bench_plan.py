@@ -13,7 +13,7 @@ import time
 from chargeplan.api import load_battery_file
 from chargeplan.demo import example_paths
 from chargeplan.engine.planner import plan_charge
-from chargeplan.render.setpoints import encode
+from chargeplan.firmware.setpoints import encode
 
 
 def measure(repeat: int = 2000) -> dict[str, float]:

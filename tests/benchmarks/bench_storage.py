@@ -47,8 +47,8 @@ def child(n: int, write: bool) -> None:
     import resource
 
     from chargeplan.errors import InputError
+    from chargeplan.planners.storage import plan_storage
     from chargeplan.render.storage_docs import calendar_ics, schedule_csv
-    from chargeplan.storage import plan_storage
 
     site = _site(n)
     start = time.perf_counter()

@@ -28,8 +28,8 @@ from chargeplan.model.battery import BatteryFile
 from chargeplan.model.bench import BenchBattery, BenchChannel, BenchFile
 from chargeplan.model.charger import ChargerChannel
 from chargeplan.plan import ChargePlan
+from chargeplan.planners.ventilation import available_airflow
 from chargeplan.profiles import ProfileSet
-from chargeplan.ventilation import available_airflow
 
 __all__ = [
     "CHARGER_EFFICIENCY",
@@ -59,7 +59,7 @@ def load_bench(path: str | Path) -> BenchFile:
 
 def read_bench_batteries(path: str | Path) -> list[BenchBattery]:
     """The bench's batteries from a CSV (columns as the bench file's keys)."""
-    from chargeplan.storage import read_rows
+    from chargeplan.planners.storage import read_rows
 
     return read_rows(path, BenchBattery)
 
@@ -222,7 +222,7 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
     duration: dict[tuple[int, int], float] = {}
     airflow = np.zeros(len(rows))
     power: dict[tuple[int, int], float] = {}
-    from chargeplan.ventilation import requirement
+    from chargeplan.planners.ventilation import requirement
 
     for (i, c), p in plans.items():
         total = p.total_estimate()

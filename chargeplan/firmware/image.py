@@ -85,7 +85,7 @@ def _exit(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
 
 
 def encode(doc: dict[str, Any]) -> bytes:
-    """Pack a setpoint document (as :func:`chargeplan.render.setpoints.encode` gives it)."""
+    """Pack a setpoint document (as :func:`chargeplan.firmware.setpoints.encode` gives it)."""
     lock = doc["interlocks"]
     cool, warm = lock["cool_zone"], lock["warm_zone"]
     comp = doc["temperature_compensation"]

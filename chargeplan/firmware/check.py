@@ -40,8 +40,8 @@ class CheckReport:
 def read_setpoint_file(path: str | Path) -> tuple[dict[str, Any], str, list[str]]:
     """The document in a JSON file or an image, its kind, and integrity violations found
     while reading (digest or CRC). A file that is neither is an InputError."""
+    from chargeplan.firmware import image
     from chargeplan.loading import MAX_INPUT_BYTES, parse_json
-    from chargeplan.render import image
 
     shown = str(path)
     try:
@@ -75,7 +75,7 @@ def read_setpoint_file(path: str | Path) -> tuple[dict[str, Any], str, list[str]
     if not isinstance(doc, dict) or doc.get("format") != "chargeplan-setpoints":
         raise InputError("is JSON but not a chargeplan setpoint document", file=shown,
                          field="format", fix="give the file 'chargeplan plan -f json' wrote")
-    from chargeplan.render.setpoints import compute_digest
+    from chargeplan.firmware.setpoints import compute_digest
 
     found = []
     if doc.get("digest") != compute_digest(doc):
@@ -97,8 +97,8 @@ def load_channel_file(path: str | Path) -> ChargerChannel:
 def _schema_violations(doc: dict[str, Any]) -> list[str]:
     from pydantic import ValidationError
 
+    from chargeplan.firmware.document import SetpointDocument
     from chargeplan.model import SETPOINT_VERSION
-    from chargeplan.model.setpoints import SetpointDocument
 
     if doc.get("version") != SETPOINT_VERSION:
         return [f"version: {doc.get('version')!r} is not the setpoint format version this "

@@ -36,7 +36,7 @@ def _ident(text: str) -> str:
 def _template() -> Any:
     from jinja2 import Environment, PackageLoader, StrictUndefined
 
-    env = Environment(loader=PackageLoader("chargeplan", "render/templates"),
+    env = Environment(loader=PackageLoader("chargeplan", "firmware/templates"),
                       autoescape=False, trim_blocks=True, lstrip_blocks=True,
                       keep_trailing_newline=True, undefined=StrictUndefined)
     env.filters.update(comment=c_comment, ident=_ident)

@@ -59,7 +59,7 @@ def load_bench(path: str | Path) -> BenchFile:
 
 def read_bench_batteries(path: str | Path) -> list[BenchBattery]:
     """The bench's batteries from a CSV (columns as the bench file's keys)."""
-    from chargeplan.planners.storage import read_rows
+    from chargeplan.csvfile import read_rows
 
     return read_rows(path, BenchBattery)
 

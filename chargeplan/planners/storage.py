@@ -11,15 +11,14 @@ Top-ups are charge plans from the core engine, timed by the physics.
 
 from __future__ import annotations
 
-import csv
 import datetime as dt
-from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from chargeplan.csvfile import InputErrors, csv_reader, csv_rows, read_rows
 from chargeplan.errors import InputError
 from chargeplan.loading import read_mapping, validate
 from chargeplan.model.storage import InventoryRow, SiteFile
@@ -39,14 +38,6 @@ FAST_LOSS_POINTS = 10.0
 MEMORY_LIMIT_BYTES = 6 * 1024**3
 
 
-class InputErrors(InputError):
-    """Several bad rows at once: each is one line naming the file, the line and the fix."""
-
-    def __init__(self, lines: list[str]) -> None:
-        self.lines = lines
-        super().__init__(f"{len(lines)} bad rows", fix="mend each row listed")
-
-
 def load_site(path: str | Path) -> SiteFile:
     return validate(SiteFile, read_mapping(path, what="storage site"), file=str(path))
 
@@ -56,71 +47,6 @@ def read_inventory(path: str | Path) -> list[InventoryRow]:
     return read_rows(path, InventoryRow)
 
 
-def _csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
-    """A CSV file (UTF-8, with or without a byte-order mark, any line ends) as a reader whose
-    ``line_num`` is the physical line."""
-    import io
-
-    shown = str(path)
-    try:
-        text = Path(path).read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise InputError("no such file", file=shown, fix="check the path") from None
-    except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
-    return shown, csv.DictReader(io.StringIO(text, newline=""))
-
-
-def _csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, dict[str, str]]]:
-    """Each row's line and non-empty cells; a stray quote or an extra cell is an error."""
-    previous = reader.line_num
-    for raw in reader:
-        line, first, previous = reader.line_num, previous + 1, reader.line_num
-        if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
-            errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
-                          f"{line}); check the row for a stray double quote")
-            continue
-        if raw.get(None):
-            errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
-                          "stray comma or quote")
-            continue
-        data = {(k or "").strip(): (v or "").strip() for k, v in raw.items()}
-        yield line, {k: v for k, v in data.items() if v != ""}
-
-
-def read_rows(path: str | Path, model: Any) -> list[Any]:
-    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
-    from pydantic import ValidationError
-
-    from chargeplan.loading import input_error
-
-    shown, reader = _csv_reader(path)
-    if reader.fieldnames is None:
-        raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
-    rows: list[Any] = []
-    errors: list[str] = []
-    seen: set[str | None] = set()
-    for line, data in _csv_rows(reader, shown, errors):
-        if "cells_in_series" in data:
-            try:
-                data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
-            except ValueError:
-                pass
-        if data.get("id") in seen:
-            errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
-                          "each battery its own id")
-            continue
-        seen.add(data.get("id"))
-        try:
-            rows.append(model.model_validate(data))
-        except ValidationError as error:
-            problem = input_error(error, file=f"{shown}: line {line}", model=model)
-            errors.append(str(problem))
-    if errors:
-        raise InputErrors(errors)
-    return rows
-
-
 READING_COLUMNS = ("date", "battery", "rest_voltage")
 
 
@@ -128,7 +54,7 @@ def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
     """The readings log: CSV columns date (YYYY-MM-DD), battery, rest_voltage ('12.41 V')."""
     from chargeplan.units import parse_quantity
 
-    shown, reader = _csv_reader(path)
+    shown, reader = csv_reader(path)
     if reader.fieldnames is None:
         raise InputError("is empty", file=shown,
                          fix="write the header date,battery,rest_voltage, then one row a reading")
@@ -138,7 +64,7 @@ def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
                          fix="write the header date,battery,rest_voltage")
     readings: list[tuple[dt.date, str, float]] = []
     errors: list[str] = []
-    for line, data in _csv_rows(reader, shown, errors):
+    for line, data in csv_rows(reader, shown, errors):
         where = f"{shown}: line {line}"
         try:
             date = dt.date.fromisoformat(data.get("date", ""))

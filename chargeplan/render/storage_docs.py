@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 
 from chargeplan.cautions import cautions_for
+from chargeplan.csvfile import csv_row
 from chargeplan.physics.ocv import ocv_from_soc
 from chargeplan.planners.storage import StoragePlan
 from chargeplan.profiles import ProfileSet
@@ -62,7 +63,7 @@ def schedule_csv(plan: StoragePlan) -> str:
                 action, charge = "measure the rested voltage", ""
             freeze = plan.first_freeze_day[i]
             risk = "yes" if d <= freeze < end else ""
-            writer.writerow((date, row.id, row.owner, plan.chemistry[i], row.bay,
+            csv_row(writer, (date, row.id, row.owner, plan.chemistry[i], row.bay,
                              f"{soc:.0f}", action, risk, charge))
     return out.getvalue()
 

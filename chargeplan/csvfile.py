@@ -1,0 +1,139 @@
+"""Reading and writing CSV files: one place for the planners' inventories, readings and logs.
+
+Reading: UTF-8 with or without a byte-order mark, any line ends, physical line numbers in
+every message, and every bad row reported at once (:class:`InputErrors`).
+
+Writing: :func:`csv_cell` guards a cell that a spreadsheet would run as a formula (OWASP,
+"CSV Injection"): a cell starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
+return gets a leading apostrophe, unless it is one plain number. :func:`csv_unguard` takes
+the apostrophe off again, and every reader here applies it, so the files the tool writes
+read back as they are.
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+from typing import Any
+
+from chargeplan.errors import InputError
+
+__all__ = ["InputErrors", "csv_cell", "csv_reader", "csv_row", "csv_rows", "csv_unguard",
+           "read_rows"]
+
+#: Characters that make a spreadsheet read a cell as a formula (OWASP "CSV Injection").
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+#: One plain number: what a spreadsheet may read as a number, and nothing else.
+_PLAIN_NUMBER = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?")
+
+
+def csv_cell(value: object) -> str:
+    """The cell as text, with a leading apostrophe if a spreadsheet would run it as a formula.
+
+    >>> csv_cell("=HYPERLINK(1)")
+    "'=HYPERLINK(1)"
+    >>> csv_cell("-5.5")
+    '-5.5'
+    >>> csv_cell("-2+3+cmd|x")
+    "'-2+3+cmd|x"
+    """
+    text = "" if value is None else str(value)
+    if text.startswith(_FORMULA_START) and not _PLAIN_NUMBER.fullmatch(text):
+        return "'" + text
+    return text
+
+
+def csv_unguard(text: str) -> str:
+    """Undo :func:`csv_cell`: the apostrophe it added comes off, nothing else changes.
+
+    >>> csv_unguard("'=HYPERLINK(1)")
+    '=HYPERLINK(1)'
+    >>> csv_unguard("'quoted")
+    "'quoted"
+    """
+    if text.startswith("'") and text[1:].startswith(_FORMULA_START):
+        return text[1:]
+    return text
+
+
+def csv_row(writer: Any, cells: Iterable[object]) -> None:
+    """Write one row through ``writer`` (a ``csv.writer``), every cell guarded."""
+    writer.writerow([csv_cell(c) for c in cells])
+
+
+class InputErrors(InputError):
+    """Several bad rows at once: each is one line naming the file, the line and the fix."""
+
+    def __init__(self, lines: list[str]) -> None:
+        self.lines = lines
+        super().__init__(f"{len(lines)} bad rows", fix="mend each row listed")
+
+
+def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
+    """A CSV file (UTF-8, with or without a byte-order mark, any line ends) as a reader whose
+    ``line_num`` is the physical line."""
+    import io
+
+    shown = str(path)
+    try:
+        text = Path(path).read_bytes().decode("utf-8-sig")
+    except FileNotFoundError:
+        raise InputError("no such file", file=shown, fix="check the path") from None
+    except UnicodeDecodeError:
+        raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
+    return shown, csv.DictReader(io.StringIO(text, newline=""))
+
+
+def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, dict[str, str]]]:
+    """Each row's line and non-empty cells; a stray quote or an extra cell is an error."""
+    previous = reader.line_num
+    for raw in reader:
+        line, first, previous = reader.line_num, previous + 1, reader.line_num
+        if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
+            errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
+                          f"{line}); check the row for a stray double quote")
+            continue
+        if raw.get(None):
+            errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
+                          "stray comma or quote")
+            continue
+        data = {csv_unguard((k or "").strip()): csv_unguard((v or "").strip())
+                for k, v in raw.items()}
+        yield line, {k: v for k, v in data.items() if v != ""}
+
+
+def read_rows(path: str | Path, model: Any) -> list[Any]:
+    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
+    from pydantic import ValidationError
+
+    from chargeplan.loading import input_error
+
+    shown, reader = csv_reader(path)
+    if reader.fieldnames is None:
+        raise InputError("is empty", file=shown, fix="write a header row, then one row a battery")
+    rows: list[Any] = []
+    errors: list[str] = []
+    seen: set[str | None] = set()
+    for line, data in csv_rows(reader, shown, errors):
+        if "cells_in_series" in data:
+            try:
+                data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
+            except ValueError:
+                pass
+        if data.get("id") in seen:
+            errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
+                          "each battery its own id")
+            continue
+        seen.add(data.get("id"))
+        try:
+            rows.append(model.model_validate(data))
+        except ValidationError as error:
+            problem = input_error(error, file=f"{shown}: line {line}", model=model)
+            errors.append(str(problem))
+    if errors:
+        raise InputErrors(errors)
+    return rows
+
+

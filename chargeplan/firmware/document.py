@@ -35,6 +35,7 @@ StageKindName = Literal[
     "precharge", "desulfation", "bulk", "absorption", "equalization", "float", "storage_hold"
 ]
 Then = Literal["next", "stop"]
+Guard = Literal["fault"]
 
 
 class _Doc(BaseModel):
@@ -65,7 +66,37 @@ class DurationExit(_Doc):
     then: Then
 
 
-StageExit = Annotated[VoltageExit | CurrentExit | DurationExit, Field(discriminator="condition")]
+class ChargeAboveExit(_Doc):
+    """A fault when the charge put in since the charge began exceeds ``charge_mAh``."""
+
+    condition: Literal["charge_above"]
+    charge_mAh: int = Field(gt=0)
+    then: Guard
+
+
+class CurrentRisingExit(_Doc):
+    """A fault when, at constant voltage, the current rises ``current_mA`` above the lowest
+    current of this stage (the sign of thermal runaway)."""
+
+    condition: Literal["current_rising"]
+    current_mA: int = Field(gt=0)
+    then: Guard
+
+
+class TemperatureRiseExit(_Doc):
+    """A fault when the battery temperature rises ``temperature_rise_dK`` (0.1 K) above its
+    temperature when the stage began."""
+
+    condition: Literal["temperature_rise"]
+    temperature_rise_dK: int = Field(gt=0)
+    then: Guard
+
+
+StageExit = Annotated[
+    VoltageExit | CurrentExit | DurationExit | ChargeAboveExit | CurrentRisingExit
+    | TemperatureRiseExit,
+    Field(discriminator="condition"),
+]
 
 
 class SetpointStage(_Doc):

@@ -35,7 +35,17 @@ def _exit(e: Exit) -> dict[str, Any]:
         return {"condition": e.kind.value, "voltage_mV": down(e.value, 1000), "then": e.then}
     if e.kind == ExitKind.CURRENT_BELOW:
         return {"condition": e.kind.value, "current_mA": up(e.value, 1000), "then": e.then}
-    return {"condition": e.kind.value, "duration_s": down(e.value, 1), "then": e.then}
+    if e.kind == ExitKind.DURATION:
+        return {"condition": e.kind.value, "duration_s": down(e.value, 1), "then": e.then}
+    # the fault guards: a smaller threshold trips sooner, so each rounds down (toward safety)
+    if e.kind == ExitKind.CHARGE_ABOVE:
+        return {"condition": e.kind.value, "charge_mAh": down(e.value, 1000), "then": e.then}
+    if e.kind == ExitKind.CURRENT_RISING:
+        return {"condition": e.kind.value, "current_mA": down(e.value, 1000), "then": e.then}
+    if e.kind == ExitKind.TEMPERATURE_RISE:
+        return {"condition": e.kind.value, "temperature_rise_dK": down(e.value, 10),
+                "then": e.then}
+    raise ValueError(f"no encoding for the exit {e.kind.value}")
 
 
 def _estimate(stage: Stage) -> dict[str, int | None]:

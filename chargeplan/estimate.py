@@ -101,7 +101,7 @@ def arrays_for(
                     exit_v[row, col] = e.value / n_cells
                 elif e.kind == ExitKind.CURRENT_BELOW:
                     exit_i[row, col] = e.value
-                else:
+                elif e.kind == ExitKind.DURATION:  # the fault guards are not modelled
                     exit_t[row, col] = min(exit_t[row, col], e.value)
                 stop[row, col] |= e.then == "stop"
     params = CellParameters(

@@ -134,17 +134,18 @@ def _within_builtin(profile: Profile, file: str) -> None:
     if c.float_voltage is not None:
         over("charge.float_voltage", c.float_voltage.value, v_max, "V/cell")
     for stage in (profile.equalization, profile.desulfation):
-        if stage.allowed and stage.voltage is not None:
+        if stage.possible and stage.voltage is not None:
             name = "equalization" if stage is profile.equalization else "desulfation"
             over(f"{name}.voltage", stage.voltage.value, v_max, "V/cell")
     i_max = hard.max_current_it
     over("envelope.max_current", profile.envelope.max_current.value, i_max, "It")
     over("charge.bulk_current", c.bulk_current.value, i_max, "It")
     for stage in (profile.equalization, profile.desulfation):
-        if stage.allowed and stage.current is not None:
+        if stage.possible and stage.current is not None:
             name = "equalization" if stage is profile.equalization else "desulfation"
             over(f"{name}.current", stage.current.value, i_max, "It")
-    _zones_within(profile, load_builtin(profile.chemistry), file)
+    builtin = load_builtin(profile.chemistry)
+    _zones_within(profile, builtin, file)
     rest, hard_rest = profile.rest_voltage, load_builtin(profile.chemistry).rest_voltage
     over("rest_voltage.highest_plausible", rest.highest_plausible.value,
          hard_rest.highest_plausible.value, "V/cell")
@@ -178,10 +179,18 @@ def _within_builtin(profile: Profile, file: str) -> None:
             fix=f"add {', '.join(sorted(missing))}",
         )
     for stage_name in ("equalization", "desulfation"):
-        if getattr(profile, stage_name).allowed and stage_name in hard.forbidden_stages:
+        block, hard_block = getattr(profile, stage_name), getattr(builtin, stage_name)
+        if block.possible and stage_name in hard.forbidden_stages:
             raise InputError(
                 f"{stage_name} is forbidden for {profile.chemistry}",
-                file=file, field=f"{stage_name}.allowed", fix="set allowed: false",
+                file=file, field=f"{stage_name}.allowed",
+                fix="set allowed: false and maker_may_allow: false",
+            )
+        if block.possible and not hard_block.possible:
+            raise InputError(
+                f"{stage_name} is never planned for {profile.chemistry}",
+                file=file, field=f"{stage_name}.allowed",
+                fix="set allowed: false and maker_may_allow: false",
             )
 
 

@@ -29,6 +29,7 @@ except ImportError:  # pragma: no cover - depends on the installed pint
     ParserConfig = None
 
 __all__ = [
+    "DAY_S",
     "DIMENSIONS",
     "Q_",
     "describe_dimension",
@@ -36,6 +37,9 @@ __all__ = [
     "parse_quantity",
     "ureg",
 ]
+
+#: Seconds in a day (durations are held in seconds inside the library).
+DAY_S = 86_400.0
 
 
 

@@ -50,6 +50,20 @@ def test_engine_case(case):
         assert plan.stage(kind).voltage_v == pytest.approx(volts, abs=0.005), kind
     for kind, amps in expect.get("current_a", {}).items():
         assert plan.stage(kind).current_a == pytest.approx(amps, abs=0.005), kind
+    cells, capacity = plan.battery.cells_in_series, plan.battery.capacity_ah
+    for kind, (low, high) in expect.get("cell_voltage_between", {}).items():
+        assert low - 1e-9 <= plan.stage(kind).voltage_v / cells <= high + 1e-9, kind
+    for kind, (low, high) in expect.get("current_it_between", {}).items():
+        assert low - 1e-9 <= plan.stage(kind).current_a / capacity <= high + 1e-9, kind
+    for kind, volts in expect.get("voltage_below", {}).items():
+        assert plan.stage(kind).voltage_v < volts, kind
+    for kind in expect.get("fault_guards", []):
+        stage = plan.stage(kind)
+        guards = {e.kind.value for e in stage.exits if e.then == "fault"}
+        assert {"charge_above", "temperature_rise"} <= guards, kind
+        assert stage.compensated, kind
+    if "finding_rule" in expect:
+        assert expect["finding_rule"] in {f.rule_id for f in plan.findings}
     if "finding" in expect:
         messages = " | ".join(f.message for f in plan.findings)
         assert expect["finding"] in messages

@@ -149,7 +149,7 @@ def _good():
         (lambda d: d["interlocks"].__setitem__("charge_temperature_min_dC", 600),
          "not below the maximum"),
         (lambda d: d["stages"][-1].__setitem__("voltage_mV", 16000), "at or above"),
-        (lambda d: d["stages"][2].__setitem__("timer_s", 10), "shorter than"),
+        (lambda d: d["stages"][1].__setitem__("timer_s", 10), "shorter than"),
         (lambda d: d["stages"].insert(0, {**d["stages"][1], "kind": "precharge",
                                           "current_mA": 9000}), "pre-charge current"),
     ],

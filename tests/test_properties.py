@@ -79,13 +79,13 @@ NMC_WARM_CELL_V = 4.15
 # - lithium: no equalization or desulfation (common practice: these lead-acid
 #   stages damage lithium cells), no float or trickle for Li-ion (BU-702 "How to
 #   Store Batteries"; BU-808a);
-# - gel: never equalized or desulfated, AGM not equalized unless its maker allows it
-#   (common practice; the input has no way to say the maker allows it).
+# - gel: never equalized or desulfated; AGM neither unless its maker allows it (common
+#   practice; the strategy below never draws the maker's permission).
 FORBIDDEN = {
     "lifepo4": {"equalization", "desulfation"},
     "nmc": {"equalization", "desulfation", "float"},
     "gel": {"equalization", "desulfation"},
-    "agm": {"equalization"},
+    "agm": {"equalization", "desulfation"},
     "flooded": set(),
 }
 # Battery Council International table, as reproduced in handbooks: specific gravity
@@ -551,8 +551,14 @@ def test_setpoint_document_rounds_toward_safety_and_detects_edits(data):
                 assert e_out["voltage_mV"] <= e.value * 1000 + SCALED_NOISE
             elif e.kind == ExitKind.CURRENT_BELOW:  # a tail current rounds up: ends sooner
                 assert e_out["current_mA"] >= e.value * 1000 - SCALED_NOISE
-            else:
+            elif e.kind == ExitKind.DURATION:
                 assert e_out["duration_s"] <= e.value + SCALED_NOISE
+            else:  # a fault guard rounds down: it trips sooner
+                assert e.then == "fault"
+                key, scale = {ExitKind.CHARGE_ABOVE: ("charge_mAh", 1000),
+                              ExitKind.CURRENT_RISING: ("current_mA", 1000),
+                              ExitKind.TEMPERATURE_RISE: ("temperature_rise_dK", 10)}[e.kind]
+                assert e_out[key] <= e.value * scale + SCALED_NOISE
         if stage.timer_s is not None:
             assert out["timer_s"] <= stage.timer_s + SCALED_NOISE
     # And in whole integers, never above the envelope read from the profile file.
@@ -649,6 +655,19 @@ def test_json_header_and_image_carry_the_same_numbers(data, bit):
         event(outcome)
     assume(not isinstance(outcome, str))
     doc = encode(outcome)
+    guarded = [e for stage in doc["stages"] for e in stage["exits"]
+               if e["condition"] not in ("voltage_reached", "current_below", "duration")]
+    if guarded:
+        # the fixed stage layout has no place for a fault guard: both refuse, never drop it
+        event("fault guards: image and header refused")
+        for write in (lambda: image.encode(doc), lambda: render_c_header(outcome, doc)):
+            try:
+                write()
+            except InputError as error:
+                assert error.field == "--format"
+            else:
+                raise AssertionError("a fault guard was dropped from a firmware file")
+        return
     header = render_c_header(outcome, doc)
     defines = {name: int(value) for name, value in _DEFINE.findall(header)}
     lock = doc["interlocks"]

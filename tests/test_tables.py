@@ -20,13 +20,16 @@ def _table(data, step=5.0):
 
 
 def test_lead_acid_rows_follow_the_compensation():
-    # BU-410: -3 mV/degC per cell about 25 degC, held flat outside -10..40 degC (common practice)
+    # BU-410: -3 mV/degC per cell about 25 degC, across its Table 1 window -20 to 50 degC;
+    # clamped at the AGM envelope's 2.55 V/cell on the cold side
     plan = _table(battery(state={"state_of_charge": "90 %"}))
     rows = {round(r.temperature_c): r for r in plan.temperature_table}
     assert rows[25].charge_voltage_v == pytest.approx(2.43 * 6)
     assert rows[5].charge_voltage_v == pytest.approx(2.43 * 6 + 0.018 * 20)
-    assert rows[-15].charge_voltage_v == pytest.approx(rows[-10].charge_voltage_v)  # held
-    assert rows[45].charge_voltage_v == pytest.approx(rows[40].charge_voltage_v)
+    assert rows[45].charge_voltage_v == pytest.approx(2.43 * 6 - 0.018 * 20)  # no warm hold
+    assert rows[50].charge_voltage_v == pytest.approx(2.43 * 6 - 0.018 * 25)
+    assert rows[-15].charge_voltage_v == pytest.approx(2.55 * 6)  # 2.43 + 0.12: at the clamp
+    assert rows[-20].charge_voltage_v == pytest.approx(2.55 * 6)  # 2.565 clamped to 2.55
     assert rows[25].hold_voltage_v == pytest.approx(2.27 * 6)  # IEC 62485-2 Table 1 float
     volts = [r.charge_voltage_v for r in plan.temperature_table]
     assert volts == sorted(volts, reverse=True)  # colder never lower

@@ -52,6 +52,9 @@ def _exit(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
 
 def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     """The header for ``doc`` (the encoded ``plan``)."""
+    from chargeplan.firmware.image import require_layout_exits
+
+    require_layout_exits(doc, "C header")
     stages = []
     for stage, encoded in zip(plan.stages, doc["stages"], strict=True):
         stages.append({

@@ -84,8 +84,30 @@ def _exit(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
     return NONE_U32, 0
 
 
+#: The exits the fixed stage layout (this image format and the C header) has a place for.
+LAYOUT_EXITS = frozenset({"voltage_reached", "current_below", "duration"})
+
+
+def require_layout_exits(doc: dict[str, Any], what: str) -> None:
+    """Refuse a document whose stages carry fault guards the fixed layout cannot hold: a
+    firmware file that silently lost a stage's Ah cap or temperature stop is never written."""
+    from chargeplan.errors import InputError
+
+    for index, stage in enumerate(doc["stages"], 1):
+        extra = sorted({e["condition"] for e in stage["exits"]} - LAYOUT_EXITS)
+        if extra:
+            raise InputError(
+                f"stage {index} ({stage['kind']}) carries fault guards ({', '.join(extra)}) "
+                f"that the {what} has no place for", field="--format",
+                fix="write the JSON setpoint document (-f json), which carries them")
+
+
 def encode(doc: dict[str, Any]) -> bytes:
-    """Pack a setpoint document (as :func:`chargeplan.firmware.setpoints.encode` gives it)."""
+    """Pack a setpoint document (as :func:`chargeplan.firmware.setpoints.encode` gives it).
+
+    A document with fault guards is refused (:func:`require_layout_exits`).
+    """
+    require_layout_exits(doc, "setpoint image")
     lock = doc["interlocks"]
     cool, warm = lock["cool_zone"], lock["warm_zone"]
     comp = doc["temperature_compensation"]

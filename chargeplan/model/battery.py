@@ -34,7 +34,16 @@ class Overrides(InputModel):
     absorption_voltage: CellOrPackVoltage | None = None
     float_voltage: CellOrPackVoltage | None = None
     storage_voltage: CellOrPackVoltage | None = None
-    equalization_voltage: CellOrPackVoltage | None = None
+    equalization_voltage: CellOrPackVoltage | None = Field(
+        default=None,
+        description="the maker's equalization voltage; for AGM it is also the maker's "
+        "permission to equalize",
+    )
+    desulfation_voltage: CellOrPackVoltage | None = Field(
+        default=None,
+        description="the maker's desulfation (conditioning) voltage; for AGM it is also the "
+        "maker's permission to run the stage",
+    )
     bulk_current: CurrentOrRate | None = None
     max_charge_current: CurrentOrRate | None = None
     tail_current: CurrentOrRate | None = None
@@ -119,6 +128,16 @@ class State(InputModel):
         description="true asks for an equalization (flooded only), false forbids it; "
         "unset lets the rules decide",
     )
+    capacity_test: Literal["passed", "failed"] | None = Field(
+        default=None,
+        description="the last capacity test: 'failed' when the battery, fully charged, gave "
+        "well under its rated capacity (evidence of sulfation)",
+    )
+    recharge_test: Literal["passed", "failed"] | None = Field(
+        default=None,
+        description="'failed' when a full charge did not bring the rest voltage or specific "
+        "gravity back to full (evidence of sulfation)",
+    )
     cells_verified: bool = Field(
         default=False,
         description="every cell was checked (hydrometer or cell voltages) and none is shorted",
@@ -155,3 +174,8 @@ class BatteryFile(InputModel):
     conditions: Conditions
     storage: Storage | None = None
     charger: ChargerChannel | None = None
+    request: list[Literal["desulfation", "equalization"]] = Field(
+        default_factory=list,
+        description="stages the operator asks for; each still needs a chemistry that "
+        "allows it (flooded, or AGM with the maker's permission)",
+    )

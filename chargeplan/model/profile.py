@@ -105,35 +105,51 @@ class Charge(InputModel):
 
 
 class _OptionalStage(InputModel):
-    """An optional high-voltage stage: when allowed, every value it needs must be given."""
+    """An optional high-voltage stage (a controlled overcharge after a full charge).
+
+    ``allowed`` is the chemistry's default; ``maker_may_allow`` lets a battery file carry
+    the maker's explicit permission (its datasheet voltage for the stage, in
+    ``battery.overrides``). When either holds, every value the stage needs must be given:
+    its voltage, current and time, the Ah cap (``charge_max``, a share of the capacity),
+    and the temperature stops (``temperature_rise`` above its start, ``stop_above``).
+    """
 
     allowed: bool
-    _needs: ClassVar[tuple[str, ...]] = ()
+    maker_may_allow: bool = False
+    voltage: CellVoltage | None = None  # type: ignore[valid-type]
+    current: CRate | None = None  # type: ignore[valid-type]
+    duration: Duration | None = None  # type: ignore[valid-type]
+    charge_max: Percent | None = None  # type: ignore[valid-type]
+    temperature_rise: TempDifference | None = None  # type: ignore[valid-type]
+    stop_above: Temp | None = None  # type: ignore[valid-type]
+    _needs: ClassVar[tuple[str, ...]] = (
+        "voltage", "current", "duration", "charge_max", "temperature_rise", "stop_above"
+    )
+
+    @property
+    def possible(self) -> bool:
+        """Allowed by default, or with the maker's permission."""
+        return self.allowed or self.maker_may_allow
 
     @model_validator(mode="after")
     def _complete_when_allowed(self) -> _OptionalStage:
         missing = [name for name in self._needs if getattr(self, name) is None]
-        if self.allowed and missing:
+        if self.possible and missing:
             raise ValueError(f"an allowed stage needs {', '.join(missing)}")
         return self
 
 
 class Equalization(_OptionalStage):
-    _needs = ("voltage", "current", "duration", "gravity_spread_trigger", "interval")
-    voltage: CellVoltage | None = None  # type: ignore[valid-type]
-    current: CRate | None = None  # type: ignore[valid-type]
-    duration: Duration | None = None  # type: ignore[valid-type]
+    """Equalization: on a specific-gravity spread, when due, or when the operator asks."""
+
+    _needs = (*_OptionalStage._needs, "gravity_spread_trigger", "interval")
     gravity_spread_trigger: Gravity | None = None  # type: ignore[valid-type]
     interval: Duration | None = None  # type: ignore[valid-type]
 
 
 class Desulfation(_OptionalStage):
-    _needs = ("voltage", "current", "duration", "state_of_charge_below", "idle_after")
-    voltage: CellVoltage | None = None  # type: ignore[valid-type]
-    current: CRate | None = None  # type: ignore[valid-type]
-    duration: Duration | None = None  # type: ignore[valid-type]
-    state_of_charge_below: Percent | None = None  # type: ignore[valid-type]
-    idle_after: Duration | None = None  # type: ignore[valid-type]
+    """Desulfation: only on evidence of sulfation (a failed capacity or recharge test) or
+    when the operator asks."""
 
 
 class Compensation(InputModel):
@@ -282,10 +298,15 @@ class Profile(InputModel):
                 raise ValueError("lithium voltages are not temperature compensated; "
                                  "remove temperature.compensation")
             for stage in ("equalization", "desulfation"):
-                if getattr(self, stage).allowed:
-                    raise ValueError(f"{stage} is never allowed for lithium; set allowed: false")
+                if getattr(self, stage).possible:
+                    raise ValueError(f"{stage} is never allowed for lithium; set allowed: "
+                                     "false and maker_may_allow: false")
         elif t.compensation is None:
             raise ValueError("lead-acid profiles need temperature.compensation")
+        elif t.compensation.range_max.value < t.charge_max.value:
+            raise ValueError("temperature.compensation.range_max must reach "
+                             "temperature.charge_max: a flat hold below it would charge a warm "
+                             "battery at a cooler, higher voltage")
         elif self.physics.gassing is None:
             raise ValueError("lead-acid profiles need physics.gassing")
         return self

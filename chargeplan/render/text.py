@@ -17,9 +17,16 @@ def describe_exit(e: Exit) -> str:
         text = f"voltage reaches {fmt.volts(e.value)}"
     elif e.kind == ExitKind.CURRENT_BELOW:
         text = f"current below {fmt.amps(e.value)}"
-    else:
+    elif e.kind == ExitKind.DURATION:
         text = f"after {fmt.duration(e.value)}"
-    return text + (", then stop" if e.then == "stop" else "")
+    elif e.kind == ExitKind.CHARGE_ABOVE:
+        text = f"more than {fmt.num(e.value, 1)} Ah in since the charge began"
+    elif e.kind == ExitKind.CURRENT_RISING:
+        text = f"current rises {fmt.amps(e.value)} above its lowest"
+    else:
+        text = f"battery warms {fmt.num(e.value, 1)} K above its start"
+    then = {"stop": ", then stop", "fault": ": fault, stop charging"}
+    return text + then.get(e.then, "")
 
 
 @lru_cache(maxsize=1)

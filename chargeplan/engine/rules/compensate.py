@@ -8,17 +8,19 @@ from chargeplan.fmt import amps, cell_volts, celsius, num, volts
 from chargeplan.plan import Compensation, Exit, ExitKind, StageKind
 
 #: Lead-acid stages whose voltage follows the temperature compensation.
-COMPENSATED = frozenset({StageKind.BULK, StageKind.ABSORPTION, StageKind.EQUALIZATION,
-                         StageKind.FLOAT, StageKind.STORAGE_HOLD})
+COMPENSATED = frozenset({StageKind.BULK, StageKind.ABSORPTION, StageKind.DESULFATION,
+                         StageKind.EQUALIZATION, StageKind.FLOAT, StageKind.STORAGE_HOLD})
 
 
 @rule("CP301", "compensation.lead_acid", source="BU-410 Charging at High and Low Temperatures: "
-      "-3 mV/degC per cell about 25 degC (-3 to -5 across sources); common practice: held flat "
-      "outside its range")
+      "-3 mV/degC per cell about 25 degC (-3 to -5 across sources), across its Table 1 "
+      "lead-acid charge window -20 to 50 degC; clamped at the envelope's cell maximum")
 def compensation_lead_acid(ctx: Context) -> None:
-    """Lead-acid voltages fall as the battery warms and rise as it cools, flat outside the range.
+    """Lead-acid voltages fall as the battery warms and rise as it cools, across the window.
 
-    The compensated value is also held to the envelope's cell-voltage limit.
+    The range is the whole charge window (BU-410 Table 1), so a warm battery is never held
+    at a cooler, higher voltage; on the cold side the compensated value is clamped at the
+    envelope's cell-voltage maximum, and the trace says so.
     """
     comp = ctx.profile.temperature.compensation
     if ctx.lithium or comp is None:
@@ -46,7 +48,8 @@ def compensation_lead_acid(ctx: Context) -> None:
                 f"+ ({num(k * 1000, 1)} mV/K/cell x {n} x ({num(t_used, 1)} - {num(ref, 1)}) K)"
                 f"{held}")
         if new > limit:
-            text += f", clamped to the envelope's {volts(limit)}"
+            text += (f", clamped to the envelope's {volts(limit)} "
+                     f"({cell_volts(ctx.settings.cell_voltage_max_v)})")
             new = limit
         stage.voltage_v = new
         stage.compensated = True

@@ -4,9 +4,15 @@ from __future__ import annotations
 
 from chargeplan.engine.context import Context, Settings
 from chargeplan.engine.registry import rule
-from chargeplan.fmt import amps, cell_volts, duration, num, volts
+from chargeplan.fmt import amps, cell_volts, celsius, duration, num, volts
 from chargeplan.physics.ocv import soc_from_ocv
 from chargeplan.plan import Exit, ExitKind, Stage, StageKind
+from chargeplan.units import DAY_S
+
+#: The order stages run in: the conditioning overcharges only once the battery is full.
+CHARGE_ORDER = (StageKind.PRECHARGE, StageKind.BULK, StageKind.ABSORPTION,
+                StageKind.DESULFATION, StageKind.EQUALIZATION, StageKind.FLOAT,
+                StageKind.STORAGE_HOLD)
 
 #: The highest state of charge a lithium storage voltage may stand for (BU-702: 40-50 %).
 STORAGE_LEVEL_MAX_PCT = 60.0
@@ -56,10 +62,11 @@ def settings_overrides(ctx: Context) -> None:
         if attr == "float_v_cell" and (ctx.lithium or "float" in p.envelope.forbidden_stages):
             raise ctx.bad_input(field(name), f"{p.name} is never floated",
                                 "remove the float_voltage override")
-        if attr == "equalization_v_cell" and not p.equalization.allowed:
-            raise ctx.bad_input(field(name), f"{p.name} is not equalized by this profile",
-                                "remove the override, or use a profile that allows "
-                                "equalization")
+        block = {"equalization_v_cell": p.equalization,
+                 "desulfation_v_cell": p.desulfation}.get(attr)
+        if block is not None and (not block.possible or stage in p.envelope.forbidden_stages):
+            raise ctx.bad_input(field(name), f"{p.name} is never given {stage}",
+                                "remove the override, or use a profile that allows it")
         per_cell = given.cell_volts(n)
         nominal_v = p.nominal_cell_voltage.value
         if not given.per_cell and per_cell < nominal_v:
@@ -95,6 +102,7 @@ def settings_overrides(ctx: Context) -> None:
     cell_voltage("float_voltage", "float_v_cell", "float")
     cell_voltage("storage_voltage", "storage_v_cell", "storage_hold")
     cell_voltage("equalization_voltage", "equalization_v_cell", "equalization")
+    cell_voltage("desulfation_voltage", "desulfation_v_cell", "desulfation")
     if s.float_v_cell is not None and s.float_v_cell >= s.absorption_v_cell:
         raise ctx.bad_input(field("float_voltage"), "must be below the absorption voltage",
                             "check both values against the datasheet")
@@ -206,49 +214,117 @@ def stages_precharge(ctx: Context) -> None:
     ctx.note("precharge.current", f"{amps(s.precharge_a)}")
 
 
-@rule("CP203", "stages.desulfation", source="common practice: a current-limited recovery stage "
-      "for lead-acid left partly charged for weeks (BU-804b Sulfation and How to Prevent it); "
-      "never for gel or lithium")
-def stages_desulfation(ctx: Context) -> None:
-    """Lead-acid that sat well below full for weeks gets a current-limited desulfation stage first.
-
-    Only where the profile allows it; never for gel, never for lithium.
-    """
+def _permitted(ctx: Context, kind: StageKind) -> str | None:
+    """Why a high-voltage stage may run on this battery, or None when it may not."""
     p = ctx.profile
-    d = p.desulfation
-    if ctx.lithium or not d.allowed or "desulfation" in p.envelope.forbidden_stages:
-        ctx.note("desulfation", f"none: not allowed for {p.name}")
+    block = p.equalization if kind == StageKind.EQUALIZATION else p.desulfation
+    if ctx.lithium or kind.value in p.envelope.forbidden_stages or not block.possible:
+        return None
+    if block.allowed:
+        return f"{p.name} takes it"
+    if getattr(ctx.battery_file.battery.overrides, f"{kind.value}_voltage") is None:
+        return None
+    return f"the maker's permission (battery.overrides.{kind.value}_voltage)"
+
+
+def _not_permitted(ctx: Context, kind: StageKind, asked: bool) -> None:
+    p = ctx.profile
+    block = p.equalization if kind == StageKind.EQUALIZATION else p.desulfation
+    if block.maker_may_allow and not ctx.lithium:
+        why = (f"{p.name} takes it only with the maker's permission: give "
+               f"battery.overrides.{kind.value}_voltage from the datasheet")
+    else:
+        why = f"never done on {p.name}"
+    if asked:
+        ctx.warn(f"{kind.label} asked for but left out: {why}")
+    ctx.note(kind.value, f"none: {why}")
+
+
+@rule("CP203", "stages.desulfation", source="BU-804b Sulfation and how to prevent it (from "
+      "memory): a controlled overcharge of an already fully charged flooded battery, at low "
+      "current, temperature watched, stopped near 50 degC; common practice: AGM only with its "
+      "maker's permission, never gel or lithium")
+def stages_desulfation(ctx: Context) -> None:
+    """Desulfation only on evidence of sulfation or on request, after a full charge.
+
+    Evidence is a failed capacity test or a failed recharge test (state.capacity_test,
+    state.recharge_test); the operator asks with request: [desulfation]. Flooded by
+    default, AGM with the maker's permission; never gel or lithium.
+    """
+    kind = StageKind.DESULFATION
+    bf = ctx.battery_file
+    asked = "desulfation" in bf.request
+    why_allowed = _permitted(ctx, kind)
+    if why_allowed is None:
+        _not_permitted(ctx, kind, asked)
         return
-    assert d.state_of_charge_below and d.idle_after and d.voltage and d.current and d.duration
-    idle = ctx.battery_file.state.since_last_charge_s
-    if ctx.soc_pct is None or idle is None:
-        ctx.note("desulfation", "none: needs a state of charge and state.since_last_charge "
-                                "to tell whether the battery is sulfated")
-        return
-    below, after = d.state_of_charge_below.value, d.idle_after.value
-    if not (ctx.soc_pct < below and idle >= after):
-        ctx.note("desulfation", f"none: {num(ctx.soc_pct, 0)} % after "
-                                f"{num(idle / 86400, 0)} d (needs below {num(below, 0)} % for "
-                                f"{num(after / 86400, 0)} d or more)")
+    state = bf.state
+    evidence = [text for present, text in (
+        (asked, "asked for (request: [desulfation])"),
+        (state.capacity_test == "failed", "a failed capacity test (state.capacity_test)"),
+        (state.recharge_test == "failed", "a failed recharge test (state.recharge_test)"),
+    ) if present]
+    if not evidence:
+        ctx.note("desulfation", "none: no evidence of sulfation (state.capacity_test or "
+                                "state.recharge_test failed) and not asked for")
         return
     s = _settings(ctx)
-    _timed_stage(ctx, StageKind.DESULFATION, s.desulfation_v_cell, s.desulfation_a,
-                 s.desulfation_time_s, "break down hardened sulfate at a small current before "
-                 "the normal charge", f"{num(ctx.soc_pct, 0)} % for {num(idle / 86400, 0)} d")
-    ctx.warn("desulfation planned: stay nearby, and stop if the battery gets hot or gasses "
-             "hard")
+    _conditioning_stage(ctx, kind, s.desulfation_v_cell, s.desulfation_a,
+                        "a controlled overcharge at low current to break down sulfate, after "
+                        "the battery is full", f"{'; '.join(evidence)}; {why_allowed}")
+    if ctx.stage(kind) is not None:
+        ctx.warn("desulfation planned: stay nearby, watch the battery's temperature, and stop "
+                 "if it gets hot or gasses hard")
 
 
-def _timed_stage(ctx: Context, kind: StageKind, v_cell: float | None, current_a: float | None,
-                 duration_s: float | None, purpose: str, why: str) -> None:
-    """Append a current-limited stage with a voltage ceiling that ends on its duration."""
-    assert v_cell is not None and current_a is not None and duration_s is not None
-    ceiling = v_cell * ctx.cells
+def _guards(ctx: Context, kind: StageKind) -> list[Exit] | None:
+    """The stage's Ah cap and temperature stops, or None when the battery is already too warm.
+
+    The charge exit counts from the start of the charge: the charge the normal stages may
+    return (the charge missing x charge factor x timer margin) plus the stage's own cap.
+    """
+    p = ctx.profile
+    block = p.equalization if kind == StageKind.EQUALIZATION else p.desulfation
+    assert block.charge_max and block.temperature_rise and block.stop_above
+    c, cap = p.charge, ctx.capacity_ah
+    before_ah = (100 - ctx.soc_assumed_pct) / 100 * cap * c.charge_factor.value * (
+        c.timer_margin.value)
+    own_ah = block.charge_max.value / 100 * cap
+    stop_c = block.stop_above.value
+    rise_k = min(block.temperature_rise.value, stop_c - ctx.temperature_c)
+    if rise_k < 1.0:
+        ctx.warn(f"{kind.label} left out: the battery at {celsius(ctx.temperature_c)} is "
+                 f"within 1 K of the stage's {celsius(stop_c)} stop; let it cool and charge "
+                 "again")
+        return None
+    ctx.note(f"{kind.value}.exit", f"fault above {num(before_ah + own_ah, 2)} Ah in since the "
+                                   f"charge began = {num(before_ah, 2)} Ah for the normal "
+                                   f"charge + {num(block.charge_max.value, 0)} % of "
+                                   f"{num(cap)} Ah; fault on a rise of {num(rise_k, 1)} K "
+                                   f"(at most {num(block.temperature_rise.value, 0)} K, and "
+                                   f"never past {celsius(stop_c)})")
+    return [Exit(ExitKind.CHARGE_ABOVE, before_ah + own_ah, then="fault"),
+            Exit(ExitKind.TEMPERATURE_RISE, rise_k, then="fault")]
+
+
+def _conditioning_stage(ctx: Context, kind: StageKind, v_cell: float | None,
+                        current_a: float | None, purpose: str, why: str) -> None:
+    """Add a current-limited overcharge stage after absorption, with its time, Ah and
+    temperature exits."""
+    block = ctx.profile.equalization if kind == StageKind.EQUALIZATION else (
+        ctx.profile.desulfation)
+    assert v_cell is not None and current_a is not None and block.duration is not None
+    guards = _guards(ctx, kind)
+    if guards is None:
+        return
+    ceiling, duration_s = v_cell * ctx.cells, block.duration.value
     ctx.stages.append(Stage(kind=kind, voltage_v=ceiling, current_a=current_a,
-                            exits=[Exit(ExitKind.DURATION, duration_s)], purpose=purpose))
+                            exits=[Exit(ExitKind.DURATION, duration_s), *guards],
+                            purpose=purpose))
     ctx.note(f"{kind.value}.voltage", f"ceiling {volts(ceiling)} = {cell_volts(v_cell)} x "
                                       f"{ctx.cells}, at {amps(current_a)} for "
-                                      f"{duration(duration_s)}, because {why}")
+                                      f"{duration(duration_s)}, after absorption, because "
+                                      f"{why}")
 
 
 @rule("CP204", "stages.bulk_absorption", source="BU-403 Charging Lead Acid; BU-409 Charging "
@@ -325,54 +401,65 @@ def stages_bulk_absorption(ctx: Context) -> None:
                                 f"{duration(s.absorption_time_s)}, whichever first")
 
 
-@rule("CP205", "stages.equalization", source="IEEE 450-1987 cl. 4.4 (equalize when cells drift "
-      "or every 18 months); Battery University, equalizing charge (SG spread 0.030, about "
-      "2.50 V/cell); flooded only")
+@rule("CP205", "stages.equalization", source="Battery University, equalizing charge (SG spread "
+      "0.030, about 2.50 V/cell); IEEE 450-1987 cl. 4.4 (a cell below 2.13 V on float, or at "
+      "least every 18 months); flooded by default, AGM only with its maker's permission")
 def stages_equalization(ctx: Context) -> None:
-    """Equalize a flooded battery only when its cells have drifted or it is due, where allowed.
+    """Equalize only on evidence that cells have drifted, when due, or on request.
 
-    Never gel, never lithium; AGM only where its profile allows.
+    Evidence is a specific-gravity spread at the trigger (state.specific_gravity_spread);
+    due is the profile's interval since state.since_equalization; the operator asks with
+    request: [equalization] (or state.equalize: true). Never gel or lithium.
     """
-    p = ctx.profile
-    e = p.equalization
-    state = ctx.battery_file.state
+    kind = StageKind.EQUALIZATION
+    bf = ctx.battery_file
+    state = bf.state
     if state.equalize is False:
         ctx.note("equalization", "none: state.equalize is false")
         return
-    allowed = (e.allowed and not ctx.lithium
-               and "equalization" not in p.envelope.forbidden_stages)
-    if not allowed:
-        if state.equalize:
-            ctx.warn(f"equalization asked for but never done on {p.name}: left out")
-        ctx.note("equalization", f"none: not allowed for {p.name}")
+    asked = bool(state.equalize) or "equalization" in bf.request
+    why_allowed = _permitted(ctx, kind)
+    if why_allowed is None:
+        _not_permitted(ctx, kind, asked)
         return
+    e = ctx.profile.equalization
     assert e.gravity_spread_trigger and e.interval
-    reasons = []
-    if state.equalize:
-        reasons.append("asked for (state.equalize)")
-    spread = state.specific_gravity_spread
-    if spread is not None and spread >= e.gravity_spread_trigger.value - 1e-9:
-        reasons.append(f"cells differ by {spread:.3f} specific gravity "
-                       f"(>= {e.gravity_spread_trigger.value:.3f})")
-    since = state.since_equalization_s
-    if since is not None and since >= e.interval.value:
-        reasons.append(f"{num(since / 86400, 0)} d since the last one "
-                       f"(due every {num(e.interval.value / 86400, 0)} d)")
+    spread, since = state.specific_gravity_spread, state.since_equalization_s
+    reasons = [text for present, text in (
+        (asked, "asked for (request: [equalization] or state.equalize)"),
+        (spread is not None and spread >= e.gravity_spread_trigger.value - 1e-9,
+         f"cells differ by {spread or 0:.3f} specific gravity "
+         f"(>= {e.gravity_spread_trigger.value:.3f})"),
+        (since is not None and since >= e.interval.value,
+         f"{num((since or 0) / DAY_S, 0)} d since the last one "
+         f"(due every {num(e.interval.value / DAY_S, 0)} d)"),
+    ) if present]
     if not reasons:
-        ctx.note("equalization", "none: not warranted (no drift given, not due)")
+        ctx.note("equalization", "none: not warranted (no drift given, not due, not asked)")
+        return
+    if ctx.stage(StageKind.DESULFATION) is not None:
+        ctx.note("equalization", f"none: {'; '.join(reasons)}, but the desulfation stage is "
+                                 "already a controlled overcharge; measure the spread after "
+                                 "it and equalize on a later charge if it stays")
         return
     s = _settings(ctx)
-    _timed_stage(ctx, StageKind.EQUALIZATION, s.equalization_v_cell, s.equalization_a,
-                 s.equalization_time_s, "a controlled overcharge to bring drifted cells back "
-                 "together", "; ".join(reasons))
-    ctx.warn("equalization planned: heavy gassing; ventilate well, check the electrolyte level "
-             "before and after, and stay nearby")
+    _conditioning_stage(ctx, kind, s.equalization_v_cell, s.equalization_a,
+                        "a controlled overcharge to bring drifted cells back together, after "
+                        "the battery is full", f"{'; '.join(reasons)}; {why_allowed}")
+    if ctx.stage(kind) is not None:
+        ctx.warn("equalization planned: heavy gassing; ventilate well, check the electrolyte "
+                 "level before and after, watch the temperature, and stay nearby")
 
 
 @rule("CP206", "stages.finish", source="IEC 62485-2 Table 1 (float voltages); BU-403 (float "
       "after charge); BU-702 and BU-808a (no float or trickle for lithium)")
 def stages_finish(ctx: Context) -> None:
-    """Lead-acid ends on float, or on a storage hold for the storage time; lithium stops."""
+    """Lead-acid ends on float, or on a storage hold for the storage time; lithium stops.
+
+    The stages stand in charge order first: a desulfation or equalization stage follows
+    absorption (it overcharges a battery that is already full).
+    """
+    ctx.stages.sort(key=lambda stage: CHARGE_ORDER.index(stage.kind))
     if ctx.lithium:
         ctx.note("finish", "stop: lithium is not floated")
         return
@@ -386,12 +473,12 @@ def stages_finish(ctx: Context) -> None:
                 voltage_v=v,
                 current_a=s.bulk_a,
                 exits=[],
-                purpose=f"hold on the storage voltage through the {num(storage / 86400, 0)} d "
+                purpose=f"hold on the storage voltage through the {num(storage / DAY_S, 0)} d "
                 "of storage",
             )
         )
         ctx.note("storage_hold.voltage", f"{volts(v)} = {cell_volts(s.storage_v_cell)} x "
-                                         f"{ctx.cells} for {num(storage / 86400, 0)} d")
+                                         f"{ctx.cells} for {num(storage / DAY_S, 0)} d")
         return
     if s.float_v_cell is None:
         ctx.finish = "stop"

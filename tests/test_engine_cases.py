@@ -34,6 +34,7 @@ def test_engine_case(case):
         with pytest.raises(PlanRefused) as caught:
             plan_of(data)
         assert caught.value.rule_id == expect["refused"]
+        assert expect.get("refusal", "") in caught.value.reason
         return
     if "input_error" in expect:
         with pytest.raises(InputError) as caught:

@@ -217,26 +217,45 @@ def state_reading(ctx: Context) -> None:
             )
 
 
-@rule("CP104", "temperature.window", source="BU-410 Charging at High and Low Temperatures, "
-      "Table 1: lead-acid -20 to 50 degC, lithium-ion 0 to 45 degC and never below 0 degC")
-def temperature_window(ctx: Context) -> None:
-    """Charge only inside the chemistry's charge-temperature window; lithium never below 0 °C."""
+#: What a too-cold battery's refusal (and a bench card for it) tells the operator to do.
+COLD_START_ADVICE = "measure the cell temperature; start when it is above {low}"
+
+
+@rule("CP104", "temperature.cold_start", source="BU-410 Charging at High and Low "
+      "Temperatures, Table 1: lead-acid from -20 degC, lithium-ion from 0 degC and never below "
+      "(with the cool-zone current limit above it)")
+def temperature_cold_start(ctx: Context) -> None:
+    """Start only at or above the lowest charge temperature, measured at the cells.
+
+    A colder battery is refused with what to do (warm it, measure the cell temperature,
+    start when it is above the limit); the bench schedules such a battery after a warm-up
+    by this rule's id. At or above the limit the cool zone (CP302) cuts the current.
+    """
     t = ctx.temperature_c
     low, high = ctx.charge_window()
     ctx.note("temperature", f"battery at {celsius(t)}; charge window {celsius(low)} to "
                             f"{celsius(high)}")
-    if t < low:
-        if ctx.lithium:
-            raise ctx.refuse(
-                f"the battery is at {celsius(t)}: lithium must never be charged below "
-                f"{celsius(low)} (metallic lithium plates on the anode); bring it into a warm "
-                "room and wait until the cells themselves are above "
-                f"{celsius(max(low, 0.0) + 5)} before charging"
-            )
+    if t >= low:
+        return
+    advice = COLD_START_ADVICE.format(low=celsius(low))
+    if ctx.lithium:
         raise ctx.refuse(
-            f"the battery is at {celsius(t)}, below the {celsius(low)} lowest charge temperature "
-            f"of {ctx.profile.name}; warm it first"
+            f"the battery is at {celsius(t)}: lithium must never be charged below "
+            f"{celsius(low)} (metallic lithium plates on the anode); bring it into a warm "
+            f"room, {advice}"
         )
+    raise ctx.refuse(
+        f"the battery is at {celsius(t)}, below the {celsius(low)} lowest charge temperature "
+        f"of {ctx.profile.name}; warm it, {advice}"
+    )
+
+
+@rule("CP107", "temperature.too_hot", source="BU-410 Charging at High and Low Temperatures, "
+      "Table 1: lead-acid up to 50 degC, lithium-ion up to 45 degC")
+def temperature_too_hot(ctx: Context) -> None:
+    """Never start above the highest charge temperature; let the battery cool first."""
+    t = ctx.temperature_c
+    _low, high = ctx.charge_window()
     if t > high:
         raise ctx.refuse(
             f"the battery is at {celsius(t)}, above the {celsius(high)} highest charge "

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import pytest
 from jsonschema import Draft202012Validator
@@ -32,8 +33,18 @@ def test_plan_text(write_yaml):
     path = write_yaml(battery(conditions={"battery_temperature": "5 degC"}))
     result = run("plan", str(path))
     assert result.exit_code == 0, result.output
-    assert "ABSORPTION" in result.stdout and "14.94 V" in result.stdout
-    assert "Cautions" in result.stdout
+    assert "14.94 V" in result.stdout and "Cautions" in result.stdout
+    # the stages as the project's own table: the HTML page's columns, plain-case names
+    html = run("plan", str(path), "--format", "html")
+    headings = re.findall(r"<th>([^<]*)</th>", html.stdout.split("<tbody>")[0])
+    lines = result.stdout.splitlines()
+    head = next(line for line in lines if line.split()[:2] == ["#", "stage"])
+    assert re.split(r"\s{2,}", head.strip()) == headings
+    assert "ABSORPTION" not in result.stdout and not re.search(r"^\s*\d+\. ", result.stdout,
+                                                              re.M)
+    body = lines[lines.index(head) + 2:]
+    assert [line.split()[1] for line in body if re.match(r"^\s+\d+\s", line)] == [
+        "pre-charge", "bulk", "absorption", "float"]
 
 
 def test_plan_json_validates_against_committed_schema(write_yaml):
@@ -230,7 +241,9 @@ def test_plan_shows_estimates_and_json_carries_them(write_yaml):
     path = write_yaml(battery(state={"state_of_charge": "40 %"}))
     text = run("plan", str(path))
     assert text.exit_code == 0
-    assert "Estimate: about" in text.stdout and "estimate: about" in text.stdout
+    assert "Estimate: about" in text.stdout
+    bulk_row = next(line for line in text.stdout.splitlines() if re.match(r"^\s+\d+\s+bulk ", line))
+    assert "about " in bulk_row  # the "how long" column carries the stage's estimate
     doc = json.loads(run("plan", str(path), "-f", "json").stdout)
     Draft202012Validator(SCHEMA).validate(doc)
     bulk = next(s for s in doc["stages"] if s["kind"] == "bulk")

@@ -8,38 +8,14 @@ from typing import Any
 
 from chargeplan import fmt
 from chargeplan.plan import ChargePlan, Severity
-from chargeplan.render.text import describe_exit
+from chargeplan.render.text import stage_rows
 
 __all__ = ["render_html", "render_markdown"]
 
 
-def _how_long(stage: Any) -> str:
-    e = stage.estimate
-    if e is None:
-        return "—"
-    if e.per_day:
-        return f"holds; about {fmt.amps(e.end_current_a)} after a day"
-    if e.duration_s is None:
-        return "—"
-    return (f"about {fmt.duration(e.duration_s)}, {fmt.num(e.charge_ah, 2)} Ah, "
-            f"{fmt.num(e.energy_wh, 0)} Wh")
-
-
 def _context(plan: ChargePlan, explain: bool) -> dict[str, Any]:
     b = plan.battery
-    rows = []
-    for n, stage in enumerate(plan.stages, 1):
-        rows.append({
-            "n": n,
-            "label": stage.kind.label,
-            "set": f"{fmt.volts(stage.voltage_v)} "
-                   f"({fmt.cell_volts(stage.voltage_v / b.cells_in_series)}), "
-                   f"at most {fmt.amps(stage.current_a)}"
-                   + (" (temperature-compensated)" if stage.compensated else ""),
-            "ends": "; or ".join(describe_exit(e) for e in stage.exits) or "you disconnect it",
-            "how_long": _how_long(stage),
-            "timer": fmt.duration(stage.timer_s) if stage.timer_s is not None else "—",
-        })
+    rows = stage_rows(plan)
     total = plan.total_estimate()
     lock = plan.interlocks
     interlocks = [

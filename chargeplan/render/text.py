@@ -6,9 +6,14 @@ from functools import lru_cache
 from typing import Any
 
 from chargeplan import fmt
-from chargeplan.plan import ChargePlan, Exit, ExitKind, Severity
+from chargeplan.plan import ChargePlan, Exit, ExitKind, Severity, Stage
 
-__all__ = ["describe_exit", "render_text"]
+__all__ = ["STAGE_COLUMNS", "describe_exit", "render_text", "stage_rows", "text_table"]
+
+#: The stage table's columns, as the HTML and Markdown pages show them: (key, heading, width).
+STAGE_COLUMNS = (("n", "#", 2), ("label", "stage", 12), ("set", "set", 26),
+                 ("ends", "ends when", 30), ("how_long", "how long", 20),
+                 ("timer", "safety timer", 12))
 
 
 def describe_exit(e: Exit) -> str:
@@ -27,6 +32,52 @@ def describe_exit(e: Exit) -> str:
         text = f"battery warms {fmt.num(e.value, 1)} K above its start"
     then = {"stop": ", then stop", "fault": ": fault, stop charging"}
     return text + then.get(e.then, "")
+
+
+def _how_long(stage: Stage) -> str:
+    e = stage.estimate
+    if e is None:
+        return "—"
+    if e.per_day:
+        return f"holds; about {fmt.amps(e.end_current_a)} after a day"
+    if e.duration_s is None:
+        return "—"
+    return (f"about {fmt.duration(e.duration_s)}, {fmt.num(e.charge_ah, 2)} Ah, "
+            f"{fmt.num(e.energy_wh, 0)} Wh")
+
+
+def stage_rows(plan: ChargePlan) -> list[dict[str, Any]]:
+    """One row per stage, keyed as :data:`STAGE_COLUMNS`: every document's stage table."""
+    cells = plan.battery.cells_in_series
+    return [
+        {
+            "n": n,
+            "label": stage.kind.label,
+            "set": f"{fmt.volts(stage.voltage_v)} ({fmt.cell_volts(stage.voltage_v / cells)}), "
+                   f"at most {fmt.amps(stage.current_a)}"
+                   + (" (temperature-compensated)" if stage.compensated else ""),
+            "ends": "; or ".join(describe_exit(e) for e in stage.exits) or "you disconnect it",
+            "how_long": _how_long(stage),
+            "timer": fmt.duration(stage.timer_s) if stage.timer_s is not None else "—",
+        }
+        for n, stage in enumerate(plan.stages, 1)
+    ]
+
+
+def text_table(rows: list[dict[str, Any]], columns=STAGE_COLUMNS, indent: str = "  ") -> str:
+    """Rows as a plain-text table: a heading, a rule, and each cell wrapped to its width."""
+    from textwrap import wrap
+
+    def line(cells: list[str]) -> str:
+        return (indent + "  ".join(c.ljust(w) for c, (_k, _h, w) in zip(cells, columns,
+                                                                       strict=True))).rstrip()
+
+    out = [line([h for _k, h, _w in columns]), line(["-" * w for _k, _h, w in columns])]
+    for row in rows:
+        wrapped = [wrap(str(row[key]), width) or [""] for key, _h, width in columns]
+        for i in range(max(len(w) for w in wrapped)):
+            out.append(line([w[i] if i < len(w) else "" for w in wrapped]))
+    return "\n".join(out)
 
 
 @lru_cache(maxsize=1)
@@ -64,5 +115,6 @@ def render_text(plan: ChargePlan, *, explain: bool = False) -> str:
             lock=plan.interlocks,
             explain=explain,
             marks=marks,
+            stage_table=text_table(stage_rows(plan)),
         )
     )

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import pytest
@@ -25,13 +26,52 @@ def _sourced_nodes(node, path=""):
             yield from _sourced_nodes(getattr(node, name), f"{path}.{name}".strip("."))
 
 
+#: The forms a source may take (RULES: standard and clause, handbook and table, "common
+#: practice" or "from memory"), each as a pattern a real citation of that form matches.
+CITATION_FORMS = {
+    "common practice": re.compile(r"\bcommon practice\b"),
+    "from memory": re.compile(r"\bfrom memory\b"),
+    "standard and clause or table": re.compile(
+        r"\b(IEC|EN|IEEE|ISO)\s?\d[\d-]*[^;]*?(\bcl\.|§|\bTable\b)\s*[\dIVX]"),
+    "guideline and year": re.compile(r"\bguideline \(\d{4}\)"),
+    "handbook article": re.compile(r"\bBU-\d{3}[a-z]?\b"),
+    "handbook table": re.compile(r"\b(Table [IVX\d]+|[A-Z][\w-]*(?: [\w-]+)* table)\b"),
+    "web page and title": re.compile(r"\b[\w-]+\.(com|org|net) '[^']{10,}'"),
+}
+
+
+def _citation_form(source: str) -> str | None:
+    return next((name for name, form in CITATION_FORMS.items() if form.search(source)), None)
+
+
+@pytest.mark.parametrize(("source", "form"), [
+    ("IEC 62485-2 Table 1: VRLA float 2.27 V/cell", "standard and clause or table"),
+    ("IEEE 450-1987 cl. 4.4: equalize at least every 18 months", "standard and clause or table"),
+    ("BU-403 Charging Lead Acid", "handbook article"),
+    ("US Army TM 5-1185 Table III", "handbook table"),
+    ("common practice: safety timers at 1.5 times", "common practice"),
+    ("from memory: about 5 mohm", "from memory"),
+    ("lead-acid references", None),
+    ("IEC 62485-2", None),
+    ("a test value", None),
+    ("Battery University", None),
+    ("see the datasheet", None),
+])
+def test_citation_forms_tell_a_citation_from_a_label(source, form):
+    assert _citation_form(source) == form
+
+
 @pytest.mark.parametrize("pid", BUILTIN_IDS)
 def test_every_number_has_a_source(pid):
+    """Each source is a real citation form: a standard with its clause or table, a handbook
+    article or table, a named page, "common practice" or "from memory" (RULES)."""
     profile = load_builtin(pid)
     rows = list(_sourced_nodes(profile))
     assert len(rows) >= 15
-    for path, node in rows:
-        assert len(node.source) >= 6, f"{pid}: {path} has no source"
+    sources = [(path, node.source) for path, node in rows]
+    sources.append(("rest_voltage.table", profile.rest_voltage.table_source))
+    for path, source in sources:
+        assert _citation_form(source), f"{pid}: {path}: '{source}' is no citation form"
 
 
 @pytest.mark.parametrize("pid", BUILTIN_IDS)

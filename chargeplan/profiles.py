@@ -82,11 +82,14 @@ class HardEnvelope:
 
 @cache
 def hard_envelope(chemistry: str) -> HardEnvelope:
-    """The built-in hard envelope of ``chemistry``, read from its bundled profile."""
+    """The built-in hard envelope of ``chemistry``, read from its bundled profile and held
+    inside :data:`chargeplan.safety.CEILINGS`, the published ceilings."""
+    from chargeplan.safety import envelope_problems
+
     env = load_builtin(chemistry)
     e = env.envelope
     cool, warm = env.temperature.cool_zone, env.temperature.warm_zone
-    return HardEnvelope(
+    hard = HardEnvelope(
         chemistry=chemistry,
         family=env.family,
         cell_voltage_max_v=e.max_cell_voltage.value,
@@ -99,6 +102,10 @@ def hard_envelope(chemistry: str) -> HardEnvelope:
         warm_zone_above_c=warm.boundary.value if warm and warm.voltage else None,
         warm_zone_cell_v=warm.voltage.value if warm and warm.voltage else None,
     )
+    problems = envelope_problems(hard)
+    if problems:  # the bundled profile crosses safety's published ceilings
+        raise InternalError(f"bundled profile {chemistry}: {'; '.join(problems)}")
+    return hard
 
 
 def _within_builtin(profile: Profile, file: str) -> None:

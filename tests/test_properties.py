@@ -1,9 +1,9 @@
 """Property tests: any valid battery file gives a safe plan, a refusal or an input error.
 
 Random valid battery files (the dict a YAML battery file gives) are planned and
-every plan is checked by arithmetic written here, against the hard limits read
-straight from ``profiles/*.yaml`` and against published limits hard-coded below
-with their source. That check shares no code with ``chargeplan.safety`` or
+every plan is checked by arithmetic written here, against published limits written
+below from the sources, each named (``profiles/*.yaml`` is read only to draw inputs
+and is itself checked against those limits). That check shares no code with ``chargeplan.safety`` or
 ``chargeplan.profiles``; the library's own ``safety.verify`` must agree with it.
 The setpoint document of each plan is checked for safe rounding, against the
 committed JSON Schema, and for a digest that notices any edited integer.
@@ -51,7 +51,16 @@ LFP_MAX_CELL_V = 3.65
 # Battery University BU-808 "How to Prolong Lithium-based Batteries": NMC/LCO
 # constant-voltage limit 4.20 V/cell.
 NMC_MAX_CELL_V = 4.20
-PUBLISHED_MAX_CELL_V = {"lifepo4": LFP_MAX_CELL_V, "nmc": NMC_MAX_CELL_V}
+# Lead-acid per cell: the highest equalization voltage across sources, 2.67 V/cell (Battery
+# University, equalizing charge: 2.45-2.67); from memory: VRLA maker limits with cold
+# compensation reach about 2.50-2.55 V/cell (AGM), gel stays below about 2.50 V/cell.
+FLOODED_MAX_CELL_V, AGM_MAX_CELL_V, GEL_MAX_CELL_V = 2.67, 2.55, 2.50
+PUBLISHED_MAX_CELL_V = {"flooded": FLOODED_MAX_CELL_V, "agm": AGM_MAX_CELL_V,
+                        "gel": GEL_MAX_CELL_V, "lifepo4": LFP_MAX_CELL_V, "nmc": NMC_MAX_CELL_V}
+# Charge current ceilings in It: BU-403 Charging Lead Acid 0.10-0.30 C (flooded); from memory:
+# AGM makers allow 0.3-0.5 C, gel about 0.3 C; cell handling guidelines (common practice): LFP
+# at most 1 C; BU-409 Charging Lithium-ion: 0.5-1 C (NMC).
+PUBLISHED_MAX_IT = {"flooded": 0.30, "agm": 0.50, "gel": 0.30, "lifepo4": 1.0, "nmc": 1.0}
 # Battery University BU-410 "Charging at High and Low Temperatures", Table 1:
 # lithium-ion is charged only from 0 to 45 degC and never below 0 degC.
 LITHIUM_WINDOW_C = (0.0, 45.0)
@@ -351,11 +360,11 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
     if not math.isclose(b.temperature_c, temperature, abs_tol=FLOAT_NOISE):
         found.append(f"planned at {b.temperature_c} degC, not the {temperature} degC given")
 
-    # Voltage: the profile file's envelope, and the published per-cell maximum.
-    cell_max = min(p["cell_voltage_max_v"], PUBLISHED_MAX_CELL_V.get(chem, math.inf))
+    # Voltage: the published per-cell maximum (written above from the sources, not profiles/).
+    cell_max = PUBLISHED_MAX_CELL_V[chem]
     v_max = cell_max * cells + FLOAT_NOISE
-    # Current: the profile file's envelope C-rate, the channel's and the maker's maximum.
-    limits = {"envelope": p["max_it"] * capacity}
+    # Current: the published C-rate ceiling, the channel's and the maker's maximum.
+    limits = {"published ceiling": PUBLISHED_MAX_IT[chem] * capacity}
     if channel is not None:
         limits["channel"] = _number(channel["max_current"])
     if maker is not None:
@@ -388,12 +397,11 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
         for e in stage.exits:
             if e.kind == ExitKind.VOLTAGE_REACHED and e.value > v_max:
                 found.append(f"{name} exits at {e.value} V, limit {v_max} V")
-        if stage.kind.value in FORBIDDEN[chem] | p["forbidden"]:
+        if stage.kind.value in FORBIDDEN[chem]:
             found.append(f"{name} is never allowed for {chem}")
 
     lock = plan.interlocks
     low_c, high_c = PUBLISHED_WINDOW_C[chem]
-    low_c, high_c = max(low_c, p["window_c"][0]), min(high_c, p["window_c"][1])
     if lock.charge_temperature_min_c < low_c - FLOAT_NOISE:
         found.append(f"interlock minimum {lock.charge_temperature_min_c} degC < {low_c}")
     if lock.charge_temperature_max_c > high_c + FLOAT_NOISE:
@@ -406,7 +414,7 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
         found.append(f"interlock cell voltage {lock.cell_voltage_max_v} V > {cell_max}")
     if lock.battery_voltage_max_v > cell_max * cells + FLOAT_NOISE:
         found.append(f"interlock battery voltage {lock.battery_voltage_max_v} V")
-    if lock.current_max_a > p["max_it"] * capacity + FLOAT_NOISE:
+    if lock.current_max_a > PUBLISHED_MAX_IT[chem] * capacity + FLOAT_NOISE:
         found.append(f"interlock current {lock.current_max_a} A")
     if lithium and plan.finish != "stop":
         found.append("a lithium plan holds at the end")  # BU-702: no float or trickle
@@ -446,9 +454,11 @@ def _independent_violations(data: dict[str, Any], plan: ChargePlan) -> list[str]
 def test_profile_files_stay_inside_published_limits():
     """The limits the properties read from profiles/*.yaml are no looser than the published ones."""
     for chem, p in PROFILES.items():
-        if chem in PUBLISHED_MAX_CELL_V:
-            # cell handling guidelines (LFP 3.65 V/cell); BU-808 (NMC 4.20 V/cell)
-            assert p["cell_voltage_max_v"] <= PUBLISHED_MAX_CELL_V[chem], chem
+        # the published ceilings above (cell handling guidelines, BU-808, BU-403, ...)
+        assert p["cell_voltage_max_v"] <= PUBLISHED_MAX_CELL_V[chem], chem
+        assert p["max_it"] <= PUBLISHED_MAX_IT[chem], chem
+        assert FORBIDDEN[chem] - {"float"} <= p["forbidden"] | ({"desulfation", "equalization"}
+                                                               if chem == "agm" else set()), chem
         low, high = PUBLISHED_WINDOW_C[chem]  # BU-410 Table 1
         assert low <= p["window_c"][0] < p["window_c"][1] <= high, chem
         assert p["cool"] is not None, chem
@@ -502,8 +512,7 @@ def test_lead_acid_colder_never_gets_a_lower_charge_voltage(data, t1, t2):
         plans.append(outcome)
     cold, warm = plans
     chem, cells = data["battery"]["chemistry"], data["battery"]["cells_in_series"]
-    # profiles/<chem>.yaml envelope
-    v_max = PROFILES[chem]["cell_voltage_max_v"] * cells + FLOAT_NOISE
+    v_max = PUBLISHED_MAX_CELL_V[chem] * cells + FLOAT_NOISE  # the published ceiling
     for kind in ("absorption", "float", "storage_hold"):
         at_cold, at_warm = cold.stage(kind), warm.stage(kind)
         if kind == "absorption":
@@ -561,9 +570,9 @@ def test_setpoint_document_rounds_toward_safety_and_detects_edits(data):
                 assert e_out[key] <= e.value * scale + SCALED_NOISE
         if stage.timer_s is not None:
             assert out["timer_s"] <= stage.timer_s + SCALED_NOISE
-    # And in whole integers, never above the envelope read from the profile file.
+    # And in whole integers, never above the published ceiling.
     chem, cells = plan.battery.chemistry, plan.battery.cells_in_series
-    cell_mv = round(PROFILES[chem]["cell_voltage_max_v"] * 1000)  # profiles/<chem>.yaml envelope
+    cell_mv = round(PUBLISHED_MAX_CELL_V[chem] * 1000)  # the published ceiling
     for out in doc["stages"]:
         assert out["voltage_mV"] <= cell_mv * cells
     lock, doc_lock = plan.interlocks, doc["interlocks"]

@@ -146,3 +146,57 @@ def test_maker_and_channel_limits_are_checked_from_the_input():
     plan.stages[0].voltage_v = 15.2
     assert any("channel's 15.0 V" in v
                for v in safety.violations(plan, hard_envelope("agm"), battery_file))
+
+
+# Published ceilings written here from the sources, independent of profiles/ and of safety.py:
+# Battery University, equalizing charge: 2.45-2.67 V/cell across sources (flooded); BU-403:
+# 0.10-0.30 C; from memory: VRLA maker limits 2.50-2.55 V/cell with 0.3-0.5 C (AGM), gel below
+# about 2.5 V/cell and 0.3 C; cell handling guidelines (common practice): LFP 3.65 V/cell, 1 C;
+# BU-808: NMC 4.20 V/cell; BU-409: at most 1 C; BU-410 Table 1: lead-acid -20 to 50 degC,
+# lithium-ion 0 to 45 degC.
+PUBLISHED = {
+    "flooded": (2.67, 0.30, -20.0, 50.0),
+    "agm": (2.55, 0.50, -20.0, 50.0),
+    "gel": (2.50, 0.30, -20.0, 50.0),
+    "lifepo4": (3.65, 1.0, 0.0, 45.0),
+    "nmc": (4.20, 1.0, 0.0, 45.0),
+}
+
+
+@pytest.mark.parametrize("chemistry", sorted(PUBLISHED))
+def test_safety_ceilings_and_bundled_envelopes_stay_inside_the_published_values(chemistry):
+    volts, rate, low, high = PUBLISHED[chemistry]
+    ceiling = safety.CEILINGS[chemistry]
+    assert ceiling.source
+    assert ceiling.cell_voltage_max_v <= volts and ceiling.max_current_it <= rate
+    assert low <= ceiling.charge_temperature_min_c < ceiling.charge_temperature_max_c <= high
+    envelope = hard_envelope(chemistry)
+    assert safety.envelope_problems(envelope) == []
+    assert envelope.cell_voltage_max_v <= volts and envelope.max_current_it <= rate
+
+
+def test_an_envelope_above_the_published_ceiling_is_caught():
+    loose = dataclasses.replace(hard_envelope("flooded"), cell_voltage_max_v=2.80,
+                                max_current_it=0.5, forbidden_stages=frozenset())
+    problems = safety.envelope_problems(loose)
+    assert any("2.67 V/cell" in p for p in problems) and any("0.3 It" in p for p in problems)
+    gel = dataclasses.replace(hard_envelope("gel"), forbidden_stages=frozenset())
+    assert any("equalization" in p for p in safety.envelope_problems(gel))
+
+
+def test_a_plan_checked_against_a_loose_envelope_still_meets_the_published_ceiling():
+    """An envelope is not trusted alone: the published ceiling catches what it lets through."""
+    plan = plan_of(battery(battery={"chemistry": "flooded"}))
+    loose = dataclasses.replace(hard_envelope("flooded"), cell_voltage_max_v=3.0)
+    plan.stages[0].voltage_v = 2.70 * 6
+    found = safety.violations(plan, loose)
+    assert any("published 2.67 V/cell" in v for v in found)
+
+
+def test_each_named_check_finds_only_its_own_crossing():
+    plan = _lfp_plan()
+    env = hard_envelope("lifepo4")
+    assert all(list(check(plan, env)) == [] for check in safety.CHECKS)
+    plan.finish = "hold"
+    hits = [check.__name__ for check in safety.CHECKS if list(check(plan, env))]
+    assert hits == ["_lithium_stops"]

@@ -44,7 +44,7 @@ def test_plan_text(write_yaml):
                                                               re.M)
     body = lines[lines.index(head) + 2:]
     assert [line.split()[1] for line in body if re.match(r"^\s+\d+\s", line)] == [
-        "pre-charge", "bulk", "absorption", "float"]
+        "bulk", "absorption", "float"]
 
 
 def test_plan_json_validates_against_committed_schema(write_yaml):
@@ -282,7 +282,8 @@ def test_state_from_rest_voltage_and_gravity():
     [
         (["--specific-gravity", "1.4", "--chemistry", "flooded"], "--specific-gravity"),
         (["--specific-gravity", "1.2", "--chemistry", "agm"], "sealed"),
-        (["--rest-voltage", "31V", "--chemistry", "flooded", "--cells", "6"], "outside"),
+        (["--rest-voltage", "31V", "--chemistry", "flooded", "--cells", "6"],
+         "more than a rested 6-cell"),
         (["--rest-voltage", "12.3", "--chemistry", "flooded"], "has no unit"),
         (["--rest-voltage", "12.3V", "--chemistry", "nicad"], "unknown chemistry"),
     ],

@@ -63,6 +63,9 @@ def test_engine_case(case):
         guards = {e.kind.value for e in stage.exits if e.then == "fault"}
         assert {"charge_above", "temperature_rise"} <= guards, kind
         assert stage.compensated, kind
+    if "state_of_charge_between" in expect:
+        low, high = expect["state_of_charge_between"]
+        assert low <= plan.battery.state_of_charge_pct <= high
     if "finding_rule" in expect:
         assert expect["finding_rule"] in {f.rule_id for f in plan.findings}
     if "finding" in expect:

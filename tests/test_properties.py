@@ -149,7 +149,6 @@ def _read_profiles() -> dict[str, dict[str, Any]]:
             ),
             "storage_cell_v": _value(charge["storage_voltage"], "V/cell"),
             "bulk_it": _value(charge["bulk_current"], "It"),
-            "precharge_it": _value(charge["precharge_current"], "It"),
             "tail_it": _value(charge["tail_current"], "It"),
             "cool": zone("cool_zone", "current", "It"),
             "warm": zone("warm_zone", "voltage", "V/cell"),

@@ -30,8 +30,8 @@ class Settings:
     storage_v_cell: float
     equalization_v_cell: float | None
     desulfation_v_cell: float | None
-    precharge_below_v_cell: float
-    precharge_a: float
+    precharge_below_v_cell: float | None  # None: no pre-charge stage (lead-acid)
+    precharge_a: float | None
     bulk_a: float
     tail_a: float
     max_a: float  # the envelope's (or the maker's) highest charge current

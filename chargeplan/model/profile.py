@@ -18,6 +18,7 @@ __all__ = [
     "Desulfation",
     "Envelope",
     "Equalization",
+    "FlatBand",
     "Profile",
     "RestVoltage",
     "Sourced",
@@ -72,6 +73,8 @@ CRate = _sourced("SourcedCRate", quantity("c_rate", ge=0.001, le=20), "It")
 Duration = _sourced("SourcedDuration", quantity("duration", ge=0, le=10 * 365 * 86_400), "s")
 Temp = _sourced("SourcedTemperature", quantity("temperature", ge=-60, le=100), "degC")
 Coefficient = _sourced("SourcedCoefficient", quantity("coefficient", ge=-10, le=0), "mV/K/cell")
+OcvCoefficient = _sourced("SourcedOcvCoefficient", quantity("coefficient", ge=-5, le=5),
+                          "mV/K/cell")
 Percent = _sourced("SourcedPercent", quantity("fraction", ge=0, le=100), "%")
 ResistanceCapacity = _sourced(
     "SourcedResistanceCapacity", quantity("resistance_capacity", ge=0.0001, le=20), "ohm*Ah"
@@ -91,8 +94,8 @@ Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")
 class Charge(InputModel):
     """The normal charge, per cell and as C-rates, at the reference temperature."""
 
-    precharge_below: CellVoltage  # type: ignore[valid-type]
-    precharge_current: CRate  # type: ignore[valid-type]
+    precharge_below: CellVoltage | None = None  # type: ignore[valid-type]
+    precharge_current: CRate | None = None  # type: ignore[valid-type]
     bulk_current: CRate  # type: ignore[valid-type]
     absorption_voltage: CellVoltage  # type: ignore[valid-type]
     tail_current: CRate  # type: ignore[valid-type]
@@ -181,11 +184,20 @@ class Temperature(InputModel):
     warm_zone: Zone | None = None
 
 
+class FlatBand(InputModel):
+    """Where a chemistry's rested voltage curve is too flat to read the state of charge."""
+
+    low: Percent  # type: ignore[valid-type]
+    high: Percent  # type: ignore[valid-type]
+
+
 class RestVoltage(InputModel):
     """Rested open-circuit voltage per cell: the state-of-charge table and plausibility.
 
     ``freeze_check_offset`` (lead-acid whose table overstates its charge) is taken off a
     reading before the freezing check, so that check errs toward a warmer freezing point.
+    ``temperature_coefficient`` corrects a reading to ``table_temperature`` before the table
+    is read; ``flat_band`` is where the curve is too flat to read.
     """
 
     table: list[tuple[float, float]] = Field(
@@ -195,6 +207,15 @@ class RestVoltage(InputModel):
     dead_below: CellVoltage  # type: ignore[valid-type]
     highest_plausible: CellVoltage  # type: ignore[valid-type]
     freeze_check_offset: CellOffset | None = None  # type: ignore[valid-type]
+    table_temperature: Temp | None = None  # type: ignore[valid-type]
+    temperature_coefficient: OcvCoefficient | None = None  # type: ignore[valid-type]
+    flat_band: FlatBand | None = Field(
+        default=None, description="states of charge a rest voltage cannot tell apart")
+
+    def in_flat_band(self, *soc_pct: float) -> bool:
+        """Every one of ``soc_pct`` lies inside the flat band (where one is given)."""
+        band = self.flat_band
+        return band is not None and all(band.low.value < s < band.high.value for s in soc_pct)
 
     @model_validator(mode="after")
     def _rising(self) -> RestVoltage:
@@ -284,10 +305,17 @@ class Profile(InputModel):
         c = self.charge
         if c.float_voltage is not None and c.float_voltage.value >= c.absorption_voltage.value:
             raise ValueError("charge.float_voltage must be below charge.absorption_voltage")
-        if c.precharge_below.value >= c.absorption_voltage.value:
-            raise ValueError("charge.precharge_below must be below charge.absorption_voltage")
-        if c.precharge_current.value > c.bulk_current.value:
-            raise ValueError("charge.precharge_current must not exceed charge.bulk_current")
+        if (c.precharge_below is None) != (c.precharge_current is None):
+            raise ValueError("give charge.precharge_below and charge.precharge_current together")
+        if self.family == "lithium" and c.precharge_below is None:
+            raise ValueError("lithium profiles need charge.precharge_below and "
+                             "charge.precharge_current (BU-808a)")
+        if c.precharge_below is not None and c.precharge_current is not None:
+            if c.precharge_below.value >= c.absorption_voltage.value:
+                raise ValueError("charge.precharge_below must be below "
+                                 "charge.absorption_voltage")
+            if c.precharge_current.value > c.bulk_current.value:
+                raise ValueError("charge.precharge_current must not exceed charge.bulk_current")
         if c.tail_current.value >= c.bulk_current.value:
             raise ValueError("charge.tail_current must be below charge.bulk_current")
         t = self.temperature

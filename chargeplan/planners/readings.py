@@ -5,9 +5,11 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from chargeplan.cells import CellFields, check_rest_voltage, count_cells
 from chargeplan.errors import InputError
 from chargeplan.fmt import cell_volts, celsius, num, volts
 from chargeplan.model.battery import BatteryFile
+from chargeplan.model.profile import Profile
 from chargeplan.profiles import ProfileSet
 from chargeplan.units import parse_quantity
 
@@ -30,23 +32,66 @@ class StateReading:
     notes: list[str] = field(default_factory=list)
 
 
-#: The cell counts of lead-acid batteries as sold (2, 6, 12, 24, 36, 48 V); common practice.
-LEAD_ACID_CELLS = (1, 3, 6, 12, 18, 24)
+#: The names the state command's messages give its inputs.
+_FIELDS = CellFields(cells="--cells", nominal="--nominal-voltage", rest="--rest-voltage")
 
 
-def _cells_from_reading(volts_total: float, table, highest: float, given: int | None,
-                        chemistry: str, family: str) -> int:
-    if given is not None:
-        return given
-    empty = table[0][1]
-    counts = LEAD_ACID_CELLS if family == "lead_acid" else range(1, 401)
-    fits = [n for n in counts if empty * n <= volts_total <= highest * n]
-    if len(fits) != 1:
-        what = (f"could be {' or '.join(str(n) for n in fits[:4])} rested {chemistry} cells"
-                if fits else f"is no usual count of rested {chemistry} cells (a shorted cell?)")
-        raise InputError(f"{volts(volts_total)} {what}", field="--cells",
-                         fix="give --cells (or --nominal-voltage)")
-    return fits[0]
+def _from_gravity(profile: Profile, specific_gravity: float, temperature_c: float | None,
+                  notes: list[str]) -> tuple[float, str]:
+    """State of charge from a hydrometer reading, corrected for temperature (US Army
+    TM 5-4210-230-14&P-1; Battery Council International table)."""
+    from chargeplan.physics.electrolyte import (
+        specific_gravity_corrected,
+        state_of_charge_from_gravity_bci,
+    )
+
+    if not profile.vented:
+        raise InputError(f"{profile.name} cells are sealed", field="--specific-gravity",
+                         fix="give --rest-voltage instead")
+    if not 1.000 <= specific_gravity <= 1.350:
+        raise InputError(f"{specific_gravity:g} is outside 1.000-1.350",
+                         field="--specific-gravity",
+                         fix="read the hydrometer again (battery acid lies in 1.100-1.300)")
+    t = 26.7 if temperature_c is None else temperature_c
+    corrected = float(specific_gravity_corrected(specific_gravity, t))
+    if not 1.000 <= corrected <= 1.350:
+        raise InputError(f"{specific_gravity:g} at {celsius(t)} corrects to "
+                         f"{corrected:.3f}, outside 1.000-1.350", field="--temperature",
+                         fix="check the electrolyte's temperature and the reading")
+    if temperature_c is None:
+        notes.append("no --temperature given: the reading is taken as at 26.7 °C (80 °F)")
+    return float(state_of_charge_from_gravity_bci(corrected)), (
+        f"specific gravity {specific_gravity:.3f} at {celsius(t)} = {corrected:.3f} at 26.7 °C "
+        "(TM 5-4210-230-14&P-1 correction; Battery Council International table)")
+
+
+def _from_rest(profile: Profile, rest_voltage_v: float, temperature_c: float | None,
+               cells: int | None, nominal_voltage_v: float | None,
+               notes: list[str]) -> tuple[int, float, str]:
+    """Cells, state of charge and its basis from a rest voltage, by the same two functions
+    ``plan`` uses (:func:`chargeplan.cells.count_cells`, :func:`check_rest_voltage`)."""
+    if rest_voltage_v <= 0:
+        raise InputError(f"{volts(rest_voltage_v)} is not a rested battery voltage",
+                         field="--rest-voltage",
+                         fix="check the leads (red to +) and measure again")
+    count = count_cells(profile, cells=cells, nominal_voltage_v=nominal_voltage_v,
+                        rest_voltage_v=rest_voltage_v, fields=_FIELDS)
+    check = check_rest_voltage(profile, count.cells, rest_voltage_v, temperature_c)
+    if check.verdict in ("reversed", "dead", "too_high", "fewer_cells"):
+        raise InputError(check.problem, field="--rest-voltage",
+                         fix="check the reading, the cell count and the chemistry")
+    if check.verdict in ("below_empty", "over_discharged"):
+        notes.append(f"{check.problem}: check each cell before charging"
+                     + (" (BU-808a)" if profile.family == "lithium" else ""))
+    notes.extend(check.notes)
+    soc = check.state_of_charge_pct
+    band = profile.rest_voltage.flat_band
+    if band is not None and profile.rest_voltage.in_flat_band(soc):
+        notes.append(f"{profile.name}'s flat curve makes a rest voltage a rough guide between "
+                     f"{num(band.low.value, 0)} and {num(band.high.value, 0)} %")
+    return count.cells, soc, (
+        f"rest voltage {volts(rest_voltage_v)} = {cell_volts(check.per_cell_v)} on "
+        f"{count.cells} cells ({profile.rest_voltage.table_source.split(';')[0]})")
 
 
 def state_of_charge(
@@ -63,12 +108,6 @@ def state_of_charge(
     """State of charge from a rested voltage (per the profile's table) or a hydrometer
     reading (corrected for temperature, US Army TM 5-4210-230-14&P-1; Battery Council
     International table)."""
-    from chargeplan.physics.electrolyte import (
-        specific_gravity_corrected,
-        state_of_charge_from_gravity_bci,
-    )
-    from chargeplan.physics.ocv import soc_from_ocv
-
     profile = (profiles or ProfileSet()).get(chemistry, field="--chemistry")
     if cells is not None and not 1 <= cells <= 400:
         raise InputError(f"{cells} is not a cell count", field="--cells",
@@ -84,61 +123,16 @@ def state_of_charge(
         raise InputError("give one reading", field="--rest-voltage",
                          fix="give --rest-voltage or --specific-gravity")
     notes: list[str] = []
-    if nominal_voltage_v is not None and cells is None:
-        cells = round(nominal_voltage_v / profile.nominal_cell_voltage.value)
-        if cells < 1:
-            raise InputError(f"{volts(nominal_voltage_v)} is less than one {profile.id} cell",
-                             field="--nominal-voltage", fix="give the battery's nominal voltage")
     if specific_gravity is not None:
-        if not profile.vented:
-            raise InputError(f"{profile.name} cells are sealed", field="--specific-gravity",
-                             fix="give --rest-voltage instead")
-        if not 1.000 <= specific_gravity <= 1.350:
-            raise InputError(f"{specific_gravity:g} is outside 1.000-1.350",
-                             field="--specific-gravity",
-                             fix="read the hydrometer again (battery acid lies in 1.100-1.300)")
-        t = 26.7 if temperature_c is None else temperature_c
-        corrected = float(specific_gravity_corrected(specific_gravity, t))
-        if not 1.000 <= corrected <= 1.350:
-            raise InputError(f"{specific_gravity:g} at {celsius(t)} corrects to "
-                             f"{corrected:.3f}, outside 1.000-1.350", field="--temperature",
-                             fix="check the electrolyte's temperature and the reading")
-        soc = float(state_of_charge_from_gravity_bci(corrected))
-        basis = (f"specific gravity {specific_gravity:.3f} at {celsius(t)} = {corrected:.3f} "
-                 "at 26.7 °C (TM 5-4210-230-14&P-1 correction; Battery Council International "
-                 "table)")
-        if temperature_c is None:
-            notes.append("no --temperature given: the reading is taken as at 26.7 °C (80 °F)")
-        result_cells = cells or 0
+        soc, basis = _from_gravity(profile, specific_gravity, temperature_c, notes)
+        result_cells = 0
+        if cells is not None or nominal_voltage_v is not None:
+            result_cells = count_cells(profile, cells=cells, nominal_voltage_v=nominal_voltage_v,
+                                       fields=_FIELDS).cells
     else:
         assert rest_voltage_v is not None
-        table = profile.rest_voltage.table
-        if rest_voltage_v <= 0:
-            raise InputError(f"{volts(rest_voltage_v)} is not a rested battery voltage",
-                             field="--rest-voltage",
-                             fix="check the leads (red to +) and measure again")
-        result_cells = _cells_from_reading(rest_voltage_v, table,
-                                           profile.rest_voltage.highest_plausible.value,
-                                           cells, profile.id, profile.family)
-        per_cell = rest_voltage_v / result_cells
-        rest = profile.rest_voltage
-        low, high = rest.dead_below.value, rest.highest_plausible.value
-        if not low <= per_cell <= high:
-            raise InputError(
-                f"{volts(rest_voltage_v)} on {result_cells} cells is {cell_volts(per_cell)}, "
-                f"outside what a rested {profile.id} cell reads ({cell_volts(low)} to "
-                f"{cell_volts(high)})",
-                field="--rest-voltage", fix="check the reading, the cell count and the chemistry",
-            )
-        soc = float(soc_from_ocv(per_cell, table))
-        basis = (f"rest voltage {volts(rest_voltage_v)} = {cell_volts(per_cell)} on "
-                 f"{result_cells} cells ({profile.rest_voltage.table_source.split(';')[0]})")
-        if temperature_c is not None and profile.family == "lead_acid" and temperature_c < 10:
-            notes.append("a cold lead-acid battery reads a little low at rest; the table is "
-                         "for room temperature")
-        if profile.id == "lifepo4" and 20 < soc < 90:
-            notes.append("LiFePO4's flat curve makes a rest voltage a rough guide between 20 "
-                         "and 90 %")
+        result_cells, soc, basis = _from_rest(profile, rest_voltage_v, temperature_c, cells,
+                                              nominal_voltage_v, notes)
     if rested_s is not None and rested_s < REST_HOURS * 3600:
         notes.append(f"rested only {num(rested_s / 3600, 1)} h: a reading soon after charging "
                      f"reads high (surface charge); rest {num(REST_HOURS, 0)} h or more and "
@@ -166,7 +160,11 @@ def runtime(
     """How long ``load`` ('8.3 A' or '100 W') takes to flatten the battery from its present
     state, by Peukert's law (lead-acid) or near its rated capacity (lithium)."""
     from chargeplan.engine.planner import derive_state
-    from chargeplan.physics.discharge import peukert_runtime_h
+    from chargeplan.physics.discharge import (
+        LOW_RATE_CAPACITY_FACTOR,
+        peukert_runtime_h,
+        runtime_capped_h,
+    )
 
     ctx = derive_state(battery_file, profiles=profiles, file=file)
     notes: list[str] = []
@@ -191,7 +189,12 @@ def runtime(
         notes.append("no state of charge or rest voltage given: starting from full")
     rated = battery_file.battery.capacity_hours or DEFAULT_RATED_HOURS[ctx.profile.family]
     exponent = ctx.profile.physics.peukert_exponent.value
-    full_h = float(peukert_runtime_h(ctx.capacity_ah, current, rated, exponent))
+    factor = LOW_RATE_CAPACITY_FACTOR[ctx.profile.family]
+    full_h = float(runtime_capped_h(ctx.capacity_ah, current, rated, exponent, factor))
+    if full_h < float(peukert_runtime_h(ctx.capacity_ah, current, rated, exponent)) - 1e-9:
+        notes.append(f"capped at {num(factor, 2)} x the rated {num(ctx.capacity_ah)} Ah: below "
+                     "its rated current Peukert's law overstates what a battery gives (C100 is "
+                     "about 1.1-1.25 x C20 for lead-acid, from memory)")
     if current < ctx.capacity_ah / rated:
         notes.append(f"below the rated current ({num(ctx.capacity_ah / rated, 2)} A) the "
                      "battery's own self-discharge shortens this; Peukert's law does not "

@@ -179,7 +179,7 @@ class StoragePlan:
             topped = [t for t in self.top_ups if t.battery == i and t.day == day]
             # on a top-up day, the reading is taken before the top-up
             predicted = topped[0].soc_before if topped else float(self.soc_daily[i, day])
-            if self.chemistry[i] == "lifepo4" and 20 < measured < 90 and 20 < predicted < 90:
+            if profile_set.get(self.chemistry[i]).rest_voltage.in_flat_band(measured, predicted):
                 continue  # LiFePO4's flat curve: a rest voltage cannot tell 30 % from 80 %
             if measured < predicted - FAST_LOSS_POINTS:
                 flags.append(f"{battery}: {measured:.0f} % measured on {date.isoformat()}, "

@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+from chargeplan.cells import NOMINAL_TOLERANCE, check_rest_voltage, count_cells  # noqa: F401
+from chargeplan.cells import nominal_fits as cell_counts  # noqa: F401 - for the planners
 from chargeplan.engine.context import Context
 from chargeplan.engine.registry import rule
+from chargeplan.errors import InputError
 from chargeplan.fmt import cell_volts, celsius, num, volts
 from chargeplan.physics.electrolyte import (
     freezing_point_tm5_1185,
@@ -12,67 +15,26 @@ from chargeplan.physics.electrolyte import (
 )
 from chargeplan.physics.ocv import soc_from_ocv
 
-#: How far a trade name may sit from cells x nominal cell voltage ("12 V" for 12.8 V LFP).
-NOMINAL_TOLERANCE = {"lead_acid": 0.05, "lithium": 0.08}
 
-
-def cell_counts(nominal_v: float, cell_v: float, tolerance: float) -> list[int]:
-    """The cell counts whose nominal voltage lies within ``tolerance`` of ``nominal_v``."""
-    low, high = max(1, int(nominal_v / cell_v * 0.8)), int(nominal_v / cell_v * 1.2) + 2
-    return [n for n in range(low, high) if abs(n * cell_v - nominal_v) <= tolerance * nominal_v]
-
-
-@rule("CP101", "cells.count", source="IEC 62485-2 (2.0 V per lead-acid cell); common practice: "
-      "trade names round lithium pack voltages (12.8 V LiFePO4 is sold as '12 V')")
+@rule("CP101", "cells.count", source="IEC 62485-2 Table 1 (voltages per 2.0 V lead-acid cell); "
+      "common practice: trade names round lithium pack voltages (12.8 V LiFePO4 is sold as "
+      "'12 V')")
 def cells_count(ctx: Context) -> None:
     """Cells in series follow from the nominal voltage and the chemistry's cell voltage.
 
     Both given must agree; a nominal voltage that two cell counts could make
-    (48 V LiFePO4: 15 or 16 cells) must be settled by giving cells_in_series.
+    (48 V LiFePO4: 15 or 16 cells) must be settled by giving cells_in_series. The count
+    is :func:`chargeplan.cells.count_cells`, the one every command uses.
     """
     battery = ctx.battery_file.battery
-    cell_v = ctx.profile.nominal_cell_voltage.value
-    tolerance = NOMINAL_TOLERANCE[ctx.profile.family]
-    chem = ctx.profile.id
-    if battery.cells_in_series is not None:
-        n = battery.cells_in_series
-        if battery.nominal_voltage_v is not None:
-            made = n * cell_v
-            if abs(made - battery.nominal_voltage_v) > tolerance * battery.nominal_voltage_v:
-                raise ctx.bad_input(
-                    "battery.cells_in_series",
-                    f"{n} cells of {chem} make {volts(made)} nominal, not "
-                    f"{volts(battery.nominal_voltage_v)}",
-                    "correct nominal_voltage or cells_in_series (or the chemistry)",
-                )
-        ctx.cells = n
-        ctx.nominal_voltage_v = battery.nominal_voltage_v or n * cell_v
-        ctx.note("cells_in_series", f"{n} cells in series, as given")
-        return
-    nominal = battery.nominal_voltage_v
-    assert nominal is not None  # the model requires one of the two
-    fits = cell_counts(nominal, cell_v, tolerance)
-    if not fits:
-        raise ctx.bad_input(
-            "battery.nominal_voltage",
-            f"no whole number of {chem} cells ({cell_volts(cell_v)} each) makes about "
-            f"{volts(nominal)}",
-            "give cells_in_series, or check the chemistry",
-        )
-    if len(fits) > 1:
-        options = " or ".join(str(n) for n in fits)
-        raise ctx.bad_input(
-            "battery.nominal_voltage",
-            f"{volts(nominal)} of {chem} could be {options} cells in series",
-            f"give cells_in_series ({options}); the label or the battery's maker says which",
-        )
-    ctx.cells = fits[0]
-    ctx.nominal_voltage_v = nominal
-    ctx.note(
-        "cells_in_series",
-        f"{fits[0]} cells = {volts(nominal)} / {cell_volts(cell_v)}, rounded "
-        f"(within {num(tolerance * 100, 0)} % of {volts(fits[0] * cell_v)})",
-    )
+    try:
+        count = count_cells(ctx.profile, cells=battery.cells_in_series,
+                            nominal_voltage_v=battery.nominal_voltage_v)
+    except InputError as error:
+        raise ctx.bad_input(error.field or "battery.nominal_voltage", error.problem,
+                            error.fix or "give cells_in_series") from None
+    ctx.cells, ctx.nominal_voltage_v = count.cells, count.nominal_voltage_v
+    ctx.note("cells_in_series", count.basis)
 
 
 @rule("CP102", "capacity.rating", source="common practice: lithium batteries sold as "
@@ -109,18 +71,16 @@ def capacity_rating(ctx: Context) -> None:
 
 
 @rule("CP103", "state.reading", source="BU-808a Low-voltage cut-off (lithium below 1.5 V/cell); "
-      "Battery Council International OCV table; common practice: a 12 V lead-acid battery "
-      "resting near 10.5 V has a shorted cell")
+      "Battery Council International OCV table (11.89 V is 0 %); common practice: a 12 V "
+      "lead-acid battery resting near 10.5 V has a shorted cell")
 def state_reading(ctx: Context) -> None:
     """A rest voltage must make sense for the chemistry and cell count before anything is charged.
 
     Reversed leads, a dead or shorted cell and a wrong cell count are refused;
-    otherwise the reading gives the state of charge from the profile's table.
+    otherwise the reading gives the state of charge from the profile's table, corrected
+    for the battery's temperature and clamped (with a note) outside it.
     """
     state = ctx.battery_file.state
-    table = ctx.profile.rest_voltage.table
-    rest = ctx.profile.rest_voltage
-    n = ctx.cells
     ctx.temperature_c = ctx.battery_file.conditions.battery_temperature_c
     if state.specific_gravity is not None or state.specific_gravity_spread is not None:
         if not ctx.profile.vented:
@@ -148,73 +108,51 @@ def state_reading(ctx: Context) -> None:
         if ctx.soc_pct is None:
             ctx.info("no rest voltage or state of charge given: timers assume a flat battery")
         return
-    v = state.rest_voltage_v
-    per_cell = v / n
-    ctx.rest_v_cell = per_cell
-    if v < 0:
-        raise ctx.refuse(
-            f"the rest voltage reads {volts(v)}: the leads are reversed (or the battery is "
-            "connected backwards); connect red to + and black to -, then measure again"
-        )
-    if per_cell < rest.dead_below.value:
-        raise ctx.refuse(
-            f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, below "
-            f"{cell_volts(rest.dead_below.value)}: a dead or shorted cell, an open connection "
-            f"or a tripped protection circuit; do not charge it, have it tested"
-            + ("" if not ctx.lithium else " (BU-808a: never revive lithium cells that sat "
-               "below 1.5 V/cell)")
-        )
-    empty_v, high_v = table[0][1], rest.highest_plausible.value
-    # the cell counts this reading fits as a rested battery of this chemistry
-    fits = [k for k in range(1, 2 * n + 2) if empty_v * k <= v <= high_v * k]
+    _rest_reading(ctx, state.rest_voltage_v)
 
-    def counts(ks: list[int]) -> str:
-        return " or ".join(str(k) for k in ks[:3]) if ks else "no whole number of"
 
-    if per_cell > high_v:
+def _rest_reading(ctx: Context, v: float) -> None:
+    """CP103's reading of a rest voltage, by :func:`chargeplan.cells.check_rest_voltage`."""
+    state, n = ctx.battery_file.state, ctx.cells
+    check = check_rest_voltage(ctx.profile, n, v, ctx.temperature_c)
+    ctx.rest_v_cell = check.per_cell_v
+    verified = state.cells_verified
+    if check.verdict == "reversed":
+        raise ctx.refuse(f"{check.problem}; connect red to + and black to -, then measure again")
+    if check.verdict == "dead":
+        raise ctx.refuse(f"{check.problem}; do not charge it, have it tested" + (
+            " (BU-808a: never revive lithium cells that sat below 1.5 V/cell)"
+            if ctx.lithium else ""))
+    if check.verdict == "too_high":
+        raise ctx.refuse(f"{check.problem}; check cells_in_series and the chemistry")
+    if check.verdict == "fewer_cells" and not verified:
         raise ctx.refuse(
-            f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, more than a rested "
-            f"{n}-cell {ctx.profile.id} battery can read ({cell_volts(high_v)} at most): it "
-            f"reads like {counts([k for k in fits if k > n])} cells; check cells_in_series and "
-            "the chemistry"
-        )
-    if per_cell < empty_v:
-        fewer = [k for k in fits if k < n]
-        if fewer and not state.cells_verified:
-            what = "a dead cell" if ctx.lithium else "a shorted cell"
-            raise ctx.refuse(
-                f"the rest voltage {volts(v)} reads like {counts(fewer[::-1])} healthy cells, "
-                f"not {n}: {what} or the wrong cell count is likely, and charging would "
-                "overcharge the good cells; check cells_in_series, then each cell (hydrometer "
-                "or cell voltages); if all read alike the battery is only deeply discharged: "
-                "set state.cells_verified: true to plan a recovery"
-            )
-        if ctx.lithium and not state.cells_verified:
-            raise ctx.refuse(
-                f"the rest voltage {volts(v)} is {cell_volts(per_cell)}, below the "
-                f"{cell_volts(empty_v)} of an empty {ctx.profile.id} cell: the pack is "
-                "over-discharged; have each cell measured: if all read alike and above "
-                f"{cell_volts(rest.dead_below.value)}, set state.cells_verified: true to plan a "
-                "pre-charge (BU-808a)"
-            )
-        ctx.warn(
-            f"rest voltage {volts(v)} is below an empty {n}-cell battery's "
-            f"{volts(empty_v * n)}; planned as deeply discharged because state.cells_verified "
-            "is true: watch for one cell gassing or heating early"
-        )
-    soc = float(soc_from_ocv(per_cell, table))
-    ctx.note(
-        "state_of_charge",
-        f"{num(soc, 0)} % from rest voltage {volts(v)} = {cell_volts(per_cell)} "
-        f"({ctx.profile.rest_voltage.table_source.split(';')[0]})",
-    )
+            f"{check.problem}, and charging would overcharge the good cells; check "
+            "cells_in_series, then each cell (hydrometer or cell voltages); if all read alike "
+            "the battery is only deeply discharged: set state.cells_verified: true to plan it")
+    if check.verdict == "over_discharged" and not verified:
+        raise ctx.refuse(
+            f"{check.problem}; have each cell measured: if all read alike and above "
+            f"{cell_volts(ctx.profile.rest_voltage.dead_below.value)}, set "
+            "state.cells_verified: true to plan a pre-charge (BU-808a)")
+    if check.verdict != "ok":
+        why = ("because state.cells_verified is true" if verified else
+               "with no sign of a bad cell (state.cells_verified is not set: check each cell "
+               "if you can)")
+        ctx.warn(f"{check.problem}; planned as deeply discharged {why}: watch for one cell "
+                 "gassing or heating early")
+    for note in check.notes:
+        ctx.note("state_of_charge", note)
+    soc = check.state_of_charge_pct
+    ctx.note("state_of_charge", f"{num(soc, 0)} % from rest voltage {volts(v)} = "
+                                f"{cell_volts(check.per_cell_v)} "
+                                f"({ctx.profile.rest_voltage.table_source.split(';')[0]})")
     ctx.soc_pct = soc if ctx.soc_pct is None else min(soc, ctx.soc_pct)
-    if ctx.profile.id == "lifepo4" or ctx.profile.chemistry == "lifepo4":
-        if 20 < soc < 90:
-            ctx.info(
-                "LiFePO4's flat voltage curve makes a rest voltage a rough guide between 20 "
-                "and 90 %; timers allow for it"
-            )
+    band = ctx.profile.rest_voltage.flat_band
+    if band is not None and ctx.profile.rest_voltage.in_flat_band(soc):
+        ctx.info(f"{ctx.profile.name}'s flat voltage curve makes a rest voltage a rough guide "
+                 f"between {num(band.low.value, 0)} and {num(band.high.value, 0)} %; timers "
+                 "allow for it")
 
 
 #: What a too-cold battery's refusal (and a bench card for it) tells the operator to do.
@@ -286,9 +224,10 @@ def temperature_frozen(ctx: Context) -> None:
     else:
         soc = ctx.soc_assumed_pct
         offset = ctx.profile.rest_voltage.freeze_check_offset
-        if ctx.rest_v_cell is not None and offset is not None:
-            # the table overstates this battery's charge: check freezing on a lower reading
-            soc = min(soc, float(soc_from_ocv(ctx.rest_v_cell - offset.value,
+        if ctx.rest_v_cell is not None:
+            # the reading as read, not corrected for temperature (a cold battery reads low,
+            # which here errs toward a warmer freezing point), less the table's offset
+            soc = min(soc, float(soc_from_ocv(ctx.rest_v_cell - (offset.value if offset else 0),
                                               ctx.profile.rest_voltage.table)))
         gravity = float(specific_gravity_bci(soc))
         basis = (f"{num(soc, 0)} % state of charge (specific gravity {gravity:.3f})"

@@ -34,8 +34,8 @@ def settings_overrides(ctx: Context) -> None:
         storage_v_cell=c.storage_voltage.value,
         equalization_v_cell=p.equalization.voltage.value if p.equalization.voltage else None,
         desulfation_v_cell=p.desulfation.voltage.value if p.desulfation.voltage else None,
-        precharge_below_v_cell=c.precharge_below.value,
-        precharge_a=c.precharge_current.value * cap,
+        precharge_below_v_cell=c.precharge_below.value if c.precharge_below else None,
+        precharge_a=c.precharge_current.value * cap if c.precharge_current else None,
         bulk_a=c.bulk_current.value * cap,
         tail_a=c.tail_current.value * cap,
         max_a=env_a,
@@ -128,6 +128,9 @@ def settings_overrides(ctx: Context) -> None:
     current("max_charge_current", "max_a")
     current("bulk_current", "bulk_a")
     current("tail_current", "tail_a")
+    if o.precharge_current is not None and s.precharge_a is None:
+        raise ctx.bad_input(field("precharge_current"), f"{p.name} has no pre-charge stage",
+                            "remove the override (the bulk current applies from the start)")
     current("precharge_current", "precharge_a")
     # Every current is held to the maximum charge current (the envelope's, or the maker's).
     if s.bulk_a > s.max_a:
@@ -136,7 +139,7 @@ def settings_overrides(ctx: Context) -> None:
                                 f"{amps(s.max_a)}", "check both values against the datasheet")
         s.bulk_a = s.max_a
         ctx.note("bulk.current", f"bulk held to the maximum charge current {amps(s.max_a)}")
-    if s.precharge_a > s.bulk_a:
+    if s.precharge_a is not None and s.precharge_a > s.bulk_a:
         if o.precharge_current is not None:
             raise ctx.bad_input(field("precharge_current"), "is above the bulk current",
                                 "a pre-charge current is a small fraction of the bulk current")
@@ -177,15 +180,22 @@ def _settings(ctx: Context) -> Settings:
 
 
 @rule("CP202", "stages.precharge", source="BU-808a Low-voltage cut-off: pre-charge lithium "
-      "below about 3.0 V/cell (NMC) or 2.5 V/cell (LFP) at about 0.1 C with a timer; common "
-      "practice: soft-start lead-acid below about 1.75 V/cell")
+      "below about 3.0 V/cell (NMC) or 2.5 V/cell (LFP) at about 0.1 C with a timer; BU-403 "
+      "Charging Lead Acid: lead-acid takes its constant current from the start")
 def stages_precharge(ctx: Context) -> None:
-    """A deeply discharged battery, or one whose voltage is unknown, starts with a small current.
+    """A deeply discharged lithium battery, or one whose voltage is unknown, starts small.
 
-    The stage ends as soon as the voltage passes the threshold, so a battery
-    above it moves straight on.
+    The stage ends as soon as the voltage passes the threshold, so a battery above it
+    moves straight on; it faults on its timer. Lead-acid has no pre-charge: it takes the
+    bulk current from the start (BU-403), a soft start would end at once (a discharged
+    lead-acid cell is above 1.75 V/cell under current), and a deeply discharged battery is
+    caught by its rest voltage instead (CP103: a shorted cell is refused).
     """
     s = _settings(ctx)
+    if s.precharge_below_v_cell is None or s.precharge_a is None:
+        ctx.note("precharge", f"none: {ctx.profile.name} takes the bulk current from the start "
+                              "(BU-403); its rest voltage was checked by CP103")
+        return
     threshold = s.precharge_below_v_cell * ctx.cells
     if ctx.rest_v_cell is not None and ctx.rest_v_cell >= s.precharge_below_v_cell:
         ctx.note("precharge", f"none: rest {cell_volts(ctx.rest_v_cell)} is above "

@@ -499,8 +499,10 @@ def profiles_command(
             typer.echo(f"  {key:<42} {value:<14} {source}")
         stages = ", ".join(p.envelope.forbidden_stages) or "none"
         typer.echo(f"  {'envelope.forbidden_stages':<42} {stages}")
-        typer.echo(f"  {'equalization.allowed':<42} {str(p.equalization.allowed).lower()}")
-        typer.echo(f"  {'desulfation.allowed':<42} {str(p.desulfation.allowed).lower()}")
+        for name in ("equalization", "desulfation"):
+            block = getattr(p, name)
+            typer.echo(f"  {name + '.allowed':<42} {str(block.allowed).lower()}"
+                       + (" (with the maker's permission)" if block.maker_may_allow else ""))
 
 
 @app.command("rules")

@@ -66,6 +66,8 @@ def test_engine_case(case):
     if "state_of_charge_between" in expect:
         low, high = expect["state_of_charge_between"]
         assert low <= plan.battery.state_of_charge_pct <= high
+    if "trace" in expect:
+        assert expect["trace"] in " | ".join(t.text for t in plan.trace)
     if "finding_rule" in expect:
         assert expect["finding_rule"] in {f.rule_id for f in plan.findings}
     if "finding" in expect:

@@ -56,6 +56,16 @@ def test_engine_case(case):
         assert low - 1e-9 <= plan.stage(kind).voltage_v / cells <= high + 1e-9, kind
     for kind, (low, high) in expect.get("current_it_between", {}).items():
         assert low - 1e-9 <= plan.stage(kind).current_a / capacity <= high + 1e-9, kind
+    for kind, (low, high) in expect.get("current_a_between", {}).items():
+        assert low - 1e-9 <= plan.stage(kind).current_a <= high + 1e-9, kind
+    if "storage_soc_between" in expect:
+        from chargeplan.physics.ocv import soc_from_ocv
+        from chargeplan.profiles import load_builtin
+
+        table = load_builtin(plan.battery.chemistry).rest_voltage.table
+        low, high = expect["storage_soc_between"]
+        assert low <= float(soc_from_ocv(plan.stage("storage_hold").voltage_v / cells,
+                                         table)) <= high
     for kind, volts in expect.get("voltage_below", {}).items():
         assert plan.stage(kind).voltage_v < volts, kind
     for kind in expect.get("fault_guards", []):

@@ -128,6 +128,12 @@ class State(InputModel):
         description="true asks for an equalization (flooded only), false forbids it; "
         "unset lets the rules decide",
     )
+    lowest_cell_on_float_v_cell: quantity("cell_voltage", ge=0, le=5) | None = Field(
+        default=None,
+        alias="lowest_cell_on_float",
+        description="the lowest cell's voltage on float, e.g. '2.11 V/cell' (stationary "
+        "flooded batteries; evidence for equalization)",
+    )
     capacity_test: Literal["passed", "failed"] | None = Field(
         default=None,
         description="the last capacity test: 'failed' when the battery, fully charged, gave "

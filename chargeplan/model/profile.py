@@ -143,11 +143,13 @@ class _OptionalStage(InputModel):
 
 
 class Equalization(_OptionalStage):
-    """Equalization: on a specific-gravity spread, when due, or when the operator asks."""
+    """Equalization: on a specific-gravity spread, a cell low on float, when due, or when
+    the operator asks."""
 
     _needs = (*_OptionalStage._needs, "gravity_spread_trigger", "interval")
     gravity_spread_trigger: Gravity | None = None  # type: ignore[valid-type]
     interval: Duration | None = None  # type: ignore[valid-type]
+    float_cell_below: CellVoltage | None = None  # type: ignore[valid-type]
 
 
 class Desulfation(_OptionalStage):

@@ -417,8 +417,9 @@ def stages_bulk_absorption(ctx: Context) -> None:
 def stages_equalization(ctx: Context) -> None:
     """Equalize only on evidence that cells have drifted, when due, or on request.
 
-    Evidence is a specific-gravity spread at the trigger (state.specific_gravity_spread);
-    due is the profile's interval since state.since_equalization; the operator asks with
+    Evidence is a specific-gravity spread at the trigger (state.specific_gravity_spread) or
+    a cell low on float (state.lowest_cell_on_float, IEEE 450 cl. 4.4); due is the
+    profile's interval since state.since_equalization; the operator asks with
     request: [equalization] (or state.equalize: true). Never gel or lithium.
     """
     kind = StageKind.EQUALIZATION
@@ -435,8 +436,12 @@ def stages_equalization(ctx: Context) -> None:
     e = ctx.profile.equalization
     assert e.gravity_spread_trigger and e.interval
     spread, since = state.specific_gravity_spread, state.since_equalization_s
+    low_cell, float_below = state.lowest_cell_on_float_v_cell, e.float_cell_below
     reasons = [text for present, text in (
         (asked, "asked for (request: [equalization] or state.equalize)"),
+        (low_cell is not None and float_below is not None and low_cell < float_below.value,
+         f"a cell at {cell_volts(low_cell or 0)} on float (below "
+         f"{cell_volts(float_below.value if float_below else 0)})"),
         (spread is not None and spread >= e.gravity_spread_trigger.value - 1e-9,
          f"cells differ by {spread or 0:.3f} specific gravity "
          f"(>= {e.gravity_spread_trigger.value:.3f})"),

@@ -221,6 +221,23 @@ def _warm_zone(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
         yield "the interlocks lack the warm-zone voltage limit"
 
 
+def _overcharge_stages(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
+    """A desulfation or equalization stage overcharges a full battery: it follows absorption,
+    ends on its time, and faults on an Ah cap and on a temperature rise."""
+    kinds = [stage.kind.value for stage in plan.stages]
+    for index, stage in enumerate(plan.stages):
+        if stage.kind.value not in _LITHIUM_NEVER:
+            continue
+        name = _name(index, stage)
+        if "absorption" not in kinds[:index]:
+            yield f"{name} does not follow absorption: it would overcharge a battery not yet full"
+        exits = {(e.kind.value, e.then) for e in stage.exits}
+        for needed in (("duration", "next"), ("charge_above", "fault"),
+                       ("temperature_rise", "fault")):
+            if needed not in exits:
+                yield f"{name} lacks its {needed[0]} exit ({needed[1]})"
+
+
 def _published_ceilings(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
     """The plan stays inside its chemistry's published ceilings (:data:`CEILINGS`), whatever
     the envelope it was given says."""
@@ -255,7 +272,7 @@ def _published_ceilings(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
 CHECKS: tuple[Check, ...] = (
     _identity, _stage_kinds, _stage_numbers, _stage_envelope, _holds_below_charge,
     _temperature_interlocks, _electrical_interlocks, _lithium_stops, _cool_zone, _warm_zone,
-    _published_ceilings,
+    _overcharge_stages, _published_ceilings,
 )
 
 

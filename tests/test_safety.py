@@ -200,3 +200,18 @@ def test_each_named_check_finds_only_its_own_crossing():
     plan.finish = "hold"
     hits = [check.__name__ for check in safety.CHECKS if list(check(plan, env))]
     assert hits == ["_lithium_stops"]
+
+
+def test_an_overcharge_stage_without_its_guards_or_before_absorption_is_caught():
+    # BU-804b (from memory): a controlled overcharge of an already fully charged battery,
+    # temperature watched; common practice: an Ah cap
+    data = battery(battery={"chemistry": "flooded"}, state={"capacity_test": "failed"})
+    plan = plan_of(data)
+    env = hard_envelope("flooded")
+    assert safety.violations(plan, env) == []
+    stage = plan.stage("desulfation")
+    stage.exits = [e for e in stage.exits if e.kind.value != "temperature_rise"]
+    assert any("lacks its temperature_rise exit" in v for v in safety.violations(plan, env))
+    plan = plan_of(data)
+    plan.stages.insert(0, plan.stages.pop(2))  # desulfation first
+    assert any("does not follow absorption" in v for v in safety.violations(plan, env))

@@ -129,13 +129,28 @@ def charger_current_range(ctx: Context) -> None:
 
 
 @rule("CP404", "charger.probe", source="common practice: compensation needs the battery's "
-      "temperature; a channel without a probe runs at the setpoints for the temperature planned")
+      "temperature; a channel without a probe runs at the setpoints for the temperature "
+      "planned; BU-804b (from memory): a controlled overcharge is run with its temperature "
+      "watched")
 def charger_probe(ctx: Context) -> None:
-    """Without a temperature probe, setpoints hold for the planned temperature only."""
+    """Without a temperature probe, setpoints hold for the planned temperature only.
+
+    A desulfation or equalization stage, whose fault stop watches the battery's
+    temperature, is left out on a channel known to have no probe.
+    """
     channel = ctx.battery_file.charger
     probe = channel is not None and channel.temperature_probe
     if probe:
         return
+    guarded = [st for st in ctx.stages if st.kind in OPTIONAL]
+    if guarded and channel is not None:
+        for stage in guarded:
+            ctx.warn(f"{stage.kind.label} left out: its stop on a temperature rise needs a "
+                     "probe on the battery, and the channel has none")
+        ctx.stages = [st for st in ctx.stages if st.kind not in OPTIONAL]
+    elif guarded:
+        ctx.warn("the overcharge stage stops on a temperature rise: use a channel with a "
+                 "temperature probe on the battery, or leave the stage out")
     if ctx.compensation is not None:
         ctx.warn("no temperature probe: the voltages are set for the battery's temperature "
                  "now; plan again if it changes by more than 5 K")

@@ -321,7 +321,7 @@ def thermistor(
     """ADC codes of an NTC thermistor divider: the interlock thresholds and a lookup table."""
     with _errors():
         from chargeplan.errors import InputError
-        from chargeplan.firmware.thermistor import Divider, thermistor_table
+        from chargeplan.firmware.thermistor import FULL_SCALE_NOTE, Divider, thermistor_table
         from chargeplan.units import option_quantity
 
         given = [v is not None for v in (a, b, c)]
@@ -345,16 +345,17 @@ def thermistor(
         if as_json:
             import json
 
-            typer.echo(json.dumps({
-                "adc_bits": adc_bits, "r25_ohm": divider.r25_ohm, "beta_K": beta,
-                "bias_ohm": divider.bias_ohm, "interlocks": [
-                    {k: v for k, v in row.items() if k != "exact_code"}
-                    for row in table.interlocks],
-                "table": table.rows}, indent=2))
+            typer.echo(json.dumps(table.as_json(), indent=2))
             return
         for row in table.interlocks:
             typer.echo(f"{row['name']:<24} {row['temperature_dC'] / 10:7.1f} degC  code "
                        f"{row['code']:>6}  (exact {row['exact_code']:.2f})")
+        for row in table.probe:
+            limit = f"above {row['code_above']}" if "code_above" in row else \
+                f"below {row['code_below']}"
+            typer.echo(f"{row['name']:<24} code {limit:>10}  fault {row['fault_code']}: "
+                       f"{row['meaning']}")
+        typer.echo(f"full scale {table.full_scale_code}: {FULL_SCALE_NOTE}")
         typer.echo("temperature_degC  resistance_ohm  code   (sorted by code)")
         for row in table.rows:
             typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "

@@ -290,10 +290,12 @@ def stages_end(s: Subject) -> Iterator[str]:
 
 @code("CK308")
 def stages_timer_covers_estimate(s: Subject) -> Iterator[str]:
-    """A timer shorter than the stage's own estimate would fault a normal charge."""
+    """A timer shorter than the stage's own estimate would fault a normal charge (to the
+    second: the document rounds timers down and estimates to the nearest second)."""
     for name, stage in s.named():
         estimate = stage.get("estimated_duration_s")
-        if stage["timer_s"] is not None and estimate is not None and stage["timer_s"] < estimate:
+        if (stage["timer_s"] is not None and estimate is not None
+                and stage["timer_s"] < estimate - 1):
             yield (f"{name} timer {stage['timer_s']} s is shorter than the {estimate} s the "
                    "stage is expected to take")
 
@@ -557,6 +559,21 @@ def table_hold_below_charge(s: Subject) -> Iterator[str]:
                       ", not below its charge voltage"))
 
 
+@code("CK605")
+def table_trends(s: Subject) -> Iterator[str]:
+    """As the battery warms, no row's charge or hold voltage rises (lead-acid compensation
+    lowers it, BU-410; the lithium warm zone cuts it, JEITA) and no row's current falls (the
+    cuts are in the cold: BU-410 Table 1, JEITA's cool zone)."""
+    rows = _rows(s)
+    for a, b in itertools.pairwise(rows):
+        where = f"table row at {b['temperature_dC']} dC"
+        if b["charge_voltage_mV"] > a["charge_voltage_mV"] or (
+                (b["hold_voltage_mV"] or 0) > (a["hold_voltage_mV"] or 0)):
+            yield f"{where} has a higher voltage than the colder row before it"
+        if b["current_max_mA"] < a["current_max_mA"]:
+            yield f"{where} has a lower current than the colder row before it"
+
+
 # --- 7xx: the battery file -----------------------------------------------------------------
 
 
@@ -693,7 +710,7 @@ CHECKS: tuple[CheckFunction, ...] = (
     locks_window_order, locks_window_limits, locks_cell_voltage, locks_battery_voltage,
     locks_current, locks_cool_zone, locks_warm_zone,
     compensation_not_for_lithium, compensation_coefficient, compensation_table_present,
-    table_order, table_limits, table_zones, table_hold_below_charge,
+    table_order, table_limits, table_zones, table_hold_below_charge, table_trends,
     battery_chemistry, battery_capacity, battery_cells, battery_maker_current,
     battery_maker_coefficient,
     channel_voltages, channel_currents, channel_steps,

@@ -560,3 +560,29 @@ def test_quantisation_report_on_the_command_line(write_yaml):
     assert result.exit_code == 0
     assert "absorption.voltage" in result.stderr and "requested" in result.stderr
     json.loads(result.stdout)
+
+
+def test_a_step_that_moves_a_setpoint_beyond_the_margin_is_refused():
+    from chargeplan.engine.rules.fit import QUANTISATION_MARGIN
+    from chargeplan.errors import PlanRefused
+
+    from .conftest import plan_of
+
+    # 4 x 3.55 V/cell = 14.2 V LiFePO4 (common practice CV); on a 5 V step it would be 10 V
+    data = battery(battery={"chemistry": "lifepo4", "capacity": "100 Ah"},
+                   state={"rest_voltage": "13.1 V"},
+                   charger={"max_voltage": "15 V", "min_voltage": "5 V", "max_current": "40 A",
+                            "voltage_step": "5 V", "can_disable_high_voltage_stages": True})
+    with pytest.raises(PlanRefused, match="more than the 1%") as caught:
+        plan_of(data)
+    assert caught.value.rule_id == "CP405"
+    # a 30 mV step moves 14.2 V to 14.19 V (0.07 %): planned, every move inside the margin
+    data["charger"]["voltage_step"] = "30 mV"
+    plan = plan_of(data)
+    assert plan.quantisation
+    for q in plan.quantisation:
+        assert abs(q.encoded - q.requested) <= QUANTISATION_MARGIN[q.unit] * q.requested
+    # currents: 50 A bulk (0.5 It) on a 30 A step would be 30 A, 40 % less: refused
+    data["charger"].update(voltage_step="10 mV", max_current="100 A", current_step="30 A")
+    with pytest.raises(PlanRefused, match="more than the 25%"):
+        plan_of(data)

@@ -702,7 +702,7 @@ def channel_steps(s: Subject) -> Iterator[str]:
 
 #: Every check, in order, after :data:`FORM_CHECKS`. Add new checks at the end of a group.
 CHECKS: tuple[CheckFunction, ...] = (
-    identity_cells_agree, identity_nominal_voltage, identity_chemistry_profile,
+    identity_chemistry_profile, identity_cells_agree, identity_nominal_voltage,
     stages_allowed, stages_in_order, stages_voltage_limit, stages_voltage_per_cell,
     stages_current_limit, stages_within_interlocks, stages_end, stages_timer_covers_estimate,
     stages_lead_dwell, stages_exits_in_range, stages_precharge_below_bulk,

@@ -260,3 +260,13 @@ def test_every_plan_the_rules_make_passes_the_checker(data):
     assert check_document(doc, battery_file=battery_file) == []
     back = image.decode(image.encode(doc))
     assert check_document(back, battery_file=battery_file, kind="image") == []
+
+
+def test_the_contributor_guide_lists_every_check():
+    from pathlib import Path
+
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS
+
+    guide = (Path(__file__).resolve().parent.parent / "DEVELOPERS.md").read_text()
+    for check in FORM_CHECKS + CHECKS:
+        assert f"| {check.code} | `{check.__name__}` |" in guide, check.code

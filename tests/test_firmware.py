@@ -94,6 +94,16 @@ def _compiler(name: str) -> str:
     return found
 
 
+def test_a_missing_compiler_fails_in_ci_and_skips_elsewhere(monkeypatch):
+    monkeypatch.setattr(shutil, "which", lambda name: None)
+    monkeypatch.setenv("CI", "true")
+    with pytest.raises(pytest.fail.Exception):
+        _compiler("gcc")
+    monkeypatch.setenv("CI", "")
+    with pytest.raises(pytest.skip.Exception):
+        _compiler("gcc")
+
+
 C_FLAGS = ["-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Werror"]
 CXX_FLAGS = ["-std=c++17", "-Wall", "-Wextra", "-Wpedantic", "-Werror", "-x", "c++"]
 
@@ -586,3 +596,21 @@ def test_a_step_that_moves_a_setpoint_beyond_the_margin_is_refused():
     data["charger"].update(voltage_step="10 mV", max_current="100 A", current_step="30 A")
     with pytest.raises(PlanRefused, match="more than the 25%"):
         plan_of(data)
+
+
+def test_a_makers_compensation_coefficient_is_held_to_the_battery_file(write_yaml):
+    from chargeplan.api import load_battery_file
+
+    # a maker's -7 mV/K/cell lies outside the checker's -2 to -6 (BU-410 -3 to -5 with a
+    # margin): refused alone, accepted against the battery file that gives it
+    path = write_yaml(battery(battery={"overrides": {"temperature_coefficient": "-7 mV/K/cell"}},
+                              charger={"max_voltage": "16 V", "max_current": "10 A",
+                                       "temperature_probe": True,
+                                       "can_disable_high_voltage_stages": True}))
+    doc = encode(plan_file(path))
+    assert doc["temperature_compensation"]["coefficient_uV_per_K_per_cell"] == -7000
+    assert "CK502" in _codes(doc)
+    given = {"battery_file": load_battery_file(path)}
+    assert check_document(doc, **given) == []
+    doc["temperature_compensation"]["coefficient_uV_per_K_per_cell"] = -5000
+    assert _codes(doc, **given) == {"CK705"}

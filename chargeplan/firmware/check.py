@@ -474,9 +474,13 @@ def compensation_not_for_lithium(s: Subject) -> Iterator[str]:
 
 @code("CK502")
 def compensation_coefficient(s: Subject) -> Iterator[str]:
-    """The coefficient is negative and in the sourced range (BU-410: -3 to -5 mV/K/cell)."""
+    """The coefficient is negative and in the sourced range (BU-410: -3 to -5 mV/K/cell,
+    with a margin), unless the battery file gives the maker's own (then CK705 holds it)."""
     comp, accepted = s.doc["temperature_compensation"], s.limits.compensation_uV
     if comp is None or accepted is None:
+        return
+    overrides = s.battery_file.battery.overrides if s.battery_file else None
+    if overrides and overrides.temperature_coefficient_mv_per_k_per_cell is not None:
         return
     value = comp["coefficient_uV_per_K_per_cell"]
     if not accepted[0] <= value <= accepted[1]:

@@ -121,6 +121,12 @@ def code(check_code: str) -> Callable[[CheckFunction], CheckFunction]:
     return mark
 
 
+def _q(value: object) -> str:
+    """A value from the file as a message quotes it: at most about 40 characters."""
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
 def _exit(stage: dict[str, Any], condition: str) -> dict[str, Any] | None:
     return next((e for e in stage["exits"] if e["condition"] == condition), None)
 
@@ -134,7 +140,7 @@ def form_version(s: Subject) -> Iterator[str]:
     from chargeplan.model import SETPOINT_VERSION
 
     if s.doc.get("version") != SETPOINT_VERSION:
-        yield (f"version: {s.doc.get('version')!r} is not the setpoint format version this "
+        yield (f"version: {_q(s.doc.get('version'))} is not the setpoint format version this "
                f"chargeplan reads ({SETPOINT_VERSION}); write the document again with "
                "'chargeplan plan'")
 
@@ -150,7 +156,7 @@ def form_stage_count(s: Subject) -> Iterator[str]:
 def form_cells(s: Subject) -> Iterator[str]:
     """At least one cell in series."""
     if not (isinstance(s.doc.get("cells_in_series"), int) and s.doc["cells_in_series"] >= 1):
-        yield (f"cells_in_series: {s.doc.get('cells_in_series')!r} is not a whole number of "
+        yield (f"cells_in_series: {_q(s.doc.get('cells_in_series'))} is not a whole number of "
                "cells of 1 or more")
 
 
@@ -158,14 +164,14 @@ def form_cells(s: Subject) -> Iterator[str]:
 def form_enumerations(s: Subject) -> Iterator[str]:
     """Every ``then``, ``finish`` and ``compensated`` holds one of its values."""
     if s.doc.get("finish") not in ("stop", "hold"):
-        yield f"finish: {s.doc.get('finish')!r} is neither stop nor hold"
+        yield f"finish: {_q(s.doc.get('finish'))} is neither stop nor hold"
     for name, stage in s.named():
         if not isinstance(stage.get("compensated"), bool):
-            yield f"{name} compensated: {stage.get('compensated')!r} is neither 0 nor 1"
+            yield f"{name} compensated: {_q(stage.get('compensated'))} is neither 0 nor 1"
         for e in stage.get("exits", []):
             allowed = {"fault"} if e["condition"] in _GUARDS else _THEN
             if e.get("then") not in allowed:
-                yield (f"{name} {e['condition']} exit: then {e.get('then')!r} is not one of "
+                yield (f"{name} {e['condition']} exit: then {_q(e.get('then'))} is not one of "
                        f"{', '.join(sorted(allowed))}")
 
 
@@ -208,7 +214,7 @@ def identity_chemistry_profile(s: Subject) -> Iterator[str]:
     """A built-in profile names its own chemistry."""
     chemistry, profile = s.doc["battery"]["chemistry"], s.doc["battery"].get("profile")
     if profile in LIMITS and profile != chemistry:
-        yield (f"battery.chemistry is {chemistry} but battery.profile is the built-in "
+        yield (f"battery.chemistry is {_q(chemistry)} but battery.profile is the built-in "
                f"{profile}; the two must agree")
 
 
@@ -596,9 +602,9 @@ def battery_chemistry(s: Subject) -> Iterator[str]:
     mine = s.battery_file.battery.chemistry
     doc_chemistry, profile = s.doc["battery"]["chemistry"], s.doc["battery"].get("profile")
     if mine in LIMITS and mine != doc_chemistry:
-        yield f"the battery file is {mine}, the document {doc_chemistry}"
+        yield f"the battery file is {_q(mine)}, the document {_q(doc_chemistry)}"
     elif mine not in LIMITS and profile is not None and mine != profile:
-        yield f"the battery file's profile is {mine}, the document's {profile}"
+        yield f"the battery file's profile is {_q(mine)}, the document's {_q(profile)}"
 
 
 @code("CK702")
@@ -746,7 +752,7 @@ def check_document(
     limits = _limits_for(doc, battery_file)
     if limits is None:
         chemistry = doc.get("battery", {}).get("chemistry")
-        return [Violation("CK106", f"unknown chemistry {chemistry!r}: no limits to check "
+        return [Violation("CK106", f"unknown chemistry {_q(chemistry)}: no limits to check "
                                    "against")]
     capacity = doc.get("battery", {}).get("capacity_mAh") or 0
     if battery_file is not None:

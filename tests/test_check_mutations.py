@@ -270,3 +270,127 @@ def test_the_contributor_guide_lists_every_check():
     guide = (Path(__file__).resolve().parent.parent / "DEVELOPERS.md").read_text()
     for check in FORM_CHECKS + CHECKS:
         assert f"| {check.code} | `{check.__name__}` |" in guide, check.code
+
+
+def _doc(index: int) -> dict:
+    return encode(plan_file(example_paths()[index]))
+
+
+def _battery(index: int, **overrides):
+    """The example's battery file, with maker overrides given as their model values."""
+    battery = load_battery_file(example_paths()[index])
+    if not overrides:
+        return battery
+    new = battery.battery.overrides.model_copy(update=overrides)
+    return battery.model_copy(update={"battery": battery.battery.model_copy(
+        update={"overrides": new})})
+
+
+def _maker_current(text: str):
+    from chargeplan.model.battery import Overrides
+
+    return Overrides.model_validate({"max_charge_current": text}).max_charge_current
+
+
+def _channel(**fields):
+    from chargeplan.model.charger import ChargerChannel
+
+    return ChargerChannel.model_validate({"max_voltage": "16 V", "max_current": "10 A",
+                                          **fields})
+
+
+F, A, G, L, N = range(5)
+
+
+def _edit(index, change, **given):
+    def build():
+        doc = copy.deepcopy(_doc(index))
+        change(doc)
+        return doc, {k: v() for k, v in given.items()}
+    return build
+
+
+def _put(path, value):
+    def change(doc):
+        node = doc
+        for key in path[:-1]:
+            node = node[key]
+        node[path[-1]] = value
+    return change
+
+
+#: One hand edit per check, that the check alone must find (and not find before the edit).
+ONE_EACH = {
+    "CK101": _edit(N, _put(("version",), 99)),
+    "CK102": _edit(N, _put(("stages",), [])),
+    "CK103": _edit(N, _put(("cells_in_series",), 0)),
+    "CK104": _edit(N, _put(("finish",), "forever")),
+    "CK105": _edit(N, _put(("stages", 0, "current_mA"), 0)),
+    "CK201": _edit(F, _put(("battery", "cells_in_series"), 7)),
+    "CK202": _edit(F, _put(("battery", "nominal_voltage_mV"), 24000)),
+    "CK203": _edit(L, _put(("battery", "chemistry"), "nmc")),
+    "CK301": _edit(L, lambda d: d["stages"].append({**d["stages"][-1], "kind": "float"})),
+    "CK302": _edit(F, lambda d: d["stages"].reverse()),
+    "CK303": _edit(F, _put(("stages", 1, "voltage_mV"), 17000)),
+    "CK304": _edit(F, _put(("stages", 1, "voltage_mV"), 2450)),
+    "CK305": _edit(F, _put(("stages", 0, "current_mA"), 99999)),
+    "CK306": _edit(F, _put(("stages", 0, "current_mA"), 4900)),
+    "CK307": _edit(N, _put(("stages", 1, "timer_s"), None)),
+    "CK308": _edit(F, _put(("stages", 2, "timer_s"), 10)),
+    "CK309": _edit(F, _put(("stages", 2, "timer_s"), 3 * 86400)),
+    "CK310": _edit(F, _put(("stages", 1, "exits", 0, "voltage_mV"), 16000)),
+    "CK311": _edit(N, lambda d: d["stages"].insert(0, {**d["stages"][0], "kind": "precharge",
+                                                       "current_mA": 3000})),
+    "CK312": _edit(F, _put(("stages", 3, "voltage_mV"), 15006)),
+    "CK313": _edit(N, _put(("finish",), "hold")),
+    "CK314": _edit(L, _put(("stages", 0, "current_mA"), 21000)),
+    "CK401": _edit(F, _put(("interlocks", "charge_temperature_min_dC"), 600)),
+    "CK402": _edit(L, _put(("interlocks", "charge_temperature_min_dC"), -50)),
+    "CK403": _edit(N, _put(("interlocks", "cell_voltage_max_mV"), 4300)),
+    "CK404": _edit(N, _put(("interlocks", "battery_voltage_max_mV"), 12700)),
+    "CK405": _edit(N, _put(("interlocks", "current_max_mA"), 6000)),
+    "CK406": _edit(L, _put(("interlocks", "cool_zone"), None)),
+    "CK407": _edit(N, _put(("interlocks", "warm_zone"), None)),
+    "CK501": _edit(N, _put(("stages", 0, "compensated"), True)),
+    "CK502": _edit(F, _put(("temperature_compensation", "coefficient_uV_per_K_per_cell"), 3000)),
+    "CK503": _edit(F, _put(("temperature_compensation",), None)),
+    "CK601": _edit(F, lambda d: d["temperature_table"]["rows"].reverse()),
+    "CK602": _edit(F, _put(("temperature_table", "rows", 0, "charge_voltage_mV"), 17000)),
+    "CK603": _edit(L, _put(("temperature_table", "rows", 0, "current_max_mA"), 30000)),
+    "CK604": _edit(F, _put(("temperature_table", "rows", 5, "hold_voltage_mV"), 16000)),
+    "CK605": _edit(F, _put(("temperature_table", "rows", 5, "current_max_mA"), 5000)),
+    "CK701": _edit(L, _put(("battery", "chemistry"), "nmc"), battery_file=lambda: _battery(L)),
+    "CK702": _edit(N, _put(("battery", "capacity_mAh"), 50000), battery_file=lambda: _battery(N)),
+    "CK703": _edit(L, _put(("cells_in_series",), 5), battery_file=lambda: _battery(L)),
+    "CK704": _edit(N, lambda d: None, battery_file=lambda: _battery(
+        N, max_charge_current=_maker_current("1 A"))),
+    "CK705": _edit(F, lambda d: None, battery_file=lambda: _battery(
+        F, temperature_coefficient_mv_per_k_per_cell=-5.0)),
+    "CK801": _edit(N, lambda d: None, channel=lambda: _channel(max_voltage="12 V")),
+    "CK802": _edit(N, lambda d: None, channel=lambda: _channel(max_current="2 A")),
+    "CK803": _edit(N, lambda d: None, channel=lambda: _channel(voltage_step="0.25 V")),
+}
+
+
+def test_every_check_has_its_own_case():
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS
+
+    assert {check.code for check in FORM_CHECKS + CHECKS} == set(ONE_EACH)
+
+
+@pytest.mark.parametrize("code", sorted(ONE_EACH))
+def test_each_check_on_its_own(code):
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS, subject_for
+
+    check = next(c for c in FORM_CHECKS + CHECKS if c.code == code)
+    doc, given = ONE_EACH[code]()
+    found = list(check(subject_for(doc, **given)))
+    assert found, f"{code} found nothing in its case"
+    assert all(isinstance(line, str) and line for line in found)
+    # the unedited example passes the same check (against its own battery file, or a channel
+    # that can run it, where those are what the check reads)
+    index = next(i for i in range(5) if _doc(i)["battery"]["name"] == doc["battery"]["name"])
+    clean = {"battery_file": _battery(index)} if code.startswith("CK7") else {}
+    if code.startswith("CK8"):
+        clean = {"channel": _channel()}
+    assert list(check(subject_for(_doc(index), **clean))) == []

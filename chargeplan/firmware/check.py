@@ -40,6 +40,7 @@ __all__ = [
     "code",
     "load_channel_file",
     "read_setpoint_file",
+    "subject_for",
 ]
 
 #: The order stages run in; a document's stages must follow it, each kind at most once.
@@ -72,6 +73,10 @@ class CheckReport:
     @property
     def ok(self) -> bool:
         return not self.violations
+
+    @property
+    def checks_run(self) -> int:
+        return len(FORM_CHECKS) + len(CHECKS)
 
 
 @dataclass(frozen=True)
@@ -740,6 +745,28 @@ def _limits_for(doc: dict[str, Any], battery_file: BatteryFile | None) -> Chemis
     return LIMITS.get(doc.get("battery", {}).get("chemistry"))
 
 
+def subject_for(
+    doc: dict[str, Any],
+    *,
+    battery_file: BatteryFile | None = None,
+    channel: ChargerChannel | None = None,
+    kind: str = "json",
+) -> Subject | None:
+    """What the checks read about ``doc``; None when its chemistry has no limits here."""
+    limits = _limits_for(doc, battery_file)
+    if limits is None:
+        return None
+    capacity = doc.get("battery", {}).get("capacity_mAh") or 0
+    if battery_file is not None:
+        capacity = min(capacity, _file_capacity_mAh(battery_file))
+    channels: list[tuple[str, ChargerChannel]] = []
+    if battery_file is not None and battery_file.charger is not None:
+        channels.append(("battery file's charger", battery_file.charger))
+    if channel is not None:
+        channels.append(("channel", channel))
+    return Subject(doc, kind, limits, capacity, battery_file, tuple(channels))
+
+
 def check_document(
     doc: dict[str, Any],
     *,
@@ -749,20 +776,11 @@ def check_document(
 ) -> list[Violation]:
     """Every way ``doc`` (a schema-valid document, or a decoded image) is unsafe or out of
     order: empty when it may be flashed."""
-    limits = _limits_for(doc, battery_file)
-    if limits is None:
+    subject = subject_for(doc, battery_file=battery_file, channel=channel, kind=kind)
+    if subject is None:
         chemistry = doc.get("battery", {}).get("chemistry")
         return [Violation("CK106", f"unknown chemistry {_q(chemistry)}: no limits to check "
                                    "against")]
-    capacity = doc.get("battery", {}).get("capacity_mAh") or 0
-    if battery_file is not None:
-        capacity = min(capacity, _file_capacity_mAh(battery_file))
-    channels: list[tuple[str, ChargerChannel]] = []
-    if battery_file is not None and battery_file.charger is not None:
-        channels.append(("battery file's charger", battery_file.charger))
-    if channel is not None:
-        channels.append(("channel", channel))
-    subject = Subject(doc, kind, limits, capacity, battery_file, tuple(channels))
     found = _run(FORM_CHECKS, subject)
     return found or _run(CHECKS, subject)
 

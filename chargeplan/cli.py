@@ -79,6 +79,16 @@ def _profile_set(paths: list[Path] | None):  # -> ProfileSet
     return ProfileSet(list(paths or []))
 
 
+def _fitted(render, file: Path):  # render: () -> str | bytes
+    """A firmware output; a value too large for its field names the battery file too."""
+    from chargeplan.errors import InputError
+
+    try:
+        return render()
+    except InputError as error:
+        raise error.in_file(str(file)) from None
+
+
 def _emit(text: str | bytes, output: Path | None, force: bool) -> None:
     if output is None:
         if isinstance(text, bytes):
@@ -147,7 +157,7 @@ def plan(
             from chargeplan.firmware.c_header import render_c_header
             from chargeplan.firmware.setpoints import encode
 
-            _emit(render_c_header(result, encode(result)), output, force)
+            _emit(_fitted(lambda: render_c_header(result, encode(result)), file), output, force)
         elif format is Format.markdown:
             from chargeplan.render.document import render_markdown
 
@@ -162,7 +172,7 @@ def plan(
             from chargeplan.firmware import image
             from chargeplan.firmware.setpoints import encode
 
-            _emit(image.encode(encode(result)), output, force)
+            _emit(_fitted(lambda: image.encode(encode(result)), file), output, force)
         else:
             from chargeplan.render.text import render_text
 

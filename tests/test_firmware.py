@@ -229,6 +229,7 @@ def test_header_and_image_refuse_a_timer_their_field_cannot_hold(tmp_path, write
         assert result.exit_code == 2, result.stderr
         assert "stages[" in result.stderr and "timer_s" in result.stderr
         assert "uint32_t" in result.stderr and not (tmp_path / fmt).exists()
+        assert result.stderr.startswith(f"error: {path}: stages[")
 
 
 def _good(index: int = 0):

@@ -60,10 +60,10 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     """The header for ``doc`` (the encoded ``plan``). A value its C type cannot hold is an
     InputError naming the field (exit 2), never an overflowed constant."""
     from chargeplan.firmware.faults import FAULTS, VOLTAGE_TRIP_FILTER_MS
-    from chargeplan.firmware.fieldtypes import require_fit
+    from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
     from chargeplan.firmware.image import CHEMISTRY_CODES
 
-    require_fit(doc)
+    require_fit(doc, fix=PLAN_FIX)
     stages = []
     for stage, encoded in zip(plan.stages, doc["stages"], strict=True):
         stages.append({

@@ -13,7 +13,7 @@ from typing import Any
 
 from chargeplan.errors import InputError
 
-__all__ = ["TYPES", "field_values", "require_fit"]
+__all__ = ["FILE_FIX", "PLAN_FIX", "TYPES", "field_values", "require_fit"]
 
 #: (C type, lowest, highest) of each integer type the image and header use.
 TYPES: dict[str, tuple[str, int, int]] = {
@@ -79,7 +79,14 @@ def field_values(doc: dict[str, Any]) -> Iterator[tuple[str, Any, str]]:
             yield f"temperature_table.rows[{n}].{key}", row.get(key), "u32"
 
 
-def require_fit(doc: dict[str, Any], *, file: str | None = None) -> None:
+#: The fix when a plan's own value does not fit (the image and header writers).
+PLAN_FIX = ("this plan does not fit firmware's fields: check the battery's capacity and the "
+            "channel's current (a tiny current on a huge battery gives a timer of years)")
+#: The fix when a setpoint file read back holds such a value.
+FILE_FIX = "check the value; a plan this large is not one firmware can run"
+
+
+def require_fit(doc: dict[str, Any], *, file: str | None = None, fix: str = FILE_FIX) -> None:
     """Refuse (exit 2, naming the field) a value that its image and header type cannot hold."""
     for path, value, kind in field_values(doc):
         if value is None or isinstance(value, bool) or not isinstance(value, int):
@@ -90,6 +97,5 @@ def require_fit(doc: dict[str, Any], *, file: str | None = None) -> None:
                      else f"a number of about 10^{int(value.bit_length() * 0.30103)}")
             raise InputError(
                 f"{shown} does not fit the image and header field ({c_type}, {low} to {high})",
-                file=file, field=path,
-                fix="check the value; a plan this large is not one firmware can run",
+                file=file, field=path, fix=fix,
             )

@@ -91,9 +91,9 @@ def encode(doc: dict[str, Any]) -> bytes:
 
     A value its field cannot hold is an InputError naming the field, never a wrapped number.
     """
-    from chargeplan.firmware.fieldtypes import require_fit
+    from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
 
-    require_fit(doc)
+    require_fit(doc, fix=PLAN_FIX)
     lock = doc["interlocks"]
     cool, warm = lock["cool_zone"], lock["warm_zone"]
     comp = doc["temperature_compensation"]

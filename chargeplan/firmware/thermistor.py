@@ -79,7 +79,7 @@ def _check(divider: Divider) -> None:
                              fix="give the datasheet value, e.g. --r25 10kohm --beta 3950")
     if not 6 <= divider.adc_bits <= 24:
         raise InputError(f"{divider.adc_bits} bits is not an ADC", field="--adc-bits",
-                         fix="give 8 to 24, e.g. 12")
+                         fix="give 6 to 24, e.g. 12")
     for name, value in zip(("--a", "--b", "--c"), divider.steinhart_hart or (), strict=False):
         if not math.isfinite(value):
             raise InputError(f"{value:g} is not a finite number", field=name,

@@ -394,3 +394,30 @@ def test_each_check_on_its_own(code):
     if code.startswith("CK8"):
         clean = {"channel": _channel()}
     assert list(check(subject_for(_doc(index), **clean))) == []
+
+
+def test_the_checker_shares_no_code_with_the_rules_or_the_profiles():
+    """Checking a document against its battery file and channel loads nothing of the rules
+    engine, the profiles, the safety check or the estimate (a fresh interpreter)."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    corpus = Path(__file__).parent / "corpus"
+    script = f"""
+import sys
+from chargeplan.firmware.check import check_file, load_channel_file
+from chargeplan.loading import read_mapping, validate
+from chargeplan.model.battery import BatteryFile
+path = {str(example_paths()[4])!r}
+battery = validate(BatteryFile, read_mapping(path, what="battery"), file=path)
+channel = load_channel_file({str(corpus / "channel" / "good-channel.yaml")!r})
+for name in ("lithium-no-timers.json", "nmc-warm-zone-removed.json"):
+    assert not check_file({str(corpus / "setpoints")!r} + "/" + name, battery_file=battery,
+                          channel=channel).ok
+print(" ".join(sorted(m for m in sys.modules if m.startswith((
+    "chargeplan.engine", "chargeplan.profiles", "chargeplan.safety", "chargeplan.estimate")))))
+"""
+    out = subprocess.run([sys.executable, "-c", script], check=True, capture_output=True,
+                         text=True).stdout
+    assert out.strip() == ""

@@ -415,7 +415,9 @@ def _patched_image(doc, offset_in_first_stage: int | None = None, value: int = 0
 
     data = bytearray(image.encode(doc))
     if offset_in_first_stage is not None:
-        start = 12 + sum(struct.calcsize(f) for f in ("<HIhBBB", "<hhHIIhIhH", "<Biihhh", "<32s"))
+        # the first stage follows the header, the interlocks, compensation and the digest
+        start = sum(block.size for block in (image._HEAD, image._HEADER, image._LOCKS,
+                                             image._COMP, image._DIGEST))
         data[start + offset_in_first_stage] = value
     body = bytes(data[:-4])
     return body + struct.pack("<I", zlib.crc32(body))

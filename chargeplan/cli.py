@@ -79,6 +79,16 @@ def _profile_set(paths: list[Path] | None):  # -> ProfileSet
     return ProfileSet(list(paths or []))
 
 
+def _fitted(render, file: Path):  # render: () -> str | bytes
+    """A firmware output; a value too large for its field names the battery file too."""
+    from chargeplan.errors import InputError
+
+    try:
+        return render()
+    except InputError as error:
+        raise error.in_file(str(file)) from None
+
+
 def _emit(text: str | bytes, output: Path | None, force: bool) -> None:
     if output is None:
         if isinstance(text, bytes):
@@ -147,7 +157,7 @@ def plan(
             from chargeplan.firmware.c_header import render_c_header
             from chargeplan.firmware.setpoints import encode
 
-            _emit(render_c_header(result, encode(result)), output, force)
+            _emit(_fitted(lambda: render_c_header(result, encode(result)), file), output, force)
         elif format is Format.markdown:
             from chargeplan.render.document import render_markdown
 
@@ -162,7 +172,7 @@ def plan(
             from chargeplan.firmware import image
             from chargeplan.firmware.setpoints import encode
 
-            _emit(image.encode(encode(result)), output, force)
+            _emit(_fitted(lambda: image.encode(encode(result)), file), output, force)
         else:
             from chargeplan.render.text import render_text
 
@@ -295,7 +305,7 @@ def check(
         report = check_file(file, battery_file=battery_file, channel=channel)
         if report.ok:
             what = "schema, digest" if report.kind == "json" else "CRC-32"
-            typer.echo(f"{file}: ok: {what}, hard envelope and order checks passed")
+            typer.echo(f"{file}: ok: {what} and {report.checks_run} checks passed")
             return
         for violation in report.violations:
             typer.echo(f"{file}: {violation}", err=True)
@@ -321,7 +331,7 @@ def thermistor(
     """ADC codes of an NTC thermistor divider: the interlock thresholds and a lookup table."""
     with _errors():
         from chargeplan.errors import InputError
-        from chargeplan.firmware.thermistor import Divider, thermistor_table
+        from chargeplan.firmware.thermistor import FULL_SCALE_NOTE, Divider, thermistor_table
         from chargeplan.units import option_quantity
 
         given = [v is not None for v in (a, b, c)]
@@ -345,16 +355,17 @@ def thermistor(
         if as_json:
             import json
 
-            typer.echo(json.dumps({
-                "adc_bits": adc_bits, "r25_ohm": divider.r25_ohm, "beta_K": beta,
-                "bias_ohm": divider.bias_ohm, "interlocks": [
-                    {k: v for k, v in row.items() if k != "exact_code"}
-                    for row in table.interlocks],
-                "table": table.rows}, indent=2))
+            typer.echo(json.dumps(table.as_json(), indent=2))
             return
         for row in table.interlocks:
             typer.echo(f"{row['name']:<24} {row['temperature_dC'] / 10:7.1f} degC  code "
                        f"{row['code']:>6}  (exact {row['exact_code']:.2f})")
+        for row in table.probe:
+            limit = f"above {row['code_above']}" if "code_above" in row else \
+                f"below {row['code_below']}"
+            typer.echo(f"{row['name']:<24} code {limit:>10}  fault {row['fault_code']}: "
+                       f"{row['meaning']}")
+        typer.echo(f"full scale {table.full_scale_code}: {FULL_SCALE_NOTE}")
         typer.echo("temperature_degC  resistance_ohm  code   (sorted by code)")
         for row in table.rows:
             typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "

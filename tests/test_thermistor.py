@@ -55,3 +55,92 @@ def test_interlock_codes_round_toward_safety():
     assert low["code"] <= low["exact_code"] and high["code"] >= high["exact_code"]
     assert low["temperature_dC"] == 0 and high["temperature_dC"] == 450
     assert [r["code"] for r in table.rows] == sorted(r["code"] for r in table.rows)
+
+
+def test_interlock_codes_come_from_the_documents_rounded_limits():
+    # the document rounds the minimum up to 0.1 degC (toward safety); the code must be the
+    # code of that rounded value, not of the plan's unrounded float
+    from chargeplan.api import plan_file
+    from chargeplan.demo import example_paths
+    from chargeplan.firmware.setpoints import encode
+
+    plan = plan_file(example_paths()[0], estimate=False, table_step_c=None)
+    lock = encode(plan)["interlocks"]
+    table = thermistor_table(NTC, plan)
+    codes = {row["name"]: row for row in table.interlocks}
+    low = codes["charge_temperature_min"]
+    assert low["temperature_dC"] == lock["charge_temperature_min_dC"]
+    # Beta equation written out here: R = R25 exp(B (1/T - 1/T25)), code = R/(R+bias) x 4095
+    t = lock["charge_temperature_min_dC"] / 10 + 273.15
+    r = 10_000 * math.exp(3950 * (1 / t - 1 / 298.15))
+    assert low["code"] == math.floor(r / (r + 10_000) * 4095)
+    assert codes["cool_zone_below"]["temperature_dC"] == lock["cool_zone"]["below_dC"]
+
+
+def test_probe_open_and_short_thresholds_carry_the_fault_codes():
+    from chargeplan.firmware.faults import FAULT_CODES
+
+    table = thermistor_table(NTC, low_c=-40.0, high_c=125.0)
+    probe = {row["name"]: row for row in table.probe}
+    # Beta equation at -40 and 125 degC (the table's ends), full scale 2^12 - 1 = 4095
+    r_cold = 10_000 * math.exp(3950 * (1 / 233.15 - 1 / 298.15))
+    r_hot = 10_000 * math.exp(3950 * (1 / 398.15 - 1 / 298.15))
+    assert probe["probe_open"]["code_above"] == math.ceil(r_cold / (r_cold + 10_000) * 4095)
+    assert probe["probe_short"]["code_below"] == math.floor(r_hot / (r_hot + 10_000) * 4095)
+    assert probe["probe_open"]["fault_code"] == FAULT_CODES["probe_open"]
+    assert probe["probe_short"]["fault_code"] == FAULT_CODES["probe_short"]
+    assert table.full_scale_code == 4095
+    # every row lies between the thresholds: a real temperature is never read as a fault
+    assert all(probe["probe_short"]["code_below"] <= row["code"]
+               <= probe["probe_open"]["code_above"] for row in table.rows)
+
+
+def test_fault_codes_are_unique_and_named_once():
+    from chargeplan.firmware.faults import FAULT_CODES, FAULTS
+
+    assert len({f.code for f in FAULTS}) == len(FAULTS) == len(FAULT_CODES)
+    assert {f.action for f in FAULTS} <= {"latch", "pause"}
+
+
+@pytest.mark.parametrize("coefficients", [(-1.0, -1.0, -1.0), (0.0, 0.0, 0.0),
+                                          (float("nan"), 2.378e-4, 2.019e-7),
+                                          (1.009e-3, -2.378e-4, 2.019e-7)])
+def test_coefficients_that_are_not_an_ntc_are_refused(coefficients):
+    from chargeplan.errors import InputError
+
+    divider = Divider(10_000, 3950, 10_000, 12, steinhart_hart=coefficients)
+    with pytest.raises(InputError):
+        thermistor_table(divider)
+
+
+def test_steinhart_hart_with_c_zero_is_the_linear_form():
+    # 1/T = A + B ln R: with C = 0 the resistance is exp((1/T - A) / B)
+    a, b = 1.129e-3, 2.341e-4
+    r = resistance_steinhart_hart(25.0, a, b, 0.0)
+    assert float(r) == pytest.approx(math.exp((1 / 298.15 - a) / b))
+    assert temperature_steinhart_hart(r, a, b, 0.0) == pytest.approx(25.0)
+
+
+def test_thermistor_command_json_and_refusals():
+    import json
+
+    from typer.testing import CliRunner
+
+    from chargeplan.cli import app
+
+    runner = CliRunner()
+    base = ["thermistor", "--r25", "10kohm", "--beta", "3950", "--bias", "10kohm"]
+    sh = ["--a", "1.009249522e-03", "--b", "2.378405444e-04", "--c", "2.019202697e-07"]
+    result = runner.invoke(app, [*base, *sh, "--json"])
+    assert result.exit_code == 0, result.stderr
+    out = json.loads(result.stdout)
+    assert out["equation"] == "steinhart-hart" and "beta_K" not in out and "r25_ohm" not in out
+    assert out["full_scale_code"] == 4095 and "2^bits - 1" in out["code"]
+    plain = json.loads(runner.invoke(app, [*base, "--json"]).stdout)
+    assert plain["equation"] == "beta" and plain["beta_K"] == 3950
+    for bad in (["--a", "-1", "--b", "-1", "--c", "-1"], ["--a", "0", "--b", "0", "--c", "0"]):
+        result = runner.invoke(app, [*base, *bad])
+        assert result.exit_code == 2, result.stderr
+        assert "falls steadily" in result.stderr and "Traceback" not in result.stderr
+    text = runner.invoke(app, base).stdout
+    assert "full scale 4095" in text and "probe_open" in text

@@ -20,11 +20,12 @@ _KIND_MACROS = {"precharge": 1, "desulfation": 2, "bulk": 3, "absorption": 4,
 
 
 def c_comment(text: str) -> str:
-    """Text that is safe inside a C block comment: no ``*/`` or ``/*``, no control
-    characters, ASCII only (anything else becomes '?')."""
-    clean = "".join(ch if 32 <= ord(ch) < 127 else "?" for ch in text)
-    while "*/" in clean or "/*" in clean:
-        clean = clean.replace("*/", "* /").replace("/*", "/ *")
+    """Text that is safe inside a C block comment: ASCII only (anything else becomes '?'), no
+    control characters or backslashes, no ``*/`` or ``/*``, and no ``??`` (a trigraph such
+    as ``??/`` is a backslash in C99 and breaks -Werror builds)."""
+    clean = "".join(ch if 32 <= ord(ch) < 127 and ch != "\\" else "?" for ch in text)
+    while "*/" in clean or "/*" in clean or "??" in clean:
+        clean = clean.replace("*/", "* /").replace("/*", "/ *").replace("??", "? ?")
     return clean
 
 
@@ -39,7 +40,7 @@ def _template() -> Any:
     env = Environment(loader=PackageLoader("chargeplan", "firmware/templates"),
                       autoescape=False, trim_blocks=True, lstrip_blocks=True,
                       keep_trailing_newline=True, undefined=StrictUndefined)
-    env.filters.update(comment=c_comment, ident=_ident)
+    env.filters.update(comment=c_comment, ident=_ident, format=_format)
     return env.get_template("setpoints.h.j2")
 
 
@@ -50,11 +51,20 @@ def _exit(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
     return 0xFFFFFFFF, 0
 
 
+def _format(pattern: str, *values: Any) -> str:
+    """jinja2's ``format`` filter, its result made safe for a comment."""
+    return c_comment(pattern % values)
+
+
 def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
-    """The header for ``doc`` (the encoded ``plan``)."""
-    from chargeplan.firmware.image import require_layout_exits
+    """The header for ``doc`` (the encoded ``plan``). A value its C type cannot hold is an
+    InputError naming the field (exit 2), never an overflowed constant."""
+    from chargeplan.firmware.faults import FAULTS, VOLTAGE_TRIP_FILTER_MS
+    from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
+    from chargeplan.firmware.image import CHEMISTRY_CODES, require_layout_exits
 
     require_layout_exits(doc, "C header")
+    require_fit(doc, fix=PLAN_FIX)
     stages = []
     for stage, encoded in zip(plan.stages, doc["stages"], strict=True):
         stages.append({
@@ -65,4 +75,6 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
             "current_exit": _exit(encoded, "current_below", "current_mA"),
             "duration_exit": _exit(encoded, "duration", "duration_s"),
         })
-    return str(_template().render(doc=doc, plan=plan, stages=stages, kinds=_KIND_MACROS))
+    return str(_template().render(doc=doc, plan=plan, stages=stages, kinds=_KIND_MACROS,
+                                  chemistries=CHEMISTRY_CODES, faults=FAULTS,
+                                  trip_filter_ms=VOLTAGE_TRIP_FILTER_MS))

@@ -56,6 +56,8 @@ _KINDS = {code: kind for kind, code in KIND_CODES.items()}
 CHEMISTRY_CODES = {"flooded": 1, "agm": 2, "gel": 3, "lifepo4": 4, "nmc": 5}
 _CHEMISTRIES = {code: name for name, code in CHEMISTRY_CODES.items()}
 NONE_U32 = 0xFFFFFFFF
+# A byte outside its values decodes as the raw number, for the checker to refuse.
+_THEN, _FINISH, _FLAG = {0: "next", 1: "stop"}, {0: "stop", 1: "hold"}, {0: False, 1: True}
 _COOL_NONE, _WARM_NONE = -32768, 32767
 
 _HEAD = struct.Struct("<4sHHI")
@@ -105,9 +107,13 @@ def require_layout_exits(doc: dict[str, Any], what: str) -> None:
 def encode(doc: dict[str, Any]) -> bytes:
     """Pack a setpoint document (as :func:`chargeplan.firmware.setpoints.encode` gives it).
 
-    A document with fault guards is refused (:func:`require_layout_exits`).
+    A document with fault guards is refused (:func:`require_layout_exits`); a value its
+    field cannot hold is an InputError naming the field, never a wrapped number.
     """
+    from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
+
     require_layout_exits(doc, "setpoint image")
+    require_fit(doc, fix=PLAN_FIX)
     lock = doc["interlocks"]
     cool, warm = lock["cool_zone"], lock["warm_zone"]
     comp = doc["temperature_compensation"]
@@ -194,10 +200,10 @@ def decode(data: bytes) -> dict[str, Any]:
                                             (et, et_then, "duration", "duration_s")):
             if value != NONE_U32:
                 exits.append({"condition": condition, key: value,
-                              "then": "stop" if then else "next"})
+                              "then": _THEN.get(then, then)})
         stages.append({"kind": _KINDS[kind], "voltage_mV": volt, "current_mA": amp,
                        "timer_s": None if timer == NONE_U32 else timer,
-                       "compensated": bool(comp_flag), "exits": exits})
+                       "compensated": _FLAG.get(comp_flag, comp_flag), "exits": exits})
     row_count, step = take(_TABLE)
     rows = []
     for _ in range(row_count):
@@ -211,7 +217,7 @@ def decode(data: bytes) -> dict[str, Any]:
         "cells_in_series": cells,
         "battery": {"capacity_mAh": capacity, "chemistry": _CHEMISTRIES[chemistry]},
         "planned_temperature_dC": planned,
-        "finish": "hold" if finish else "stop",
+        "finish": _FINISH.get(finish, finish),
         "stages": stages,
         "interlocks": {
             "charge_temperature_min_dC": t_min, "charge_temperature_max_dC": t_max,

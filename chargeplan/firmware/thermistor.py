@@ -17,7 +17,7 @@ from chargeplan.physics.thermistor import (
 )
 from chargeplan.plan import ChargePlan
 
-__all__ = ["Divider", "ThermistorTable", "thermistor_table"]
+__all__ = ["FULL_SCALE_NOTE", "Divider", "ThermistorTable", "thermistor_table"]
 
 
 @dataclass(frozen=True)
@@ -41,7 +41,34 @@ class Divider:
 class ThermistorTable:
     divider: Divider
     interlocks: list[dict[str, object]] = field(default_factory=list)
+    probe: list[dict[str, object]] = field(default_factory=list)
     rows: list[dict[str, object]] = field(default_factory=list)
+
+    @property
+    def full_scale_code(self) -> int:
+        """The code of the ADC's full scale, ``2^bits - 1`` (4095 at 12 bits)."""
+        return 2**self.divider.adc_bits - 1
+
+    def as_json(self) -> dict[str, object]:
+        """The table as JSON: the equation the codes came from and only its parameters."""
+        d = self.divider
+        if d.steinhart_hart is not None:
+            a, b, c = d.steinhart_hart
+            model: dict[str, object] = {"equation": "steinhart-hart", "a": a, "b": b, "c": c}
+        else:
+            model = {"equation": "beta", "r25_ohm": d.r25_ohm, "beta_K": d.beta_k}
+        return {
+            **model, "bias_ohm": d.bias_ohm, "adc_bits": d.adc_bits,
+            "full_scale_code": self.full_scale_code, "code": FULL_SCALE_NOTE,
+            "interlocks": [{k: v for k, v in row.items() if k != "exact_code"}
+                           for row in self.interlocks],
+            "probe": self.probe, "table": self.rows,
+        }
+
+
+#: How a code relates to the divider (printed with every table).
+FULL_SCALE_NOTE = ("code = R / (R + bias) x (2^bits - 1): the ADC's reference is the divider's "
+                   "supply and full scale is 2^bits - 1 (4095 at 12 bits)")
 
 
 def _check(divider: Divider) -> None:
@@ -52,7 +79,53 @@ def _check(divider: Divider) -> None:
                              fix="give the datasheet value, e.g. --r25 10kohm --beta 3950")
     if not 6 <= divider.adc_bits <= 24:
         raise InputError(f"{divider.adc_bits} bits is not an ADC", field="--adc-bits",
-                         fix="give 8 to 24, e.g. 12")
+                         fix="give 6 to 24, e.g. 12")
+    for name, value in zip(("--a", "--b", "--c"), divider.steinhart_hart or (), strict=False):
+        if not math.isfinite(value):
+            raise InputError(f"{value:g} is not a finite number", field=name,
+                             fix="give the datasheet's Steinhart-Hart coefficients")
+
+
+def _check_monotonic(divider: Divider, low_c: float, high_c: float) -> None:
+    """An NTC's resistance falls as it warms: coefficients that give anything else (or no
+    finite, positive resistance) would blind the interlocks."""
+    temps = np.linspace(low_c, high_c, max(2, int((high_c - low_c) * 2) + 1))
+    with np.errstate(all="ignore"):
+        r = divider.resistance(temps)
+    if not (np.all(np.isfinite(r)) and np.all(r > 0) and np.all(np.diff(r) < 0)):
+        field_name = "--a" if divider.steinhart_hart is not None else "--beta"
+        raise InputError(
+            f"these coefficients do not give a resistance that falls steadily from "
+            f"{low_c:g} to {high_c:g} degC, as an NTC thermistor's does",
+            field=field_name, fix="give the datasheet's values (e.g. --a 1.009e-3 --b 2.378e-4 "
+                                  "--c 2.019e-7 for a common 10 kohm NTC)")
+
+
+def _interlock_points(plan: ChargePlan) -> list[tuple[str, int, object]]:
+    """The document's own rounded limits (dC), each with its rounding toward safety."""
+    from chargeplan.firmware.setpoints import encode
+
+    lock = encode(plan)["interlocks"]
+    points = [("charge_temperature_min", lock["charge_temperature_min_dC"], math.floor),
+              ("charge_temperature_max", lock["charge_temperature_max_dC"], math.ceil)]
+    if lock["cool_zone"]:
+        points.append(("cool_zone_below", lock["cool_zone"]["below_dC"], math.floor))
+    if lock["warm_zone"]:
+        points.append(("warm_zone_above", lock["warm_zone"]["above_dC"], math.ceil))
+    return points
+
+
+def _probe_thresholds(divider: Divider, low_c: float, high_c: float) -> list[dict[str, object]]:
+    """Codes beyond the table's coldest and hottest rows: an open or a shorted probe."""
+    from chargeplan.firmware.faults import FAULT_CODES
+
+    cold, hot = float(divider.code(low_c)), float(divider.code(high_c))
+    return [
+        {"name": "probe_open", "fault_code": FAULT_CODES["probe_open"],
+         "code_above": math.ceil(cold), "meaning": f"colder than {low_c:g} degC: open circuit"},
+        {"name": "probe_short", "fault_code": FAULT_CODES["probe_short"],
+         "code_below": math.floor(hot), "meaning": f"hotter than {high_c:g} degC: short circuit"},
+    ]
 
 
 def thermistor_table(
@@ -63,26 +136,23 @@ def thermistor_table(
     high_c: float = 125.0,
     step_c: float = 5.0,
 ) -> ThermistorTable:
-    """Interlock codes rounded toward safety, and a table sorted by code.
+    """Interlock codes rounded toward safety, the probe's open and short thresholds, and a
+    table sorted by code.
 
-    A warmer battery reads a lower code, so a minimum temperature's code rounds down and a
+    The interlock codes are computed from the setpoint document's own rounded limits. A
+    warmer battery reads a lower code, so a minimum temperature's code rounds down and a
     maximum's rounds up (both toward the middle of the window); a cool-zone boundary rounds
     down and a warm-zone boundary up, so the cuts cover a little more, not less.
     """
     _check(divider)
+    _check_monotonic(divider, low_c, high_c)
     result = ThermistorTable(divider)
     if plan is not None:
-        lock = plan.interlocks
-        points = [("charge_temperature_min", lock.charge_temperature_min_c, math.floor),
-                  ("charge_temperature_max", lock.charge_temperature_max_c, math.ceil)]
-        if lock.cool_zone_below_c is not None:
-            points.append(("cool_zone_below", lock.cool_zone_below_c, math.floor))
-        if lock.warm_zone_above_c is not None:
-            points.append(("warm_zone_above", lock.warm_zone_above_c, math.ceil))
-        for name, t, rounding in points:
-            exact = float(divider.code(t))
-            result.interlocks.append({"name": name, "temperature_dC": round(t * 10),
+        for name, t_dc, rounding in _interlock_points(plan):
+            exact = float(divider.code(t_dc / 10))
+            result.interlocks.append({"name": name, "temperature_dC": t_dc,
                                       "code": int(rounding(exact)), "exact_code": exact})
+    result.probe = _probe_thresholds(divider, low_c, high_c)
     temps = np.arange(low_c, high_c + step_c / 2, step_c)
     codes = divider.code(temps)
     resistances = divider.resistance(temps)

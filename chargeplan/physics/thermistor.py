@@ -54,8 +54,15 @@ def temperature_steinhart_hart(resistance_ohm: ArrayLike, a: float, b: float,
 
 def resistance_steinhart_hart(temperature_c: ArrayLike, a: float, b: float,
                               c: float) -> np.ndarray:
-    """Steinhart-Hart solved for resistance (the real root of the cubic in ln R)."""
+    """Steinhart-Hart solved for resistance (the real root of the cubic in ln R; with
+    ``c = 0`` the equation is linear in ln R).
+
+    Coefficients that are not a thermistor's give non-finite values here (numpy's rules for
+    division by zero); :mod:`chargeplan.firmware.thermistor` refuses them before use.
+    """
     inv_t = 1.0 / (np.asarray(temperature_c, dtype=float) + KELVIN)
+    if c == 0:
+        return np.exp((inv_t - a) / b)
     x = (a - inv_t) / c
     y = np.sqrt((b / (3.0 * c)) ** 3 + (x / 2.0) ** 2)
     return np.exp(np.cbrt(y - x / 2.0) - np.cbrt(y + x / 2.0))

@@ -159,13 +159,24 @@ def charger_probe(ctx: Context) -> None:
                  "0 °C; check the battery's temperature before and during charging")
 
 
+#: How far a channel's step may move a setpoint before the plan is refused: a voltage by 1 %
+#: (charger-IC practice: output regulation within about +-0.5 to 1 %, from memory, so a step
+#: that moves a voltage further is no longer the plan's voltage), a current or tail current by
+#: a quarter (common practice: the charge then still ends on its exits inside its timers).
+QUANTISATION_MARGIN = {"V": 0.01, "A": 0.25}
+
+
 @rule("CP405", "charger.quantisation", source="common practice: a channel sets only multiples "
-      "of its voltage and current steps; rounding must never move a limit toward danger")
+      "of its voltage and current steps; rounding must never move a limit toward danger, nor "
+      "any setpoint by more than 1 % (voltage) or 25 % (current)")
 def charger_quantisation(ctx: Context) -> None:
-    """Move setpoints onto the channel's steps toward safety; refuse one that then leaves its range.
+    """Move setpoints onto the channel's steps toward safety; refuse one that then leaves its
+    range, or that the step moves by more than the margin.
 
     Voltage and current limits round down; a tail current rounds up (the stage ends a
     little earlier). Nothing is clamped into range: a value that no longer fits is a refusal.
+    A step that moves a voltage by more than 1 % or a current by more than 25 % is refused
+    (a 5 V step would turn a 14.2 V LiFePO4 bulk voltage into 10 V).
     """
     channel = ctx.battery_file.charger
     if channel is None or (channel.voltage_step is None and channel.current_step is None):
@@ -179,10 +190,18 @@ def charger_quantisation(ctx: Context) -> None:
         return round(whole * step, 9)
 
     def record(what: str, before: float, after: float, unit: str) -> None:
-        if abs(after - before) > 1e-12:
-            ctx.quantisation.append(Quantised(what, before, after, unit))
-            ctx.note(what, f"{before:.6g} {unit} -> {after:.6g} {unit} (channel step, rounded "
-                           f"{'up' if after > before else 'down'})")
+        if abs(after - before) <= 1e-12:
+            return
+        ctx.quantisation.append(Quantised(what, before, after, unit))
+        ctx.note(what, f"{before:.6g} {unit} -> {after:.6g} {unit} (channel step, rounded "
+                       f"{'up' if after > before else 'down'})")
+        margin = QUANTISATION_MARGIN[unit]
+        if abs(after - before) > margin * abs(before) + 1e-12:
+            raise ctx.refuse(
+                f"the channel's step moves {what} from {before:.6g} {unit} to {after:.6g} "
+                f"{unit}, more than the {margin:.0%} a step may move a setpoint; use a channel "
+                "with a finer step"
+            )
 
     v_step, i_step = channel.voltage_step, channel.current_step
     for stage in ctx.stages:

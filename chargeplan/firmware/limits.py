@@ -1,0 +1,101 @@
+"""The checker's own table of chemistry limits, independent of the profiles and the rules.
+
+``chargeplan check`` is a second opinion: it must not share a code path with the rules that
+made a plan, so it does not load the bundled profiles. These integers are written out here,
+each with its source; ``tests/test_check_mutations.py`` holds them against the bundled
+profiles' hard envelopes, so the two can never drift apart silently. Where this table is
+tighter than an envelope (the cool and warm zones, the float ban for lithium), it says why.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["LIMITS", "ChemistryLimits", "cell_count_candidates"]
+
+
+@dataclass(frozen=True, slots=True)
+class ChemistryLimits:
+    """Hard limits in the setpoint document's integer units (mV, dC, It as a float)."""
+
+    chemistry: str
+    family: str  # "lead_acid" or "lithium"
+    nominal_cell_mV: int
+    nominal_tolerance: float  # how far a trade name may sit from cells x nominal
+    cell_max_mV: int
+    current_max_it: float
+    charge_min_dC: int
+    charge_max_dC: int
+    forbidden_stages: frozenset[str]
+    tail_min_it: float  # a tail current below this never ends the stage in practice
+    cool_below_dC: int | None = None  # the cool zone must reach at least this temperature
+    cool_current_it: float | None = None  # and hold the current at most to this
+    warm_above_dC: int | None = None  # the warm zone must begin at or below this
+    warm_cell_max_mV: int | None = None  # and hold the cell voltage at most to this
+    compensation_uV: tuple[int, int] | None = None  # accepted coefficient, most..least negative
+
+    @property
+    def lithium(self) -> bool:
+        return self.family == "lithium"
+
+
+#: Lead-acid compensation: BU-410 "Charging at High and Low Temperatures" gives -3 mV/K per
+#: cell, other sources up to -5 (REFERENCES: -3 to -5); makers' datasheets quote -2 to -6
+#: (from memory), the margin this range allows. Positive (wrong sign) or ten times too large
+#: is refused.
+_LEAD_COMPENSATION = (-6000, -2000)
+_LEAD = dict(
+    family="lead_acid", nominal_cell_mV=2000,  # IEC 62485-2: nominal 2.0 V per cell
+    nominal_tolerance=0.05,  # common practice: 12 V is 6 cells, 24 V is 12
+    charge_min_dC=-200, charge_max_dC=500,  # BU-410 Table 1: lead-acid -20 to 50 degC
+    tail_min_it=0.005,  # BU-403: the absorption ends at 0.5-5 % of C
+    cool_below_dC=0, cool_current_it=0.30,  # BU-410 Table 1: at most 0.3 C below freezing
+    compensation_uV=_LEAD_COMPENSATION,
+)
+_LITHIUM_FORBIDDEN = frozenset({"equalization", "desulfation", "float"})
+_LITHIUM = dict(
+    family="lithium",
+    nominal_tolerance=0.08,  # common practice: 12.8 V LiFePO4 is sold as "12 V"
+    current_max_it=1.0,  # BU-409 Charging Lithium-ion: 0.5-1 C; LFP handling guidelines 1 C
+    charge_min_dC=0, charge_max_dC=450,  # BU-410 Table 1: lithium-ion 0 to 45 degC
+    # BU-808a / BU-702: no trickle or float for lithium-ion; never equalization or desulfation
+    forbidden_stages=_LITHIUM_FORBIDDEN,
+    tail_min_it=0.01,  # BU-409: terminate at 1-10 % of C
+)
+
+LIMITS: dict[str, ChemistryLimits] = {
+    # flooded: 2.67 V/cell, the highest equalization voltage across sources
+    # (2.67 V/cell, BU equalizing-charge text); 0.30 It BU-403 typical charge current
+    "flooded": ChemistryLimits("flooded", cell_max_mV=2670, current_max_it=0.30,
+                               forbidden_stages=frozenset(), **_LEAD),
+    # AGM: 2.55 V/cell VRLA maker limits with cold compensation (from memory); 0.5 It
+    # (from memory: AGM makers allow up to 0.3-0.5 C)
+    "agm": ChemistryLimits("agm", cell_max_mV=2550, current_max_it=0.50,
+                           forbidden_stages=frozenset(), **_LEAD),
+    # gel: 2.50 V/cell, 0.30 It (from memory: gel maker limits); no equalization or
+    # desulfation (common practice: gel and AGM get none unless the maker allows it)
+    "gel": ChemistryLimits("gel", cell_max_mV=2500, current_max_it=0.30,
+                           forbidden_stages=frozenset({"equalization", "desulfation"}), **_LEAD),
+    # LiFePO4: nominal 3.2 V/cell, absolute maximum 3.65 V/cell, at most 0.2 C below 10 degC
+    # (cell handling guidelines, common practice)
+    "lifepo4": ChemistryLimits("lifepo4", nominal_cell_mV=3200, cell_max_mV=3650,
+                               cool_below_dC=100, cool_current_it=0.20, **_LITHIUM),
+    # NMC: 4.20 V/cell (BU-808); nominal 3.6-3.7 V/cell (common practice). JEITA guideline
+    # (2007), as summarised in charger-IC datasheets: cool zone 0-10 degC with the current
+    # cut to 20-50 % (here: at most half the 1 It maximum); warm zone from 45 degC at the
+    # latest, voltage cut to about 4.10-4.15 V/cell (here: at most 4.15 V/cell)
+    "nmc": ChemistryLimits("nmc", nominal_cell_mV=3600, cell_max_mV=4200,
+                           cool_below_dC=100, cool_current_it=0.50,
+                           warm_above_dC=450, warm_cell_max_mV=4150, **_LITHIUM),
+}
+
+
+def cell_count_candidates(nominal_mV: float, limits: ChemistryLimits) -> set[int]:
+    """Cell counts whose nominal voltage lies within the chemistry's tolerance of
+    ``nominal_mV`` (the checker's own arithmetic; the rules have theirs)."""
+    if not nominal_mV > 0:
+        return set()
+    guess = nominal_mV / limits.nominal_cell_mV
+    return {n for n in range(max(1, int(guess * 0.8)), int(guess * 1.2) + 2)
+            if abs(n * limits.nominal_cell_mV - nominal_mV) <= limits.nominal_tolerance
+            * nominal_mV}

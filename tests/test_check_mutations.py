@@ -1,0 +1,418 @@
+"""`chargeplan check` against mutants: every numeric field of a valid document and of a valid
+image, moved 10 % toward danger one at a time, with the digest or CRC recomputed.
+
+"Toward danger" per field (DANGER below): voltages, currents, timers, durations, capacities,
+cells and guard thresholds up (more energy in, or a fault found later); tail currents down
+(the stage ends later); temperature minima and the cool zone's boundary down (charging
+allowed colder, the cut covering less); maxima and the warm zone's boundary up; the
+compensation coefficient larger in size (more voltage in the cold); its clamp range wider;
+the planned temperature up (compensated firmware adds more voltage below it). 10 % is of the
+value's size, at least one unit (one kelvin for temperatures).
+
+A mutant that crosses a limit must exit 1 (or 2 where no field of the image or header can
+hold it). Fields whose 10 % move crosses no limit the checker can know are listed in
+NO_LIMIT with the reason; the test lists every mutant that passes and fails on any not
+listed there, and on any NO_LIMIT entry that no longer passes (a stale reason).
+"""
+
+from __future__ import annotations
+
+import copy
+import fnmatch
+import json
+import math
+from typing import Any
+
+import pytest
+from hypothesis import assume, given, settings
+
+from chargeplan.api import load_battery_file, plan_file
+from chargeplan.demo import example_paths
+from chargeplan.errors import InputError
+from chargeplan.firmware import image
+from chargeplan.firmware.check import check_document, check_file
+from chargeplan.firmware.limits import LIMITS
+from chargeplan.firmware.setpoints import compute_digest, encode
+
+from .test_properties import battery_files
+
+CHEMISTRIES = ("flooded", "agm", "gel", "lifepo4", "nmc")
+
+#: (path pattern, +1 up / -1 down). The first matching pattern wins.
+DANGER: list[tuple[str, int]] = [
+    ("*.exits[*].current_below.current_mA", -1),  # tail current: the stage ends later
+    ("interlocks.charge_temperature_min_dC", -1),
+    ("interlocks.cool_zone.below_dC", -1),
+    ("temperature_compensation.range_min_dC", -1),
+    ("temperature_compensation.reference_dC", -1),
+    ("temperature_compensation.coefficient_uV_per_K_per_cell", -1),  # negative: larger size
+    ("*", +1),
+]
+
+#: Mutants that pass, and why no limit is crossed. Keys: (chemistry or "*", path pattern).
+NO_LIMIT: dict[tuple[str, str], str] = {
+    ("*", "stages[*].estimated_duration_s"): "an estimate, not a limit; only a timer shorter "
+    "than it is refused",
+    ("*", "stages[*].charge_mAh"): "an estimate, not a limit",
+    ("*", "stages[*].energy_mWh"): "an estimate, not a limit",
+    ("*", "planned_temperature_dC"): "any temperature inside the window may be planned; "
+    "compensation is bounded by its clamp range and the voltage interlock",
+    ("*", "temperature_table.step_dC"): "the step only spaces the rows; between rows firmware "
+    "takes the lower value of each column",
+    ("*", "temperature_table.rows[*].temperature_dC"): "a row may sit anywhere in the window "
+    "(rows at refused temperatures are left out); its limits are checked at its temperature",
+    ("*", "stages[*].timer_s"): "a timer 10 % longer stays inside every sourced limit (lead-acid "
+    "dwell at most 48 h, BU-403); no source bounds a lithium stage's timer",
+    ("*", "stages[*].exits[*].duration.duration_s"): "a duration 10 % longer stays inside the "
+    "stage's timer or the 48 h dwell",
+    ("*", "stages[*].exits[*].current_below.current_mA"): "a tail current 10 % lower stays above "
+    "the smallest sensible tail (BU-403 0.5 % of C lead-acid, BU-409 1 % of C lithium)",
+    ("*", "interlocks.current_max_mA"): "the current interlock may sit above the stage currents, "
+    "up to the chemistry's C-rate and the channel's maximum",
+    ("*", "interlocks.cool_zone.current_max_mA"): "inside the sourced cool-zone limit (lead-acid "
+    "0.3 It below 0 degC, BU-410; NMC 0.5 It, JEITA)",
+    ("*", "temperature_table.rows[*].current_max_mA"): "a row's current may reach the "
+    "chemistry's C-rate (rows outside the cool zone are not cut)",
+    ("*", "temperature_compensation.range_max_dC"): "the clamp's warm end only lowers voltages "
+    "further (a negative coefficient)",
+    ("*", "temperature_compensation.range_min_dC"): "a wider cold clamp is bounded by the voltage "
+    "interlock, which firmware never exceeds",
+    ("*", "temperature_compensation.reference_dC"): "the reference is informative: compensation "
+    "runs from the planned temperature",
+    ("*", "temperature_compensation.coefficient_uV_per_K_per_cell"): "-3.3 mV/K/cell lies inside "
+    "the sourced -3 to -5 (BU-410), with its margin",
+    ("flooded", "interlocks.charge_temperature_min_dC"): "the flooded minimum sits at the "
+    "electrolyte's freezing point (-15.6 degC here), above the -20 degC limit (BU-410)",
+    ("lifepo4", "battery.nominal_voltage_mV"): "13.2 V is within the 8 % a trade name may sit "
+    "from 4 x 3.2 V (common practice: 12.8 V LiFePO4 is sold as 12 V)",
+    ("lifepo4", "stages[*].voltage_mV"): "this charge stops at the storage voltage, 3.28 V/cell; "
+    "10 % more is 3.61 V/cell, still inside the 3.65 V/cell maximum",
+    ("lifepo4", "temperature_table.rows[*].charge_voltage_mV"): "as the stage voltage: 3.61 "
+    "V/cell is inside the 3.65 V/cell maximum",
+    ("nmc", "interlocks.warm_zone.above_dC"): "44 degC is inside JEITA's 45 degC warm-zone "
+    "boundary (the profile's 40 degC is tighter, common practice)",
+}
+
+
+def _leaves(node: Any, path: str = "") -> list[tuple[str, tuple]]:
+    """Every integer leaf: (display path, key path). An exit's path names its condition."""
+    out: list[tuple[str, tuple]] = []
+    if isinstance(node, dict):
+        for key, value in node.items():
+            if key == "digest":
+                continue
+            shown = f"{path}.{key}" if path else key
+            if "condition" in node and key not in ("condition", "then"):
+                shown = f"{path}.{node['condition']}.{key}"
+            out += [(s, (key, *k)) for s, k in _leaves(value, shown)]
+    elif isinstance(node, list):
+        for n, value in enumerate(node):
+            out += [(s, (n, *k)) for s, k in _leaves(value, f"{path}[{n}]")]
+    elif isinstance(node, int) and not isinstance(node, bool):
+        out.append((path, ()))
+    return out
+
+
+def _generic(path: str) -> str:
+    """The path with its list indices as '#', as the patterns write '[*]'."""
+    import re
+
+    return re.sub(r"\[\d+\]", "#", path)
+
+
+def _match(path: str, pattern: str) -> bool:
+    return fnmatch.fnmatchcase(_generic(path), pattern.replace("[*]", "#"))
+
+
+def _direction(path: str) -> int:
+    return next(sign for pattern, sign in DANGER if _match(path, pattern))
+
+
+def _moved(value: int, path: str) -> int:
+    unit = 10 if path.endswith(("_dC", "_dK")) else 1
+    step = max(math.ceil(abs(value) * 0.10), unit)
+    return value + _direction(path) * step
+
+
+def _set(doc: dict, keys: tuple, value: int) -> None:
+    node = doc
+    for key in keys[:-1]:
+        node = node[key]
+    node[keys[-1]] = value
+
+
+def _outcome(tmp_path, doc: dict, kind: str, battery) -> int:
+    path = tmp_path / f"mutant.{kind}"
+    try:
+        if kind == "json":
+            path.write_text(json.dumps(dict(doc, digest=compute_digest(doc))))
+        else:
+            path.write_bytes(image.encode(doc))
+        report = check_file(path, battery_file=battery)
+    except InputError:
+        return 2
+    return 0 if report.ok else 1
+
+
+def _allowed(chemistry: str, path: str) -> str | None:
+    for (chem, pattern), reason in NO_LIMIT.items():
+        if chem in ("*", chemistry) and _match(path, pattern):
+            return reason
+    return None
+
+
+def _specific_first() -> None:
+    """NO_LIMIT is searched in order: chemistry-specific entries are the reasons; a '*' entry
+    with the same pattern would hide a chemistry that should fail, so none may overlap."""
+    patterns = [pattern for chem, pattern in NO_LIMIT if chem != "*"]
+    assert not {pattern for chem, pattern in NO_LIMIT if chem == "*"} & set(patterns)
+
+
+@pytest.mark.parametrize("kind", ["json", "image"])
+def test_every_mutant_toward_danger_fails_or_is_listed(tmp_path, kind):
+    _specific_first()
+    passing, used = [], set()
+    for index, chemistry in enumerate(CHEMISTRIES):
+        source = example_paths()[index]
+        battery = load_battery_file(source)
+        doc = encode(plan_file(source))
+        if kind == "image":
+            doc = image.decode(image.encode(doc))
+        assert _outcome(tmp_path, doc, kind, battery) == 0, chemistry
+        for shown, keys in _leaves(doc):
+            mutant = copy.deepcopy(doc)
+            node = doc
+            for key in keys[:-1]:
+                node = node[key]
+            before = node[keys[-1]]
+            moved = _moved(before, shown)
+            _set(mutant, keys, moved)
+            if _outcome(tmp_path, mutant, kind, battery) != 0:
+                continue
+            reason = _allowed(chemistry, shown)
+            if reason is None:
+                passing.append(f"{chemistry} {kind} {shown}: {before} -> {moved}")
+            else:
+                used.add(reason)
+    assert not passing, "mutants toward danger that pass the checker:\n" + "\n".join(passing)
+    if kind == "json":
+        stale = set(NO_LIMIT.values()) - used
+        assert not stale, f"NO_LIMIT reasons no mutant needs any more: {sorted(stale)}"
+
+
+def test_the_checkers_table_matches_the_profiles_hard_envelopes():
+    """The checker's own limits (chargeplan/firmware/limits.py) are the bundled profiles'
+    hard envelopes, number for number, and never looser where they add a rule."""
+    from chargeplan.profiles import hard_envelope
+
+    for chemistry in CHEMISTRIES:
+        mine, env = LIMITS[chemistry], hard_envelope(chemistry)
+        assert mine.cell_max_mV == round(env.cell_voltage_max_v * 1000)
+        assert mine.current_max_it == pytest.approx(env.max_current_it)
+        assert mine.charge_min_dC == round(env.charge_temperature_min_c * 10)
+        assert mine.charge_max_dC == round(env.charge_temperature_max_c * 10)
+        assert set(env.forbidden_stages) <= mine.forbidden_stages
+        if env.cool_zone_below_c is not None and mine.cool_below_dC is not None:
+            assert mine.cool_below_dC <= round(env.cool_zone_below_c * 10)
+            assert env.cool_zone_current_it <= mine.cool_current_it + 1e-9
+        if env.warm_zone_above_c is not None:
+            assert mine.warm_above_dC >= round(env.warm_zone_above_c * 10)
+            assert env.warm_zone_cell_v * 1000 <= mine.warm_cell_max_mV
+
+
+def test_checks_run_one_at_a_time():
+    """Each check is a function on its own: a violation of one rule comes from its check."""
+    from chargeplan.firmware import check as module
+
+    doc = encode(plan_file(example_paths()[4]))
+    doc["interlocks"]["warm_zone"] = None
+    subject = module.Subject(doc, "json", LIMITS["nmc"], doc["battery"]["capacity_mAh"])
+    assert list(module.locks_warm_zone(subject)) == ["the nmc warm zone is missing"]
+    assert list(module.locks_cool_zone(subject)) == []
+    assert [v.code for v in check_document(doc)] == ["CK407"]
+
+
+@settings(max_examples=200, deadline=None)
+@given(data=battery_files())
+def test_every_plan_the_rules_make_passes_the_checker(data):
+    """No false refusals: any plan the rules emit (with its estimate and temperature table)
+    passes the independent checker with its battery file, as JSON and as an image."""
+    from chargeplan.engine.planner import plan_charge
+    from chargeplan.errors import PlanRefused
+    from chargeplan.estimate import estimate_plans
+    from chargeplan.firmware.tables import temperature_table
+    from chargeplan.model.battery import BatteryFile
+
+    battery_file = BatteryFile.model_validate(data)
+    try:
+        plan = plan_charge(battery_file)
+    except (PlanRefused, InputError):
+        assume(False)
+    estimate_plans([plan], battery_files=[battery_file])
+    plan.temperature_table = temperature_table(battery_file, plan, step_c=5.0)
+    plan.table_step_c = 5.0
+    doc = encode(plan)
+    assert check_document(doc, battery_file=battery_file) == []
+    back = image.decode(image.encode(doc))
+    assert check_document(back, battery_file=battery_file, kind="image") == []
+
+
+def test_the_contributor_guide_lists_every_check():
+    from pathlib import Path
+
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS
+
+    guide = (Path(__file__).resolve().parent.parent / "DEVELOPERS.md").read_text()
+    for check in FORM_CHECKS + CHECKS:
+        assert f"| {check.code} | `{check.__name__}` |" in guide, check.code
+
+
+def _doc(index: int) -> dict:
+    return encode(plan_file(example_paths()[index]))
+
+
+def _battery(index: int, **overrides):
+    """The example's battery file, with maker overrides given as their model values."""
+    battery = load_battery_file(example_paths()[index])
+    if not overrides:
+        return battery
+    new = battery.battery.overrides.model_copy(update=overrides)
+    return battery.model_copy(update={"battery": battery.battery.model_copy(
+        update={"overrides": new})})
+
+
+def _maker_current(text: str):
+    from chargeplan.model.battery import Overrides
+
+    return Overrides.model_validate({"max_charge_current": text}).max_charge_current
+
+
+def _channel(**fields):
+    from chargeplan.model.charger import ChargerChannel
+
+    return ChargerChannel.model_validate({"max_voltage": "16 V", "max_current": "10 A",
+                                          **fields})
+
+
+F, A, G, L, N = range(5)
+
+
+def _edit(index, change, **given):
+    def build():
+        doc = copy.deepcopy(_doc(index))
+        change(doc)
+        return doc, {k: v() for k, v in given.items()}
+    return build
+
+
+def _put(path, value):
+    def change(doc):
+        node = doc
+        for key in path[:-1]:
+            node = node[key]
+        node[path[-1]] = value
+    return change
+
+
+#: One hand edit per check, that the check alone must find (and not find before the edit).
+ONE_EACH = {
+    "CK101": _edit(N, _put(("version",), 99)),
+    "CK102": _edit(N, _put(("stages",), [])),
+    "CK103": _edit(N, _put(("cells_in_series",), 0)),
+    "CK104": _edit(N, _put(("finish",), "forever")),
+    "CK105": _edit(N, _put(("stages", 0, "current_mA"), 0)),
+    "CK201": _edit(F, _put(("battery", "cells_in_series"), 7)),
+    "CK202": _edit(F, _put(("battery", "nominal_voltage_mV"), 24000)),
+    "CK203": _edit(L, _put(("battery", "chemistry"), "nmc")),
+    "CK301": _edit(L, lambda d: d["stages"].append({**d["stages"][-1], "kind": "float"})),
+    "CK302": _edit(F, lambda d: d["stages"].reverse()),
+    "CK303": _edit(F, _put(("stages", 1, "voltage_mV"), 17000)),
+    "CK304": _edit(F, _put(("stages", 1, "voltage_mV"), 2450)),
+    "CK305": _edit(F, _put(("stages", 0, "current_mA"), 99999)),
+    "CK306": _edit(F, _put(("stages", 0, "current_mA"), 4900)),
+    "CK307": _edit(N, _put(("stages", 1, "timer_s"), None)),
+    "CK308": _edit(F, _put(("stages", 1, "timer_s"), 10)),
+    "CK309": _edit(F, _put(("stages", 1, "timer_s"), 3 * 86400)),
+    "CK310": _edit(F, _put(("stages", 0, "exits", 0, "voltage_mV"), 16000)),
+    "CK311": _edit(N, lambda d: d["stages"].insert(0, {**d["stages"][0], "kind": "precharge",
+                                                       "current_mA": 3000})),
+    "CK312": _edit(F, _put(("stages", 2, "voltage_mV"), 15006)),
+    "CK313": _edit(N, _put(("finish",), "hold")),
+    "CK314": _edit(L, _put(("stages", 0, "current_mA"), 21000)),
+    "CK401": _edit(F, _put(("interlocks", "charge_temperature_min_dC"), 600)),
+    "CK402": _edit(L, _put(("interlocks", "charge_temperature_min_dC"), -50)),
+    "CK403": _edit(N, _put(("interlocks", "cell_voltage_max_mV"), 4300)),
+    "CK404": _edit(N, _put(("interlocks", "battery_voltage_max_mV"), 12700)),
+    "CK405": _edit(N, _put(("interlocks", "current_max_mA"), 6000)),
+    "CK406": _edit(L, _put(("interlocks", "cool_zone"), None)),
+    "CK407": _edit(N, _put(("interlocks", "warm_zone"), None)),
+    "CK501": _edit(N, _put(("stages", 0, "compensated"), True)),
+    "CK502": _edit(F, _put(("temperature_compensation", "coefficient_uV_per_K_per_cell"), 3000)),
+    "CK503": _edit(F, _put(("temperature_compensation",), None)),
+    "CK601": _edit(F, lambda d: d["temperature_table"]["rows"].reverse()),
+    "CK602": _edit(F, _put(("temperature_table", "rows", 0, "charge_voltage_mV"), 17000)),
+    "CK603": _edit(L, _put(("temperature_table", "rows", 0, "current_max_mA"), 30000)),
+    "CK604": _edit(F, _put(("temperature_table", "rows", 5, "hold_voltage_mV"), 16000)),
+    "CK605": _edit(F, _put(("temperature_table", "rows", 5, "current_max_mA"), 5000)),
+    "CK701": _edit(L, _put(("battery", "chemistry"), "nmc"), battery_file=lambda: _battery(L)),
+    "CK702": _edit(N, _put(("battery", "capacity_mAh"), 50000), battery_file=lambda: _battery(N)),
+    "CK703": _edit(L, _put(("cells_in_series",), 5), battery_file=lambda: _battery(L)),
+    "CK704": _edit(N, lambda d: None, battery_file=lambda: _battery(
+        N, max_charge_current=_maker_current("1 A"))),
+    "CK705": _edit(F, lambda d: None, battery_file=lambda: _battery(
+        F, temperature_coefficient_mv_per_k_per_cell=-5.0)),
+    "CK801": _edit(N, lambda d: None, channel=lambda: _channel(max_voltage="12 V")),
+    "CK802": _edit(N, lambda d: None, channel=lambda: _channel(max_current="2 A")),
+    "CK803": _edit(N, lambda d: None, channel=lambda: _channel(voltage_step="0.25 V")),
+}
+
+
+def test_every_check_has_its_own_case():
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS
+
+    assert {check.code for check in FORM_CHECKS + CHECKS} == set(ONE_EACH)
+
+
+@pytest.mark.parametrize("code", sorted(ONE_EACH))
+def test_each_check_on_its_own(code):
+    from chargeplan.firmware.check import CHECKS, FORM_CHECKS, subject_for
+
+    check = next(c for c in FORM_CHECKS + CHECKS if c.code == code)
+    doc, given = ONE_EACH[code]()
+    found = list(check(subject_for(doc, **given)))
+    assert found, f"{code} found nothing in its case"
+    assert all(isinstance(line, str) and line for line in found)
+    # the unedited example passes the same check (against its own battery file, or a channel
+    # that can run it, where those are what the check reads)
+    index = next(i for i in range(5) if _doc(i)["battery"]["name"] == doc["battery"]["name"])
+    clean = {"battery_file": _battery(index)} if code.startswith("CK7") else {}
+    if code.startswith("CK8"):
+        clean = {"channel": _channel()}
+    assert list(check(subject_for(_doc(index), **clean))) == []
+
+
+def test_the_checker_shares_no_code_with_the_rules_or_the_profiles():
+    """Checking a document against its battery file and channel loads nothing of the rules
+    engine, the profiles, the safety check or the estimate (a fresh interpreter)."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    corpus = Path(__file__).parent / "corpus"
+    script = f"""
+import sys
+from chargeplan.firmware.check import check_file, load_channel_file
+from chargeplan.loading import read_mapping, validate
+from chargeplan.model.battery import BatteryFile
+path = {str(example_paths()[4])!r}
+battery = validate(BatteryFile, read_mapping(path, what="battery"), file=path)
+channel = load_channel_file({str(corpus / "channel" / "good-channel.yaml")!r})
+for name in ("lithium-no-timers.json", "nmc-warm-zone-removed.json"):
+    assert not check_file({str(corpus / "setpoints")!r} + "/" + name, battery_file=battery,
+                          channel=channel).ok
+print(" ".join(sorted(m for m in sys.modules if m.startswith((
+    "chargeplan.engine", "chargeplan.profiles", "chargeplan.safety", "chargeplan.estimate")))))
+"""
+    out = subprocess.run([sys.executable, "-c", script], check=True, capture_output=True,
+                         text=True).stdout
+    assert out.strip() == ""

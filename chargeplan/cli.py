@@ -134,9 +134,15 @@ def plan(
             from chargeplan.errors import InputError
 
             raise InputError("an image is binary", field="--output", fix="give -o FILE")
-        # the HTML page simulates with its time series below; the others estimate here
-        result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step,
-                           estimate=format is not Format.html)
+        # the firmware formats carry the charge program (the battery file without its
+        # state); the HTML page simulates with its time series below; the others estimate
+        if format in (Format.json, Format.c_header, Format.image):
+            from chargeplan.api import program_file
+
+            result = program_file(file, profiles=_profile_set(profiles), table_step_c=step)
+        else:
+            result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step,
+                               estimate=format is not Format.html)
         if quantisation_report:
             _report_quantisation(result)
         if format is Format.json:

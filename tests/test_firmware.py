@@ -10,7 +10,7 @@ import subprocess
 import pytest
 from typer.testing import CliRunner
 
-from chargeplan.api import plan_file
+from chargeplan.api import program_file
 from chargeplan.cli import app
 from chargeplan.demo import example_paths
 from chargeplan.firmware import image
@@ -35,7 +35,8 @@ def _crc32_bitwise(data: bytes) -> int:
 
 
 def _docs():
-    return [(path.name, *(lambda p: (p, encode(p)))(plan_file(path))) for path in example_paths()]
+    return [(path.name, *(lambda p: (p, encode(p)))(program_file(path)))
+            for path in example_paths()]
 
 
 def test_crc32_check_value():
@@ -60,7 +61,7 @@ def test_image_round_trip_and_crc(name, plan, doc):
 
 
 def test_every_single_bit_flip_is_detected():
-    doc = encode(plan_file(example_paths()[4]))
+    doc = encode(program_file(example_paths()[4]))
     data = image.encode(doc)
     for bit in range(len(data) * 8):
         flipped = bytearray(data)
@@ -70,7 +71,7 @@ def test_every_single_bit_flip_is_detected():
 
 
 def test_truncated_and_foreign_images_are_refused():
-    data = image.encode(encode(plan_file(example_paths()[0])))
+    data = image.encode(encode(program_file(example_paths()[0])))
     for cut in (0, 3, 12, 40, len(data) - 1):
         with pytest.raises(image.ImageError):
             image.decode(data[:cut])
@@ -80,7 +81,7 @@ def test_truncated_and_foreign_images_are_refused():
 
 @pytest.mark.skipif(shutil.which("cc") is None, reason="no C compiler (cc) on this machine")
 def test_c_header_compiles_and_carries_the_json_numbers(tmp_path):
-    plan = plan_file(example_paths()[0])
+    plan = program_file(example_paths()[0])
     doc = encode(plan)
     (tmp_path / "setpoints.h").write_text(render_c_header(plan, doc))
     (tmp_path / "main.c").write_text(r'''
@@ -126,7 +127,7 @@ int main(void) {
 def test_hostile_battery_name_cannot_break_the_header(tmp_path, write_yaml):
     name = "*/ #include <stdlib.h> /* x */ int evil; /*"
     path = write_yaml(battery(battery={"name": name}))
-    plan = plan_file(path)
+    plan = program_file(path)
     header = render_c_header(plan, encode(plan))
     assert "*/ #include" not in header
     (tmp_path / "setpoints.h").write_text(header)
@@ -137,7 +138,7 @@ def test_hostile_battery_name_cannot_break_the_header(tmp_path, write_yaml):
 
 
 def _good():
-    return encode(plan_file(example_paths()[0]))
+    return encode(program_file(example_paths()[0]))
 
 
 @pytest.mark.parametrize(
@@ -149,7 +150,7 @@ def _good():
         (lambda d: d["interlocks"].__setitem__("charge_temperature_min_dC", 600),
          "not below the maximum"),
         (lambda d: d["stages"][-1].__setitem__("voltage_mV", 16000), "at or above"),
-        (lambda d: d["stages"][2].__setitem__("timer_s", 10), "shorter than"),
+        (lambda d: d["stages"][1].__setitem__("timer_s", 10), "shorter than"),
         (lambda d: d["stages"].insert(0, {**d["stages"][1], "kind": "precharge",
                                           "current_mA": 9000}), "pre-charge current"),
     ],
@@ -163,7 +164,7 @@ def test_checker_refuses_unsafe_or_disordered_documents(change, fragment):
 
 def test_checker_lithium_rules():
     # BU-410 Table 1: no lithium charging below 0 degC; never equalization for lithium
-    doc = encode(plan_file(example_paths()[3]))
+    doc = encode(program_file(example_paths()[3]))
     assert check_document(doc) == []
     cold = copy.deepcopy(doc)
     cold["interlocks"]["charge_temperature_min_dC"] = -50

@@ -53,7 +53,9 @@ def _exit(stage: dict[str, Any], condition: str, key: str) -> tuple[int, int]:
 def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     """The header for ``doc`` (the encoded ``plan``)."""
     stages = []
-    for stage, encoded in zip(plan.stages, doc["stages"], strict=True):
+    # the document's stages are the plan's after its pre-charge (a block of its own)
+    planned = [stage for stage in plan.stages if stage.kind.value != "precharge"]
+    for stage, encoded in zip(planned, doc["stages"], strict=True):
         stages.append({
             "doc": encoded,
             "plan": stage,

@@ -97,15 +97,15 @@ def load_channel_file(path: str | Path) -> ChargerChannel:
 def _schema_violations(doc: dict[str, Any]) -> list[str]:
     from pydantic import ValidationError
 
-    from chargeplan.firmware.document import SetpointDocument
-    from chargeplan.model import SETPOINT_VERSION
+    from chargeplan.firmware.document import SetpointDocument, SetpointDocumentV3
 
-    if doc.get("version") != SETPOINT_VERSION:
+    models = {3: SetpointDocumentV3, 4: SetpointDocument}
+    if doc.get("version") not in models:
         return [f"version: {doc.get('version')!r} is not the setpoint format version this "
-                f"chargeplan reads ({SETPOINT_VERSION}); write the document again with "
+                "chargeplan reads (3 or 4); write the document again with "
                 "'chargeplan plan -f json'"]
     try:
-        SetpointDocument.model_validate(doc)
+        models[doc["version"]].model_validate(doc)
     except ValidationError as error:
         return [
             f"schema: {'.'.join(str(p) for p in e['loc'])}: {e['msg']}"
@@ -236,4 +236,8 @@ def check_file(
         if schema:
             return report
     report.violations += check_document(doc, battery_file=battery_file, channel=channel)
+    if doc.get("version") == 4:
+        from chargeplan.firmware.check_program import program_violations
+
+        report.violations += program_violations(doc)
     return report

@@ -311,6 +311,30 @@ def check(
 
 
 @app.command()
+def firmware(
+    output: Annotated[Path, typer.Option("--output", "-o", help="the folder to write the C "
+                                                                "sources into")],
+    battery: Annotated[Path | None, typer.Option(
+        "--battery", help="also write setpoints.bin, this battery file's charge program")] = None,
+    force: Annotated[bool, typer.Option(help="replace files that exist")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Write the reference implementation in portable C99 (make test runs its host test)."""
+    with _errors():
+        from chargeplan.firmware.reference import write_reference
+
+        data = None
+        if battery is not None:
+            from chargeplan.api import program_file
+            from chargeplan.firmware import image
+            from chargeplan.firmware.setpoints import encode
+
+            data = image.encode(encode(program_file(battery, profiles=_profile_set(profiles))))
+        names = write_reference(output, image=data, force=force)
+        typer.echo(f"wrote {output}/: {', '.join(names)}", err=True)
+
+
+@app.command()
 def thermistor(
     r25: Annotated[str, typer.Option("--r25", help="resistance at 25 degC, e.g. 10kohm")],
     beta: Annotated[float, typer.Option("--beta", help="B value in K, e.g. 3950")],

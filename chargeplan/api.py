@@ -9,7 +9,7 @@ from chargeplan.model.battery import BatteryFile
 from chargeplan.plan import ChargePlan
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["load_battery_file", "plan_file"]
+__all__ = ["load_battery_file", "plan_file", "program_file"]
 
 
 def load_battery_file(path: str | Path) -> BatteryFile:
@@ -51,3 +51,26 @@ def plan_file(
                                                    profiles=profiles)
         plan.table_step_c = table_step_c
     return plan
+
+
+def program_file(
+    path: str | Path,
+    *,
+    profiles: ProfileSet | None = None,
+    table_step_c: float | None = 5.0,
+) -> ChargePlan:
+    """The charge program for the kind of battery described in ``path`` (its ``state`` is
+    not used): what the setpoint document, the C header and the image carry.
+
+    Examples
+    --------
+    >>> from chargeplan.api import program_file
+    >>> from chargeplan.demo import example_paths
+    >>> program = program_file(example_paths()[4])
+    >>> [stage.kind.value for stage in program.stages]
+    ['precharge', 'bulk', 'absorption']
+    """
+    from chargeplan.firmware.charge_program import program_plan
+
+    return program_plan(load_battery_file(path), profiles=profiles, file=str(path),
+                        table_step_c=table_step_c)

@@ -144,9 +144,15 @@ def plan(
             from chargeplan.errors import InputError
 
             raise InputError("an image is binary", field="--output", fix="give -o FILE")
-        # the HTML page simulates with its time series below; the others estimate here
-        result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step,
-                           estimate=format is not Format.html)
+        # the firmware formats carry the charge program (the battery file without its
+        # state); the HTML page simulates with its time series below; the others estimate
+        if format in (Format.json, Format.c_header, Format.image):
+            from chargeplan.api import program_file
+
+            result = program_file(file, profiles=_profile_set(profiles), table_step_c=step)
+        else:
+            result = plan_file(file, profiles=_profile_set(profiles), table_step_c=step,
+                               estimate=format is not Format.html)
         if quantisation_report:
             _report_quantisation(result)
         if format is Format.json:
@@ -312,6 +318,30 @@ def check(
         typer.echo(f"{file}: refused: {len(report.violations)} violation"
                    f"{'s' if len(report.violations) != 1 else ''}; do not flash it", err=True)
         raise typer.Exit(1)
+
+
+@app.command()
+def firmware(
+    output: Annotated[Path, typer.Option("--output", "-o", help="the folder to write the C "
+                                                                "sources into")],
+    battery: Annotated[Path | None, typer.Option(
+        "--battery", help="also write setpoints.bin, this battery file's charge program")] = None,
+    force: Annotated[bool, typer.Option(help="replace files that exist")] = False,
+    profiles: ProfilePaths = None,
+) -> None:
+    """Write the reference implementation in portable C99 (make test runs its host test)."""
+    with _errors():
+        from chargeplan.firmware.reference import write_reference
+
+        data = None
+        if battery is not None:
+            from chargeplan.api import program_file
+            from chargeplan.firmware import image
+            from chargeplan.firmware.setpoints import encode
+
+            data = image.encode(encode(program_file(battery, profiles=_profile_set(profiles))))
+        names = write_reference(output, image=data, force=force)
+        typer.echo(f"wrote {output}/: {', '.join(names)}", err=True)
 
 
 @app.command()

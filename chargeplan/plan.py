@@ -186,6 +186,7 @@ class ChargePlan:
     quantisation: list[Quantised] = field(default_factory=list)  # rule CP405's changes
     temperature_table: list[Any] | None = None  # chargeplan.firmware.tables rows, when made
     table_step_c: float | None = None
+    program: Any | None = None  # chargeplan.firmware.charge_program.ProgramRules, when made
 
     def total_estimate(self) -> tuple[float, float, float] | None:
         """(seconds, Ah, Wh) of the stages that end, or None before estimation."""

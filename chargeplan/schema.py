@@ -31,7 +31,7 @@ SCHEMAS = {
     "setpoints.schema.json": (
         "chargeplan.firmware.document",
         "SetpointDocument",
-        "chargeplan setpoint document, version 3",
+        "chargeplan setpoint document, version 4 (a charge program)",
     ),
 }
 

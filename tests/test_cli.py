@@ -352,7 +352,7 @@ def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
     import subprocess
     import sys
 
-    from chargeplan.api import plan_file
+    from chargeplan.api import program_file
     from chargeplan.demo import example_paths
     from chargeplan.firmware.setpoints import to_json
 
@@ -361,7 +361,7 @@ def test_console_entry_point_runs_the_command_and_keeps_its_exit_code(tmp_path):
                            "--format", "json"], capture_output=True, text=True,
                           env=_entry_env(), cwd=tmp_path, check=False)
     assert done.returncode == 0, done.stderr
-    assert done.stdout == to_json(plan_file(example))
+    assert done.stdout == to_json(program_file(example))
     for module in ("chargeplan", "chargeplan.cli"):
         missing = subprocess.run([sys.executable, "-m", module, "plan", "absent.yaml"],
                                  capture_output=True, text=True, env=_entry_env(),

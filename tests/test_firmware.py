@@ -12,7 +12,7 @@ import subprocess
 import pytest
 from typer.testing import CliRunner
 
-from chargeplan.api import plan_file
+from chargeplan.api import program_file
 from chargeplan.cli import app
 from chargeplan.demo import example_paths
 from chargeplan.firmware import image
@@ -38,7 +38,8 @@ def _crc32_bitwise(data: bytes) -> int:
 
 
 def _docs():
-    return [(path.name, *(lambda p: (p, encode(p)))(plan_file(path))) for path in example_paths()]
+    return [(path.name, *(lambda p: (p, encode(p)))(program_file(path)))
+            for path in example_paths()]
 
 
 def test_crc32_check_value():
@@ -63,7 +64,7 @@ def test_image_round_trip_and_crc(name, plan, doc):
 
 
 def test_every_single_bit_flip_is_detected():
-    doc = encode(plan_file(example_paths()[4]))
+    doc = encode(program_file(example_paths()[4]))
     data = image.encode(doc)
     for bit in range(len(data) * 8):
         flipped = bytearray(data)
@@ -73,7 +74,7 @@ def test_every_single_bit_flip_is_detected():
 
 
 def test_truncated_and_foreign_images_are_refused():
-    data = image.encode(encode(plan_file(example_paths()[0])))
+    data = image.encode(encode(program_file(example_paths()[0])))
     for cut in (0, 3, 12, 40, len(data) - 1):
         with pytest.raises(image.ImageError):
             image.decode(data[:cut])
@@ -160,7 +161,7 @@ def _delta_mv(comp, cells, planned_dc, t_dc) -> int:
 @pytest.mark.parametrize("index", range(5))
 @pytest.mark.parametrize(("compiler", "flags"), [("gcc", C_FLAGS), ("g++", CXX_FLAGS)])
 def test_c_header_compiles_and_carries_the_json_numbers(tmp_path, index, compiler, flags):
-    plan = plan_file(example_paths()[index])
+    plan = program_file(example_paths()[index])
     doc = encode(plan)
     out = _compile_and_run(tmp_path, render_c_header(plan, doc), compiler, flags)
     lock = doc["interlocks"]
@@ -210,7 +211,7 @@ def test_c_header_compiles_and_carries_the_json_numbers(tmp_path, index, compile
 def test_hostile_battery_name_cannot_break_the_header(tmp_path, write_yaml, name, compiler,
                                                        flags):
     path = write_yaml(battery(battery={"name": name}))
-    plan = plan_file(path)
+    plan = program_file(path)
     header = render_c_header(plan, encode(plan))
     assert "*/ #include" not in header and "??" not in header
     assert "\\" not in c_comment(name)
@@ -234,7 +235,7 @@ def test_header_and_image_refuse_a_timer_their_field_cannot_hold(tmp_path, write
 
 
 def _good(index: int = 0):
-    return encode(plan_file(example_paths()[index]))
+    return encode(program_file(example_paths()[index]))
 
 
 def _codes(doc, **given):
@@ -416,9 +417,12 @@ def _patched_image(doc, offset_in_first_stage: int | None = None, value: int = 0
 
     data = bytearray(image.encode(doc))
     if offset_in_first_stage is not None:
-        # the first stage follows the header, the interlocks, compensation and the digest
+        # the first stage follows the header, the interlocks, compensation, the digest and
+        # (image format 2) the program block with its fault table
         start = sum(block.size for block in (image._HEAD, image._HEADER, image._LOCKS,
-                                             image._COMP, image._DIGEST))
+                                             image._COMP, image._DIGEST, image._PROGRAM,
+                                             image._COUNT))
+        start += image._FAULT.size * len(doc["faults"])
         data[start + offset_in_first_stage] = value
     body = bytes(data[:-4])
     return body + struct.pack("<I", zlib.crc32(body))
@@ -611,7 +615,7 @@ def test_a_makers_compensation_coefficient_is_held_to_the_battery_file(write_yam
                               charger={"max_voltage": "16 V", "max_current": "10 A",
                                        "temperature_probe": True,
                                        "can_disable_high_voltage_stages": True}))
-    doc = encode(plan_file(path))
+    doc = encode(program_file(path))
     assert doc["temperature_compensation"]["coefficient_uV_per_K_per_cell"] == -7000
     assert "CK502" in _codes(doc)
     given = {"battery_file": load_battery_file(path)}

@@ -49,8 +49,10 @@ def test_lithium_rows_never_below_zero_and_cut_when_cool():
 
 
 def test_table_in_the_document_rounds_toward_safety():
-    plan = _table(battery(battery={"capacity": "7.7 Ah"}, state={"state_of_charge": "50 %"}),
-                  step=2.5)
+    from chargeplan.firmware.charge_program import program_plan
+
+    data = battery(battery={"capacity": "7.7 Ah"}, state={"state_of_charge": "50 %"})
+    plan = program_plan(BatteryFile.model_validate(data), table_step_c=2.5, estimate=False)
     doc = encode(plan)
     table = doc["temperature_table"]
     assert table["step_dC"] == 25

@@ -60,11 +60,11 @@ def test_interlock_codes_round_toward_safety():
 def test_interlock_codes_come_from_the_documents_rounded_limits():
     # the document rounds the minimum up to 0.1 degC (toward safety); the code must be the
     # code of that rounded value, not of the plan's unrounded float
-    from chargeplan.api import plan_file
+    from chargeplan.api import program_file
     from chargeplan.demo import example_paths
     from chargeplan.firmware.setpoints import encode
 
-    plan = plan_file(example_paths()[0], estimate=False, table_step_c=None)
+    plan = program_file(example_paths()[0], table_step_c=None)
     lock = encode(plan)["interlocks"]
     table = thermistor_table(NTC, plan)
     codes = {row["name"]: row for row in table.interlocks}

@@ -66,7 +66,9 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     require_layout_exits(doc, "C header")
     require_fit(doc, fix=PLAN_FIX)
     stages = []
-    for stage, encoded in zip(plan.stages, doc["stages"], strict=True):
+    # the document's stages are the plan's after its pre-charge (a block of its own)
+    planned = [stage for stage in plan.stages if stage.kind.value != "precharge"]
+    for stage, encoded in zip(planned, doc["stages"], strict=True):
         stages.append({
             "doc": encoded,
             "plan": stage,

@@ -144,9 +144,9 @@ def form_version(s: Subject) -> Iterator[str]:
     """The setpoint format version is one this checker reads."""
     from chargeplan.model import SETPOINT_VERSION
 
-    if s.doc.get("version") != SETPOINT_VERSION:
+    if s.doc.get("version") not in (3, SETPOINT_VERSION):
         yield (f"version: {_q(s.doc.get('version'))} is not the setpoint format version this "
-               f"chargeplan reads ({SETPOINT_VERSION}); write the document again with "
+               f"chargeplan reads (3 or {SETPOINT_VERSION}); write the document again with "
                "'chargeplan plan'")
 
 
@@ -845,13 +845,14 @@ def load_channel_file(path: str | Path) -> ChargerChannel:
 def _schema_violations(doc: dict[str, Any]) -> list[Violation]:
     from pydantic import ValidationError
 
-    from chargeplan.firmware.document import SetpointDocument
+    from chargeplan.firmware.document import SetpointDocument, SetpointDocumentV3
 
     version = list(form_version(Subject(doc, "json", LIMITS["flooded"], 0)))
     if version:
         return [Violation("CK101", version[0])]
+    models = {3: SetpointDocumentV3, 4: SetpointDocument}
     try:
-        SetpointDocument.model_validate(doc)
+        models[doc["version"]].model_validate(doc)
     except ValidationError as error:
         return [
             Violation("CK100", f"schema: {'.'.join(str(p) for p in e['loc'])}: {e['msg']}")
@@ -882,4 +883,10 @@ def check_file(
         require_fit(doc, file=str(path))
     report.violations += check_document(doc, battery_file=battery_file, channel=channel,
                                         kind=kind)
+    if doc.get("version") == 4:
+        from chargeplan.firmware.check_program import program_violations
+
+        for finding in program_violations(doc):
+            code, _, text = finding.partition(": ")
+            report.violations.append(Violation(code, text))
     return report

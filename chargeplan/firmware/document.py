@@ -21,7 +21,13 @@ __all__ = [
     "CurrentExit",
     "DocumentBattery",
     "DurationExit",
+    "FaultEntry",
+    "Hysteresis",
+    "Precharge",
+    "ProgramStage",
+    "Restart",
     "SetpointDocument",
+    "SetpointDocumentV3",
     "SetpointInterlocks",
     "SetpointStage",
     "VoltageExit",
@@ -181,8 +187,8 @@ class DocumentBattery(_Doc):
     nominal_voltage_mV: int = Field(gt=0)
 
 
-class SetpointDocument(_Doc):
-    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 3).
+class SetpointDocumentV3(_Doc):
+    """A chargeplan setpoint document of version 3 (read by ``chargeplan check``).
 
     Version 2 added each stage's estimates (``estimated_duration_s``, ``charge_mAh``,
     ``energy_mWh``); version 3 the ``temperature_table``."""
@@ -198,4 +204,86 @@ class SetpointDocument(_Doc):
     interlocks: SetpointInterlocks
     temperature_compensation: CompensationTable | None
     temperature_table: TemperatureTable | None
+    digest: str = Field(pattern=r"^sha256:[0-9a-f]{64}$")
+
+
+ProgramStageKind = Literal["bulk", "absorption", "float", "storage_hold"]
+
+
+class ProgramStage(SetpointStage):
+    """A stage of a charge program: never a pre-charge (that is ``precharge``), never an
+    operator-requested equalization or desulfation."""
+
+    kind: ProgramStageKind  # type: ignore[assignment]
+
+
+class Precharge(_Doc):
+    """At connection, a battery resting below ``below_voltage_mV`` is pre-charged at
+    ``current_mA`` until it reaches that voltage; still below it after ``timer_s`` is the
+    ``stage_timer`` fault. Above it, the charge starts at the first stage. All three 0: no
+    pre-charge (lead-acid takes the bulk current from the start, BU-403)."""
+
+    below_voltage_mV: int = Field(ge=0)
+    current_mA: int = Field(ge=0)
+    timer_s: int = Field(ge=0)
+
+
+class Restart(_Doc):
+    """When charging starts again from the first stage (bulk).
+
+    ``rest_below``: after a charge that stops, the battery's rest voltage stays below
+    ``voltage_mV`` for ``filter_s``. ``float_below``: on float (or a storage hold), the
+    battery voltage stays below ``voltage_mV`` for ``filter_s`` (it cannot hold float)."""
+
+    voltage_mV: int = Field(gt=0)
+    condition: Literal["rest_below", "float_below"]
+    filter_s: int = Field(ge=0)
+
+
+class FaultEntry(_Doc):
+    """One fault the program watches (codes: ``chargeplan.firmware.faults``). ``latch``
+    stops until a person resets the charger; ``pause`` resumes by itself once the cause has
+    cleared by the ``hysteresis``. ``no_battery`` carries its ``below_voltage_mV`` and
+    ``wrong_cell_count`` its ``above_voltage_mV`` (judged at connection, no current)."""
+
+    code: int = Field(ge=1, le=255)
+    name: str = Field(pattern=r"^[a-z_]{1,40}$")
+    action: Literal["latch", "pause"]
+    below_voltage_mV: int | None = Field(default=None, gt=0)
+    above_voltage_mV: int | None = Field(default=None, gt=0)
+
+
+class Hysteresis(_Doc):
+    """A temperature pause resumes ``temperature_margin_dK`` (0.1 K) inside the limit that
+    stopped it; a voltage or current trip counts only after it has lasted
+    ``voltage_filter_s``."""
+
+    temperature_margin_dK: int = Field(gt=0)
+    voltage_filter_s: int = Field(ge=0, le=60)
+
+
+class SetpointDocument(_Doc):
+    """A chargeplan setpoint document (format ``chargeplan-setpoints``, version 4): a charge
+    program for any battery of its kind, valid at connection whatever the battery's state,
+    at every temperature of its table.
+
+    Version 2 added each stage's estimates; version 3 the ``temperature_table``; version 4
+    makes it a program: ``precharge``, ``restart``, ``faults`` and ``hysteresis``, the fault
+    guards among the exits, and every safety timer longer than its stage's duration exit."""
+
+    format: Literal["chargeplan-setpoints"]
+    version: Literal[4]
+    generator: str
+    battery: DocumentBattery
+    cells_in_series: int = Field(ge=1)
+    planned_temperature_dC: int
+    precharge: Precharge
+    stages: list[ProgramStage] = Field(min_length=1)
+    finish: Literal["stop", "hold"]
+    restart: Restart
+    interlocks: SetpointInterlocks
+    temperature_compensation: CompensationTable | None
+    temperature_table: TemperatureTable | None
+    faults: list[FaultEntry] = Field(min_length=1)
+    hysteresis: Hysteresis
     digest: str = Field(pattern=r"^sha256:[0-9a-f]{64}$")

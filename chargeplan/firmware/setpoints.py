@@ -1,7 +1,12 @@
-"""Encode a plan as the neutral setpoint document; rounding never moves a limit toward danger.
+"""Encode a charge program as the neutral setpoint document; rounding never moves a limit
+toward danger.
 
 Voltage and current limits, timers and durations round down; tail currents and
-minimum temperatures round up; maximum temperatures round down.
+minimum temperatures round up; maximum temperatures round down. A document (version 4)
+is a charge program: the plan made by
+:func:`chargeplan.firmware.charge_program.program_plan`, whose pre-charge moves out of
+the stage list into ``precharge`` (run at connection below its voltage), with the
+restart, fault and hysteresis rules beside it.
 """
 
 from __future__ import annotations
@@ -13,7 +18,7 @@ from typing import Any
 
 from chargeplan.model import SETPOINT_FORMAT as FORMAT
 from chargeplan.model import SETPOINT_VERSION as VERSION
-from chargeplan.plan import ChargePlan, Exit, ExitKind, Stage
+from chargeplan.plan import ChargePlan, Exit, ExitKind, Interlocks, Stage, StageKind
 
 __all__ = ["FORMAT", "VERSION", "canonical_bytes", "compute_digest", "encode", "to_json"]
 
@@ -88,12 +93,71 @@ def compute_digest(document: dict[str, Any]) -> str:
     return "sha256:" + hashlib.sha256(canonical_bytes(document)).hexdigest()
 
 
+def _program(plan: ChargePlan) -> dict[str, Any]:
+    """The program's own blocks: pre-charge, restart, faults and hysteresis."""
+    from chargeplan.firmware.faults import FAULTS
+
+    rules = plan.program
+    faults: list[dict[str, Any]] = []
+    for fault in FAULTS:
+        entry: dict[str, Any] = {"code": fault.code, "name": fault.name, "action": fault.action}
+        if fault.name == "no_battery":  # waits longer: rounds up
+            entry["below_voltage_mV"] = up(rules.no_battery_below_v, 1000)
+        elif fault.name == "wrong_cell_count":  # latches sooner: rounds down
+            entry["above_voltage_mV"] = down(rules.cells_above_v, 1000)
+        faults.append(entry)
+    return {
+        "precharge": {
+            "below_voltage_mV": down(rules.precharge_below_v, 1000),
+            "current_mA": down(rules.precharge_current_a, 1000),
+            "timer_s": down(rules.precharge_timer_s, 1),
+        },
+        "restart": {
+            "voltage_mV": down(rules.restart_v, 1000),
+            "condition": rules.restart_condition,
+            "filter_s": rules.restart_filter_s,
+        },
+        "faults": faults,
+        "hysteresis": {
+            "temperature_margin_dK": up(rules.temperature_margin_k, 10),
+            "voltage_filter_s": rules.voltage_filter_s,
+        },
+    }
+
+
+def encode_interlocks(lock: Interlocks) -> dict[str, Any]:
+    """The interlocks in the document's integers, each rounded toward safety."""
+    return {
+        "charge_temperature_min_dC": up(lock.charge_temperature_min_c, 10),
+        "charge_temperature_max_dC": down(lock.charge_temperature_max_c, 10),
+        "cell_voltage_max_mV": down(lock.cell_voltage_max_v, 1000),
+        "battery_voltage_max_mV": down(lock.battery_voltage_max_v, 1000),
+        "current_max_mA": down(lock.current_max_a, 1000),
+        "cool_zone": None
+        if lock.cool_zone_below_c is None or lock.cool_zone_current_max_a is None
+        else {
+            "below_dC": up(lock.cool_zone_below_c, 10),
+            "current_max_mA": down(lock.cool_zone_current_max_a, 1000),
+        },
+        "warm_zone": None
+        if lock.warm_zone_above_c is None or lock.warm_zone_cell_voltage_max_v is None
+        else {
+            "above_dC": down(lock.warm_zone_above_c, 10),
+            "cell_voltage_max_mV": down(lock.warm_zone_cell_voltage_max_v, 1000),
+        },
+    }
+
+
 def encode(plan: ChargePlan) -> dict[str, Any]:
-    """The setpoint document of ``plan`` as a JSON-ready dict (with its digest)."""
+    """The setpoint document of the charge program ``plan`` as a JSON-ready dict (with its
+    digest). ``plan`` comes from :func:`~chargeplan.firmware.charge_program.program_plan`;
+    a plan for one battery's state is not a program and raises ValueError."""
     from chargeplan import __version__
 
+    if plan.program is None:
+        raise ValueError("the setpoint document is a charge program: make the plan with "
+                         "chargeplan.firmware.charge_program.program_plan")
     b = plan.battery
-    lock = plan.interlocks
     comp = plan.compensation
     document: dict[str, Any] = {
         "format": FORMAT,
@@ -120,27 +184,10 @@ def encode(plan: ChargePlan) -> dict[str, Any]:
                 **_estimate(stage),
             }
             for stage in plan.stages
+            if stage.kind != StageKind.PRECHARGE
         ],
         "finish": plan.finish,
-        "interlocks": {
-            "charge_temperature_min_dC": up(lock.charge_temperature_min_c, 10),
-            "charge_temperature_max_dC": down(lock.charge_temperature_max_c, 10),
-            "cell_voltage_max_mV": down(lock.cell_voltage_max_v, 1000),
-            "battery_voltage_max_mV": down(lock.battery_voltage_max_v, 1000),
-            "current_max_mA": down(lock.current_max_a, 1000),
-            "cool_zone": None
-            if lock.cool_zone_below_c is None or lock.cool_zone_current_max_a is None
-            else {
-                "below_dC": up(lock.cool_zone_below_c, 10),
-                "current_max_mA": down(lock.cool_zone_current_max_a, 1000),
-            },
-            "warm_zone": None
-            if lock.warm_zone_above_c is None or lock.warm_zone_cell_voltage_max_v is None
-            else {
-                "above_dC": down(lock.warm_zone_above_c, 10),
-                "cell_voltage_max_mV": down(lock.warm_zone_cell_voltage_max_v, 1000),
-            },
-        },
+        "interlocks": encode_interlocks(plan.interlocks),
         "temperature_compensation": None
         if comp is None
         else {
@@ -151,6 +198,7 @@ def encode(plan: ChargePlan) -> dict[str, Any]:
         },
     }
     document["temperature_table"] = _table(plan)
+    document.update(_program(plan))
     document["digest"] = compute_digest(document)
     return document
 

@@ -103,9 +103,9 @@ def _check_monotonic(divider: Divider, low_c: float, high_c: float) -> None:
 
 def _interlock_points(plan: ChargePlan) -> list[tuple[str, int, object]]:
     """The document's own rounded limits (dC), each with its rounding toward safety."""
-    from chargeplan.firmware.setpoints import encode
+    from chargeplan.firmware.setpoints import encode_interlocks
 
-    lock = encode(plan)["interlocks"]
+    lock = encode_interlocks(plan.interlocks)
     points = [("charge_temperature_min", lock["charge_temperature_min_dC"], math.floor),
               ("charge_temperature_max", lock["charge_temperature_max_dC"], math.ceil)]
     if lock["cool_zone"]:

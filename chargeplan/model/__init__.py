@@ -2,4 +2,4 @@
 
 #: The setpoint document's format name and version (schema: ``firmware/document.py``).
 SETPOINT_FORMAT = "chargeplan-setpoints"
-SETPOINT_VERSION = 3
+SETPOINT_VERSION = 4

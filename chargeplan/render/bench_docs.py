@@ -145,11 +145,14 @@ def bench_document(plan: BenchPlan, *, html: bool = False) -> str:
 
 def setpoint_files(plan: BenchPlan) -> dict[str, str]:
     """``setpoints/<battery>.json`` for each battery on a channel that loads files."""
+    from chargeplan.firmware.charge_program import program_plan
     from chargeplan.firmware.setpoints import to_json
+    from chargeplan.planners.bench import _battery_file
 
     files = {}
     for job in plan.jobs:
-        if plan.bench.channels[job.channel].loads_files:
-            files[file_name(plan, job.battery)] = to_json(plan.plans[(job.battery,
-                                                                      job.channel)])
+        channel = plan.bench.channels[job.channel]
+        if channel.loads_files:  # the channel's firmware runs the charge program
+            program = program_plan(_battery_file(plan.batteries[job.battery], channel))
+            files[file_name(plan, job.battery)] = to_json(program)
     return files

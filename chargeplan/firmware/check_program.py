@@ -1,0 +1,199 @@
+"""The rules a version-4 setpoint document (a charge program) must also keep.
+
+A tuple of small named checks, each reading only the document; each finding starts with
+its rule id (``P4nn``). :func:`program_violations` runs them all; ``check.py`` calls it
+for every version-4 document, JSON or image.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from typing import Any
+
+__all__ = ["PROGRAM_CHECKS", "program_violations"]
+
+Doc = dict[str, Any]
+
+#: A stage that is only asked for by an operator, never run by a program by itself.
+_OPERATOR_STAGES = frozenset({"equalization", "desulfation"})
+#: The kinds a program's stage list may hold (the pre-charge is its own block).
+_PROGRAM_KINDS = frozenset({"bulk", "absorption", "float", "storage_hold"})
+#: An Ah cap on a program is a multiple of the rated capacity: at least the whole capacity
+#: (a flat battery must be able to charge), at most twice it (lead-acid returns at most
+#: 1.10-1.30 Ah per Ah taken out, common practice: a cap above 2x caps nothing).
+_CAP_RANGE = (1.0, 2.0)
+#: The longest a voltage or current trip may be filtered (common practice: seconds).
+_FILTER_MAX_S = 10
+#: The widest temperature resume margin (0.1 K) that still leaves a usable window.
+_MARGIN_MAX_DK = 100
+
+
+def _held(doc: Doc, index: int) -> bool:
+    """The last stage of a document that holds, and has no exit: it runs until unplugged."""
+    stage = doc["stages"][index]
+    return (doc["finish"] == "hold" and index == len(doc["stages"]) - 1
+            and not any(e["then"] in ("next", "stop") for e in stage["exits"]))
+
+
+def stage_kinds(doc: Doc) -> Iterator[str]:
+    """P401: a program's stages are bulk, absorption, float or a storage hold."""
+    for n, stage in enumerate(doc["stages"], 1):
+        if stage["kind"] in _OPERATOR_STAGES:
+            yield (f"P401: stage {n} ({stage['kind']}) is operator-requested: never automatic "
+                   "in a charge program")
+        elif stage["kind"] not in _PROGRAM_KINDS:
+            yield (f"P401: stage {n} ({stage['kind']}) does not belong in a program's stages "
+                   "(a pre-charge is the 'precharge' block)")
+
+
+def precharge_below_charge(doc: Doc) -> Iterator[str]:
+    """P402: the pre-charge sits below the first stage, at no more than its current."""
+    pre, first = doc["precharge"], doc["stages"][0]
+    if pre["below_voltage_mV"] >= first["voltage_mV"]:
+        yield (f"P402: precharge.below_voltage_mV {pre['below_voltage_mV']} is not below the "
+               f"first stage's {first['voltage_mV']} mV")
+    if pre["current_mA"] > first["current_mA"]:
+        yield (f"P402: precharge.current_mA {pre['current_mA']} is above the first stage's "
+               f"{first['current_mA']} mA")
+    cool = doc["interlocks"]["cool_zone"]
+    if cool and pre["current_mA"] > cool["current_max_mA"]:
+        yield "P402: precharge.current_mA is above the cool zone's current"
+
+
+def precharge_timer(doc: Doc) -> Iterator[str]:
+    """P403: the pre-charge timer is set and puts in at most the rated capacity."""
+    pre = doc["precharge"]
+    if pre["below_voltage_mV"] == pre["current_mA"] == pre["timer_s"] == 0:
+        if doc["battery"]["chemistry"] in ("lifepo4", "nmc"):
+            yield "P403: a lithium program needs its pre-charge (BU-808a); it is switched off"
+        return  # switched off: lead-acid takes the bulk current from the start (BU-403)
+    if not pre["timer_s"] or pre["timer_s"] <= 0:
+        yield "P403: precharge.timer_s must be a positive number of seconds"
+        return
+    charge_mah = pre["timer_s"] * pre["current_mA"] / 3600
+    if charge_mah > doc["battery"]["capacity_mAh"]:
+        yield (f"P403: the pre-charge may put in {charge_mah:.0f} mAh before its timer, more "
+               f"than the rated {doc['battery']['capacity_mAh']} mAh")
+
+
+def timers_beyond_exits(doc: Doc) -> Iterator[str]:
+    """P404: every stage that ends has a timer, strictly longer than its duration exit."""
+    for n, stage in enumerate(doc["stages"], 1):
+        timer = stage["timer_s"]
+        if timer is None:
+            if not _held(doc, n - 1):
+                yield f"P404: stage {n} ({stage['kind']}) ends but has no safety timer"
+            continue
+        for e in stage["exits"]:
+            if e["condition"] == "duration" and timer <= e["duration_s"]:
+                yield (f"P404: stage {n} ({stage['kind']}) timer {timer} s is not longer than "
+                       f"its duration exit {e['duration_s']} s")
+
+
+def caps_on_rated_capacity(doc: Doc) -> Iterator[str]:
+    """P405: an Ah cap is a multiple of the rated capacity, not of one state's charge."""
+    capacity = doc["battery"]["capacity_mAh"]
+    low, high = _CAP_RANGE
+    for n, stage in enumerate(doc["stages"], 1):
+        for e in stage["exits"]:
+            if e["condition"] == "charge_above" and not (
+                    low * capacity <= e["charge_mAh"] <= high * capacity):
+                yield (f"P405: stage {n} Ah cap {e['charge_mAh']} mAh is outside {low:g}-"
+                       f"{high:g} x the rated {capacity} mAh")
+
+
+#: Lead-acid goes back to bulk from float only when it cannot hold about 2.08-2.12 V/cell
+#: (common practice, from memory); 2.13 V/cell allows a 10 mV/cell margin above that range.
+_FLOAT_RESTART_MAX_MV = 2130
+
+
+def restart_rule(doc: Doc) -> Iterator[str]:
+    """P406: the restart matches the finish and lies below the voltage it returns from."""
+    restart, stages = doc["restart"], doc["stages"]
+    wanted = "float_below" if doc["finish"] == "hold" else "rest_below"
+    if restart["condition"] != wanted:
+        yield (f"P406: restart.condition is {restart['condition']} but the program finishes "
+               f"with '{doc['finish']}' ({wanted})")
+    last = stages[-1]["voltage_mV"]
+    if restart["voltage_mV"] >= last:
+        yield (f"P406: restart.voltage_mV {restart['voltage_mV']} is not below the "
+               f"{last} mV the charge ends on: it would restart at once, again and again")
+    if restart["voltage_mV"] <= doc["precharge"]["below_voltage_mV"]:
+        yield "P406: restart.voltage_mV is at or below the pre-charge voltage"
+    cells = doc.get("cells_in_series") or 1
+    high = restart["voltage_mV"] > _FLOAT_RESTART_MAX_MV * cells
+    if restart["condition"] == "float_below" and high:
+        yield (f"P406: restart.voltage_mV {restart['voltage_mV']} is above "
+               f"{_FLOAT_RESTART_MAX_MV} mV/cell: a battery on float would go back to bulk "
+               "while it is still full")
+
+
+def faults_complete(doc: Doc) -> Iterator[str]:
+    """P407: every fault of the table, each with its own code, and latched where it must."""
+    from chargeplan.firmware.faults import FAULT_CODES, LATCH_ONLY
+
+    entries = doc["faults"]
+    codes = [f["code"] for f in entries]
+    if len(set(codes)) != len(codes):
+        yield "P407: fault codes are not unique"
+    by_name = {f["name"]: f for f in entries}
+    for name, code in FAULT_CODES.items():
+        entry = by_name.get(name)
+        if entry is None:
+            yield f"P407: the fault '{name}' is missing"
+            continue
+        if entry["code"] != code:
+            yield f"P407: fault '{name}' has code {entry['code']}; its code is {code}"
+        if name in LATCH_ONLY and entry["action"] != "latch":
+            yield f"P407: fault '{name}' must latch, not {entry['action']}"
+
+
+def connection_thresholds(doc: Doc) -> Iterator[str]:
+    """P408: no battery below the pre-charge; a wrong cell count above a rested battery."""
+    by_name = {f["name"]: f for f in doc["faults"]}
+    none = by_name.get("no_battery", {}).get("below_voltage_mV")
+    more = by_name.get("wrong_cell_count", {}).get("above_voltage_mV")
+    if none is None or more is None:
+        yield "P408: no_battery needs below_voltage_mV and wrong_cell_count above_voltage_mV"
+        return
+    if doc["precharge"]["below_voltage_mV"] and none >= doc["precharge"]["below_voltage_mV"]:
+        yield "P408: no_battery.below_voltage_mV is not below the pre-charge voltage"
+    if more <= doc["battery"]["nominal_voltage_mV"]:
+        yield ("P408: wrong_cell_count.above_voltage_mV is not above the nominal voltage: "
+               "every battery would latch")
+    if more > doc["interlocks"]["battery_voltage_max_mV"]:
+        yield "P408: wrong_cell_count.above_voltage_mV is above the voltage interlock"
+
+
+def hysteresis_window(doc: Doc) -> Iterator[str]:
+    """P409: a pause resumes inside the window; a trip is filtered for seconds at most."""
+    hyst, lock = doc["hysteresis"], doc["interlocks"]
+    margin = hyst["temperature_margin_dK"]
+    if not 0 < margin <= _MARGIN_MAX_DK:
+        yield f"P409: temperature_margin_dK {margin} is outside 1-{_MARGIN_MAX_DK}"
+    elif (lock["charge_temperature_min_dC"] + margin
+          >= lock["charge_temperature_max_dC"] - margin):
+        yield "P409: the temperature margins close the charge window"
+    if not 0 <= hyst["voltage_filter_s"] <= _FILTER_MAX_S:
+        yield (f"P409: voltage_filter_s {hyst['voltage_filter_s']} is outside 0-"
+               f"{_FILTER_MAX_S} s: an over-voltage would be held too long")
+
+
+PROGRAM_CHECKS: tuple[Callable[[Doc], Iterator[str]], ...] = (
+    stage_kinds,
+    precharge_below_charge,
+    precharge_timer,
+    timers_beyond_exits,
+    caps_on_rated_capacity,
+    restart_rule,
+    faults_complete,
+    connection_thresholds,
+    hysteresis_window,
+)
+
+
+def program_violations(doc: Doc) -> list[str]:
+    """Every way the version-4 ``doc`` breaks a program rule (empty when none)."""
+    if not doc.get("stages"):
+        return ["P401: a program has no stages"]
+    return [finding for check in PROGRAM_CHECKS for finding in check(doc)]

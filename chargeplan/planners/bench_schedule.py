@@ -1,0 +1,232 @@
+"""The bench's scheduling kernel: pure, on numbers (minutes from the first day's midnight).
+
+Longest-first list scheduling (due times first, most constrained first, longest first; the
+best of the three), each battery on the compatible channel where it finishes earliest. A
+job starts only inside working hours (someone connects it), not before its release (its
+warm-up, or the moment of re-planning), and when the room's ventilation (IEC 62485-2 cl. 7)
+and the mains budget allow; on an attended channel it also ends inside the same working
+span. Work that does not fit goes to the next working span. A local search then moves the
+last-finishing battery while that ends the bench sooner. Jobs already on charge never move.
+"""
+
+from __future__ import annotations
+
+import math
+from bisect import bisect_right, insort
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from chargeplan.planners.bench_calendar import WorkCalendar
+
+__all__ = ["LOCAL_SEARCH_MOVES", "Job", "Problem", "lower_bound", "peaks", "schedule"]
+
+#: The most moves the local search makes (each moves the last-finishing battery).
+LOCAL_SEARCH_MOVES = 50
+_EPS = 1e-6
+
+
+@dataclass
+class Job:
+    battery: int
+    channel: int
+    start_min: float
+    end_min: float
+    airflow_m3_per_h: float
+    power_w: float
+    staggered: bool = False  # started later than its channel was free, for the room's limits
+    on_charge: bool = False  # already on charge when re-planned: it keeps channel and start
+
+
+@dataclass
+class Problem:
+    duration: dict[tuple[int, int], float]  # minutes, for each battery and channel that fit
+    power: dict[tuple[int, int], float]  # mains W
+    airflow: dict[tuple[int, int], float]  # m3/h
+    release: list[float]  # the earliest start of each battery
+    due: list[float]  # minutes, math.inf when none
+    attended: list[bool]  # per channel
+    calendar: WorkCalendar
+    room: float
+    budget: float
+    channel_free: list[float]  # when each channel is first free
+    fixed: list[Job] = field(default_factory=list)
+
+    def channels_of(self) -> dict[int, list[int]]:
+        by: dict[int, list[int]] = {}
+        for (i, c) in self.duration:
+            by.setdefault(i, []).append(c)
+        return by
+
+
+def _ending_after(placed: list[Job], t: float) -> list[Job]:
+    """The placed jobs (sorted by end) that end after ``t``."""
+    return placed[bisect_right(placed, t, key=lambda j: j.end_min):]
+
+
+def _resources_ok(later: list[Job], start: float, stop: float, air: float, watts: float,
+                  room: float, budget: float) -> bool:
+    near = [j for j in later if j.start_min < stop and j.end_min > start]
+    if not near:
+        return True
+    starts = np.fromiter((j.start_min for j in near), float, len(near))
+    ends = np.fromiter((j.end_min for j in near), float, len(near))
+    points = np.concatenate(([start], starts[(starts > start) & (starts < stop)]))
+    inside = (starts[None, :] <= points[:, None]) & (points[:, None] < ends[None, :])
+    used_air = inside @ np.fromiter((j.airflow_m3_per_h for j in near), float, len(near))
+    used_w = inside @ np.fromiter((j.power_w for j in near), float, len(near))
+    return bool((used_air.max() + air <= room + 1e-9) and (used_w.max() + watts
+                                                           <= budget + 1e-9))
+
+
+def earliest(p: Problem, placed: list[Job], t0: float, minutes: float, air: float,
+             watts: float, attended: bool, limits: tuple[float, float]) -> float | None:
+    """The earliest working moment at or after ``t0`` where the job fits: tried at ``t0``,
+    at each later end of a placed job and at each later opening."""
+    room, budget = limits
+    if air > room + 1e-9 or watts > budget + 1e-9:
+        return None
+    later = _ending_after(placed, t0)
+    bounded = math.isfinite(room) or math.isfinite(budget)
+    times = {t0, *p.calendar.openings_after(t0)}
+    if bounded:
+        times.update(j.end_min for j in later if j.end_min > t0)
+    for t in sorted(times):
+        got = p.calendar.next_start(t)
+        if got is None:
+            return None
+        start, close = got
+        if attended and start + minutes > close + _EPS:
+            continue
+        if not bounded or _resources_ok(later, start, start + minutes, air, watts, room, budget):
+            return start
+    return None
+
+
+def _place(p: Problem, i: int, channels: list[int], free: list[float], placed: list[Job],
+           limits: tuple[float, float]) -> Job | None:
+    """The compatible channel where battery i finishes earliest (channels in order of their
+    earliest possible finish; stops once no later channel can beat the best found)."""
+    best: Job | None = None
+
+    def ready(c: int) -> float:
+        return max(free[c], p.release[i])
+
+    for c in sorted(channels, key=lambda c: ready(c) + p.duration[(i, c)]):
+        minutes = p.duration[(i, c)]
+        if best is not None and ready(c) + minutes >= best.end_min:
+            break
+        start = earliest(p, placed, ready(c), minutes, p.airflow[(i, c)], p.power[(i, c)],
+                         p.attended[c], limits)
+        if start is None:
+            continue
+        job = Job(i, c, start, start + minutes, p.airflow[(i, c)], p.power[(i, c)],
+                  staggered=start > p.calendar.next_start(ready(c))[0] + 1e-9)  # type: ignore[index]
+        if best is None or job.end_min < best.end_min:
+            best = job
+    return best
+
+
+def _limits(p: Problem, by: dict[int, list[int]]) -> tuple[float, float]:
+    """The room and the budget, or infinity where even the largest set of batteries that can
+    run at once (one a channel) stays inside, so that they need no checking."""
+    top = len(p.attended)
+    most_air = sum(sorted(max(p.airflow[(i, c)] for c in cs) for i, cs in by.items())[-top:])
+    most_w = sum(sorted(max(p.power[(i, c)] for c in cs) for i, cs in by.items())[-top:])
+    most_air += sum(j.airflow_m3_per_h for j in p.fixed)
+    most_w += sum(j.power_w for j in p.fixed)
+    return (math.inf if most_air <= p.room + 1e-9 else p.room,
+            math.inf if most_w <= p.budget + 1e-9 else p.budget)
+
+
+def _list_schedule(p: Problem, order: list[int], by: dict[int, list[int]],
+                   limits: tuple[float, float]) -> tuple[list[Job], list[int]]:
+    jobs = sorted(p.fixed, key=lambda j: j.end_min)
+    free = list(p.channel_free)
+    for j in p.fixed:
+        free[j.channel] = max(free[j.channel], j.end_min)
+    left: list[int] = []
+    for i in order:
+        job = _place(p, i, by[i], free, jobs, limits)
+        if job is None:
+            left.append(i)
+            continue
+        insort(jobs, job, key=lambda j: j.end_min)
+        free[job.channel] = max(free[job.channel], job.end_min)
+    return _improve(p, jobs, by, limits), left
+
+
+def _improve(p: Problem, jobs: list[Job], by: dict[int, list[int]],
+             limits: tuple[float, float]) -> list[Job]:
+    """Move the last-finishing battery while that ends the bench sooner."""
+    for _ in range(min(len(jobs), LOCAL_SEARCH_MOVES)):
+        movable = [j for j in jobs if not j.on_charge]
+        if not movable:
+            break
+        last = max(movable, key=lambda j: j.end_min)
+        others = [j for j in jobs if j is not last]
+        free = list(p.channel_free)
+        for j in others:
+            free[j.channel] = max(free[j.channel], j.end_min)
+        moved = _place(p, last.battery, by[last.battery], free, others, limits)
+        if moved is None or moved.end_min >= last.end_min - _EPS:
+            break
+        insort(others, moved, key=lambda j: j.end_min)
+        jobs = others
+    return jobs
+
+
+def schedule(p: Problem) -> tuple[list[Job], list[int]]:
+    """The best of three list-scheduling orders, each improved by the local search: fewest
+    left out, then fewest due times missed, then the earliest finish. Returns the jobs
+    (with the fixed ones) and the batteries left out."""
+    by = p.channels_of()
+    limits = _limits(p, by)
+
+    def longest(i: int) -> float:
+        return -min(p.duration[(i, c)] for c in by[i])
+
+    orders = [sorted(by, key=lambda i: (p.due[i], longest(i), i)),
+              sorted(by, key=lambda i: (len(by[i]), p.due[i], longest(i), i)),
+              sorted(by, key=lambda i: (longest(i), i))]
+    best = None
+    for order in orders:
+        jobs, left = _list_schedule(p, order, by, limits)
+        missed = sum(1 for j in jobs if j.end_min > p.due[j.battery] + _EPS)
+        score = (len(left), missed, max((j.end_min for j in jobs), default=0.0))
+        if best is None or score < best[0]:
+            best = (score, jobs, left)
+    assert best is not None
+    return best[1], best[2]
+
+
+def lower_bound(p: Problem, jobs: list[Job], start: float) -> float:
+    """A moment no order can finish the scheduled batteries before: the longest of one
+    battery's shortest charge after its release, the channel-time spread over the channels,
+    the gas volume over the room's airflow, and the energy over the mains budget; counted in
+    working time when every channel is attended (every job then lies inside working hours)."""
+    placed = {j.battery for j in jobs if not j.on_charge}
+    if not placed:
+        return max((j.end_min for j in jobs), default=start)
+    fits = {i: [c for (b, c) in p.duration if b == i] for i in placed}
+    minutes = {i: min(p.duration[(i, c)] for c in cs) for i, cs in fits.items()}
+    spread = sum(minutes.values()) / len(p.attended)
+    gas = (sum(min(p.airflow[(i, c)] for c in fits[i]) * minutes[i] for i in placed) / p.room
+           if p.room > 0 and math.isfinite(p.room) else 0.0)
+    energy = (sum(min(p.power[(i, c)] for c in fits[i]) * minutes[i] for i in placed)
+              / p.budget if math.isfinite(p.budget) else 0.0)
+    work = max(spread, gas, energy)
+    single = max(p.calendar.next_start(max(start, p.release[i]))[0] + minutes[i]  # type: ignore[index]
+                 for i in placed)
+    if all(p.attended):
+        return max(single, p.calendar.after_working(start, work))
+    return max(single, start + work)
+
+
+def peaks(jobs: list[Job]) -> tuple[float, float]:
+    air = power = 0.0
+    for t in {j.start_min for j in jobs}:
+        running = [j for j in jobs if j.start_min <= t < j.end_min]
+        air = max(air, sum(j.airflow_m3_per_h for j in running))
+        power = max(power, sum(j.power_w for j in running))
+    return air, power

@@ -199,6 +199,17 @@ def _pass_line(b: BenchBattery, profile: Profile, options: dict[tuple[int, int],
     return float(ocv_from_soc(AFTER_CHECK_PASS_SOC_PCT, profile.rest_voltage.table)) * cells
 
 
+def _fits_nowhere(row: list[list[Misfit]]) -> str:
+    """A short line: each distinct reason once, cut to its first clause."""
+    reasons: list[str] = []
+    for cell in row:
+        for m in cell:
+            text = f"{m.code} {m.text.split(';')[0].split(': ')[0][:80]}"
+            if text not in reasons:
+                reasons.append(text)
+    return "fits no channel: " + "; ".join(reasons) + " (see the compatibility table)"
+
+
 def _rows(bench: BenchFile, batteries: list[BenchBattery] | None) -> list[BenchBattery]:
     rows = list(bench.batteries or []) + list(batteries or [])
     ids = [b.id for b in rows]
@@ -250,10 +261,10 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
     from chargeplan.planners.bench_notes import why_not
 
     unscheduled = {i: why_not(problem, i) for i in left}
+    placed = {j.battery for j in jobs}
     for i, row in enumerate(misfits):
-        placed = {j.battery for j in jobs}
         if i not in placed and i not in unscheduled and i not in dropped:
-            unscheduled[i] = "fits no channel (see the compatibility table)"
+            unscheduled[i] = _fits_nowhere(row)
     air, power = peaks(jobs)
     notes = (["some batteries start later than their channel is free, so that the room's "
               "ventilation (or the mains budget) is never exceeded"]

@@ -8,10 +8,10 @@ from numpy.typing import ArrayLike
 __all__ = [
     "DILUTION",
     "GAS_CURRENT_MA_PER_AH",
-    "HYDROGEN_M3_PER_AH",
-    "OPENING_CM2_PER_M3H",
     "GAS_EMISSION_FACTOR",
     "GAS_SAFETY_FACTOR",
+    "HYDROGEN_M3_PER_AH",
+    "OPENING_CM2_PER_M3H",
     "SAFETY_FACTOR",
     "gas_current_at_voltage",
     "gas_current_from_charge",

@@ -203,7 +203,8 @@ def schedule(p: Problem) -> tuple[list[Job], list[int]]:
 def lower_bound(p: Problem, jobs: list[Job], start: float) -> float:
     """A moment no order can finish the scheduled batteries before: the longest of one
     battery's shortest charge after its release, the channel-time spread over the channels,
-    the gas volume over the room's airflow, and the energy over the mains budget; counted in
+    the gas volume over the room's airflow, the energy over the mains budget, and the
+    batteries that each take more than half the room or the budget in a row; counted in
     working time when every channel is attended (every job then lies inside working hours)."""
     placed = {j.battery for j in jobs if not j.on_charge}
     if not placed:
@@ -215,7 +216,12 @@ def lower_bound(p: Problem, jobs: list[Job], start: float) -> float:
            if p.room > 0 and math.isfinite(p.room) else 0.0)
     energy = (sum(min(p.power[(i, c)] for c in fits[i]) * minutes[i] for i in placed)
               / p.budget if math.isfinite(p.budget) else 0.0)
-    work = max(spread, gas, energy)
+    # batteries that each take more than half the room or the budget never run together
+    heavy_air = sum(minutes[i] for i in placed
+                    if min(p.airflow[(i, c)] for c in fits[i]) > p.room / 2 + 1e-9)
+    heavy_w = sum(minutes[i] for i in placed
+                  if min(p.power[(i, c)] for c in fits[i]) > p.budget / 2 + 1e-9)
+    work = max(spread, gas, energy, heavy_air, heavy_w)
     single = max(p.calendar.next_start(max(start, p.release[i]))[0] + minutes[i]  # type: ignore[index]
                  for i in placed)
     if all(p.attended):

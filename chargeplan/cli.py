@@ -431,7 +431,8 @@ def bench(
         found = _profile_set(profiles)
         rows = read_bench_batteries(batteries) if batteries is not None else None
         moment, done = replan_at(now, progress)
-        plan = plan_bench(load_bench(file), rows, profiles=found, now=moment, progress=done)
+        plan = plan_bench(load_bench(file), rows, profiles=found, now=moment, progress=done,
+                          file=str(file))
         if output is not None:
             from chargeplan.render.bench_files import bench_outputs
             from chargeplan.render.write import write_all

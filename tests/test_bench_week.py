@@ -208,12 +208,12 @@ def test_entry_mistake_exits_2_once_naming_the_battery_field(tmp_path):
 def test_power_max_lowers_the_current_and_says_so():
     free = plan_bench(_bench([_battery(1, "flooded", "100 Ah", "20 %")],
                              [{"name": "A", **PROBE, "unattended": True}]))
-    (job,) = free.jobs
+    assert len(free.jobs) == 1
     watts = free.options[(0, 0)].power_w
     capped = plan_bench(_bench([_battery(1, "flooded", "100 Ah", "20 %")],
                                [{"name": "A", **PROBE, "unattended": True,
                                  "power_max": f"{watts * 0.8:.0f} W"}]))
-    (job,) = capped.jobs
+    assert len(capped.jobs) == 1
     option = capped.options[(0, 0)]
     assert option.power_w <= watts * 0.8 + 1e-6
     assert any(f.rule_id == "bench.power" and "current lowered" in f.message

@@ -225,12 +225,25 @@ def _rows(bench: BenchFile, batteries: list[BenchBattery] | None) -> list[BenchB
 
 def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
                profiles: ProfileSet | None = None, now: dt.datetime | None = None,
-               progress: Progress | None = None, today: dt.date | None = None) -> BenchPlan:
+               progress: Progress | None = None, today: dt.date | None = None,
+               file: str | None = None) -> BenchPlan:
     """Compatibility, durations and the schedule (see the module docstring).
 
     ``now`` and ``progress`` re-plan a bench under way: batteries on charge keep their
     channel and start, finished ones are dropped, faulted ones listed for inspection, and
-    nothing new starts before ``now``."""
+    nothing new starts before ``now``. Errors that name no file name ``file``."""
+    try:
+        return _plan_bench(bench, batteries, profiles=profiles, now=now, progress=progress,
+                           today=today)
+    except InputError as error:
+        if file is None or error.file is not None:
+            raise
+        raise error.in_file(file) from None
+
+
+def _plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None, *,
+                profiles: ProfileSet | None, now: dt.datetime | None,
+                progress: Progress | None, today: dt.date | None) -> BenchPlan:
     profile_set = profiles or ProfileSet(use_environment=False)
     rows = _rows(bench, batteries)
     first_day = bench.date or today or dt.date.today()

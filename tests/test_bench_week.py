@@ -266,3 +266,17 @@ def test_bench_md_is_short():
                               for i in range(10)],
                              [{"name": n, **PROBE} for n in "ABCD"]))
     assert len(bench_document(plan).splitlines()) <= 75
+
+
+def test_tail_at_the_channel_maximum_asks_for_a_larger_current_not_a_finer_step(tmp_path):
+    # a 100 Ah AGM ends absorption near C/50 = 2 A (BU-403: 0.5-5 % of C); a 0.5 A channel
+    # can never reach a tail above its own current, whatever its step
+    path = tmp_path / "b.yaml"
+    path.write_text("battery: {name: t, chemistry: agm, nominal_voltage: 12 V, capacity: 100 Ah}\n"
+                    "conditions: {battery_temperature: 20 degC}\n"
+                    "charger: {max_voltage: 16 V, max_current: 0.5 A, min_current: 0.1 A, "
+                    "current_step: 0.25 A, can_disable_high_voltage_stages: true, "
+                    "temperature_probe: true}\n")
+    result = runner.invoke(app, ["plan", str(path)])
+    assert result.exit_code == 1
+    assert "larger current" in result.output and "finer" not in result.output

@@ -120,8 +120,10 @@ def _place(p: Problem, i: int, channels: list[int], free: list[float], placed: l
                          p.attended[c], limits)
         if start is None:
             continue
+        unlimited = earliest(p, placed, ready(c), minutes, 0.0, 0.0, p.attended[c],
+                             (math.inf, math.inf)) if start > ready(c) + 1e-9 else start
         job = Job(i, c, start, start + minutes, p.airflow[(i, c)], p.power[(i, c)],
-                  staggered=start > p.calendar.next_start(ready(c))[0] + 1e-9)  # type: ignore[index]
+                  staggered=unlimited is not None and start > unlimited + 1e-9)
         if best is None or job.end_min < best.end_min:
             best = job
     return best

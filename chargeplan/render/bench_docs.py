@@ -42,7 +42,8 @@ def file_name(plan: BenchPlan, battery: int) -> str:
 def _short(caution: str) -> str:
     """A caution in short: its first clause (before a colon) or its first sentence."""
     first = caution.split(". ")[0].rstrip(".")
-    return first.split(":")[0] + "."
+    clause = first.split(":")[0]
+    return (clause if len(clause) >= 25 else first) + "."
 
 
 def _interlocks(plan: ChargePlan) -> list[str]:

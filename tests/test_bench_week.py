@@ -280,3 +280,16 @@ def test_tail_at_the_channel_maximum_asks_for_a_larger_current_not_a_finer_step(
     result = runner.invoke(app, ["plan", str(path)])
     assert result.exit_code == 1
     assert "larger current" in result.output and "finer" not in result.output
+
+
+def test_replan_reusing_the_estimates_equals_planning_again():
+    from chargeplan.planners.bench import replan_bench
+
+    bench = _bench([_battery(i, soc="40 %") for i in range(4)],
+                   [{"name": "A", **PROBE}, {"name": "B", **PROBE}])
+    now = dt.datetime.combine(DAY, dt.time(9, 30))
+    progress = Progress(rows=[ProgressRow(battery="b0", channel="A",
+                                          started=dt.datetime.combine(DAY, dt.time(8)))])
+    fresh = plan_bench(bench, now=now, progress=progress)
+    again = replan_bench(plan_bench(bench), now=now, progress=Progress(rows=progress.rows))
+    assert schedule_csv(fresh) == schedule_csv(again)

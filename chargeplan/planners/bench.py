@@ -36,7 +36,7 @@ from chargeplan.planners.ventilation import available_airflow, charge_airflow
 from chargeplan.profiles import ProfileSet
 
 __all__ = ["CHARGER_EFFICIENCY", "BenchPlan", "Job", "load_bench", "plan_bench",
-           "read_bench_batteries", "replan_at"]
+           "read_bench_batteries", "replan_at", "replan_bench"]
 
 #: The after-charge check: the rested voltage 12-24 h after charging (common practice)
 #: should read at least the profile's OCV-table voltage at this state of charge (common
@@ -77,6 +77,7 @@ class BenchPlan:
     progress: Progress = field(default_factory=Progress)
     replanned: bool = False
     notes: list[str] = field(default_factory=list)
+    intake: _Intake | None = field(default=None, repr=False)
 
     @property
     def fit(self) -> list[list[str]]:
@@ -190,12 +191,11 @@ def _cold_findings(rows: list[BenchBattery], fit, warm_ups: list[float]) -> None
                     f"{COLD_INSTRUCTION}"))
 
 
-def _pass_line(b: BenchBattery, profile: Profile, options: dict[tuple[int, int], Option],
-               i: int) -> float:
+def _pass_line(b: BenchBattery, profile: Profile, options: dict[int, Option], i: int) -> float:
     from chargeplan.physics.ocv import ocv_from_soc
 
-    cells = next((o.plan.battery.cells_in_series for (k, _c), o in options.items() if k == i),
-                 b.cells_in_series or 0)
+    cells = options[i].plan.battery.cells_in_series if i in options else (b.cells_in_series
+                                                                        or 0)
     return float(ocv_from_soc(AFTER_CHECK_PASS_SOC_PCT, profile.rest_voltage.table)) * cells
 
 
@@ -241,32 +241,67 @@ def plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None = None, *,
         raise error.in_file(file) from None
 
 
-def _plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None, *,
-                profiles: ProfileSet | None, now: dt.datetime | None,
-                progress: Progress | None, today: dt.date | None) -> BenchPlan:
+@dataclass
+class _Intake:
+    """What the engine and the physics said, before any scheduling: reused by a re-plan."""
+
+    bench: BenchFile
+    rows: list[BenchBattery]
+    first_day: dt.date
+    misfits: list[list[list[Misfit]]]
+    options: dict[tuple[int, int], Option]
+    profiles: list[Profile]
+    warm_ups: list[float]
+
+
+def _intake(bench: BenchFile, batteries: list[BenchBattery] | None,
+            profiles: ProfileSet | None, today: dt.date | None) -> _Intake:
     profile_set = profiles or ProfileSet(use_environment=False)
     rows = _rows(bench, batteries)
     first_day = bench.date or today or dt.date.today()
-    days = HORIZON_DAYS + (max(0, (now.date() - first_day).days) if now else 0)
-    calendar = work_calendar(bench.hours, first_day, days)
     fit, found, warm_ups = plan_options(rows, bench.channels, profile_set)
     _cold_findings(rows, fit, warm_ups)
     _estimate(fit, profile_set)
-    _policy(rows, bench, fit, found, calendar)
+    _policy(rows, bench, fit, found, work_calendar(bench.hours, first_day))
     options = {(i, c): o for i, row in enumerate(fit) for c, o in enumerate(row)
                if isinstance(o, Option)}
     misfits = [[[] if isinstance(o, Option) else o for o in row] for row in fit]
+    return _Intake(bench, rows, first_day, misfits, options, found, warm_ups)
+
+
+def _plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None, *,
+                profiles: ProfileSet | None, now: dt.datetime | None,
+                progress: Progress | None, today: dt.date | None) -> BenchPlan:
+    return _scheduled(_intake(bench, batteries, profiles, today), now, progress)
+
+
+def replan_bench(plan: BenchPlan, *, now: dt.datetime, progress: Progress | None = None
+                 ) -> BenchPlan:
+    """The bench planned again at ``now`` from ``progress``, reusing ``plan``'s compatibility
+    and estimates (nothing about the batteries or channels changed; to add a battery, add it
+    to the bench file and plan it again)."""
+    return _scheduled(plan.intake, now, progress)
+
+
+def _scheduled(intake: _Intake, now: dt.datetime | None, progress: Progress | None
+               ) -> BenchPlan:
+    bench, rows, options = intake.bench, intake.rows, intake.options
+    days = HORIZON_DAYS + (max(0, (now.date() - intake.first_day).days) if now else 0)
+    calendar = work_calendar(bench.hours, intake.first_day, days)
+    first = {}
+    for (i, _c), o in options.items():
+        first.setdefault(i, o)
     state = progress or Progress()
     start = calendar.first_open if now is None else max(calendar.first_open,
                                                           calendar.minutes(now))
     fixed, dropped = state.apply(rows, bench.channels, options, calendar, start)
-    due = [_due_min(b, calendar, first_day) for b in rows]
+    due = [_due_min(b, calendar, intake.first_day) for b in rows]
     room = available_airflow(bench.room.airflow_m3_per_h, bench.room.opening_area_cm2)
     problem = Problem(
         duration={k: o.minutes for k, o in options.items() if k[0] not in dropped},
         power={k: o.power_w for k, o in options.items()},
         airflow={k: o.airflow_m3_per_h for k, o in options.items()},
-        release=[start + w for w in warm_ups], due=due,
+        release=[start + w for w in intake.warm_ups], due=due,
         attended=[not c.unattended for c in bench.channels], calendar=calendar, room=room,
         budget=bench.mains_budget_w or math.inf, channel_free=[start] * len(bench.channels),
         fixed=fixed)
@@ -275,7 +310,7 @@ def _plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None, *,
 
     unscheduled = {i: why_not(problem, i) for i in left}
     placed = {j.battery for j in jobs}
-    for i, row in enumerate(misfits):
+    for i, row in enumerate(intake.misfits):
         if i not in placed and i not in unscheduled and i not in dropped:
             unscheduled[i] = _fits_nowhere(row)
     air, power = peaks(jobs)
@@ -283,11 +318,11 @@ def _plan_bench(bench: BenchFile, batteries: list[BenchBattery] | None, *,
               "ventilation (or the mains budget) is never exceeded"]
              if any(j.staggered for j in jobs) else [])
     return BenchPlan(
-        bench, rows, calendar, misfits, options, jobs, unscheduled, room, air, power, start,
-        lower_bound(problem, jobs, start), warm_ups,
-        [_pass_line(b, found[i], options, i) for i, b in enumerate(rows)], due, state,
+        bench, rows, calendar, intake.misfits, options, jobs, unscheduled, room, air, power,
+        start, lower_bound(problem, jobs, start), intake.warm_ups,
+        [_pass_line(b, intake.profiles[i], first, i) for i, b in enumerate(rows)], due, state,
         replanned=bool(state.rows) or (now is not None and start > calendar.first_open + 1e-9),
-        notes=notes)
+        notes=notes, intake=intake)
 
 
 def replan_at(now: str | None, progress: str | Path | None) -> tuple[dt.datetime | None,

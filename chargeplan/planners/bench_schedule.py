@@ -12,7 +12,6 @@ last-finishing battery while that ends the bench sooner. Jobs already on charge 
 from __future__ import annotations
 
 import math
-from bisect import bisect_right, insort
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -59,38 +58,58 @@ class Problem:
         return by
 
 
-def _ending_after(placed: list[Job], t: float) -> list[Job]:
-    """The placed jobs (sorted by end) that end after ``t``."""
-    return placed[bisect_right(placed, t, key=lambda j: j.end_min):]
+class Usage:
+    """The room's airflow and the mains power in use over time: a step function, kept as
+    sorted breakpoints and the use on each step (numpy), so a window's peak is one slice."""
+
+    def __init__(self) -> None:
+        self.t = np.array([-math.inf])
+        self.air = np.zeros(1)
+        self.watts = np.zeros(1)
+
+    def _cut(self, x: float) -> None:
+        k = int(np.searchsorted(self.t, x, side="right"))
+        if self.t[k - 1] != x:
+            self.t = np.insert(self.t, k, x)
+            self.air = np.insert(self.air, k, self.air[k - 1])
+            self.watts = np.insert(self.watts, k, self.watts[k - 1])
+
+    def add(self, job: Job, sign: float = 1.0) -> None:
+        self._cut(job.start_min)
+        self._cut(job.end_min)
+        i = int(np.searchsorted(self.t, job.start_min, side="left"))
+        j = int(np.searchsorted(self.t, job.end_min, side="left"))
+        self.air[i:j] += sign * job.airflow_m3_per_h
+        self.watts[i:j] += sign * job.power_w
+
+    def fits(self, start: float, stop: float, air: float, watts: float, room: float,
+             budget: float) -> bool:
+        i = int(np.searchsorted(self.t, start, side="right")) - 1
+        j = max(int(np.searchsorted(self.t, stop, side="left")), i + 1)
+        return bool(self.air[i:j].max() + air <= room + 1e-9
+                    and self.watts[i:j].max() + watts <= budget + 1e-9)
+
+    def changes_after(self, t: float) -> np.ndarray:
+        """The moments after ``t`` where the use falls (a job ends)."""
+        k = int(np.searchsorted(self.t, t, side="right"))
+        if k >= len(self.t):
+            return self.t[:0]
+        falls = ((self.air[k:] - self.air[k - 1:-1] < -1e-12)
+                 | (self.watts[k:] - self.watts[k - 1:-1] < -1e-12))
+        return self.t[k:][falls]
 
 
-def _resources_ok(later: list[Job], start: float, stop: float, air: float, watts: float,
-                  room: float, budget: float) -> bool:
-    near = [j for j in later if j.start_min < stop and j.end_min > start]
-    if not near:
-        return True
-    starts = np.fromiter((j.start_min for j in near), float, len(near))
-    ends = np.fromiter((j.end_min for j in near), float, len(near))
-    points = np.concatenate(([start], starts[(starts > start) & (starts < stop)]))
-    inside = (starts[None, :] <= points[:, None]) & (points[:, None] < ends[None, :])
-    used_air = inside @ np.fromiter((j.airflow_m3_per_h for j in near), float, len(near))
-    used_w = inside @ np.fromiter((j.power_w for j in near), float, len(near))
-    return bool((used_air.max() + air <= room + 1e-9) and (used_w.max() + watts
-                                                           <= budget + 1e-9))
-
-
-def earliest(p: Problem, placed: list[Job], t0: float, minutes: float, air: float,
-             watts: float, attended: bool, limits: tuple[float, float]) -> float | None:
+def earliest(p: Problem, usage: Usage, t0: float, minutes: float, air: float, watts: float,
+             attended: bool, limits: tuple[float, float]) -> float | None:
     """The earliest working moment at or after ``t0`` where the job fits: tried at ``t0``,
-    at each later end of a placed job and at each later opening."""
+    at each later moment a placed job ends and at each later opening."""
     room, budget = limits
     if air > room + 1e-9 or watts > budget + 1e-9:
         return None
-    later = _ending_after(placed, t0)
     bounded = math.isfinite(room) or math.isfinite(budget)
     times = {t0, *p.calendar.openings_after(t0)}
     if bounded:
-        times.update(j.end_min for j in later if j.end_min > t0)
+        times.update(float(x) for x in usage.changes_after(t0))
     for t in sorted(times):
         got = p.calendar.next_start(t)
         if got is None:
@@ -98,12 +117,12 @@ def earliest(p: Problem, placed: list[Job], t0: float, minutes: float, air: floa
         start, close = got
         if attended and start + minutes > close + _EPS:
             continue
-        if not bounded or _resources_ok(later, start, start + minutes, air, watts, room, budget):
+        if not bounded or usage.fits(start, start + minutes, air, watts, room, budget):
             return start
     return None
 
 
-def _place(p: Problem, i: int, channels: list[int], free: list[float], placed: list[Job],
+def _place(p: Problem, i: int, channels: list[int], free: list[float], usage: Usage,
            limits: tuple[float, float]) -> Job | None:
     """The compatible channel where battery i finishes earliest (channels in order of their
     earliest possible finish; stops once no later channel can beat the best found)."""
@@ -116,11 +135,11 @@ def _place(p: Problem, i: int, channels: list[int], free: list[float], placed: l
         minutes = p.duration[(i, c)]
         if best is not None and ready(c) + minutes >= best.end_min:
             break
-        start = earliest(p, placed, ready(c), minutes, p.airflow[(i, c)], p.power[(i, c)],
+        start = earliest(p, usage, ready(c), minutes, p.airflow[(i, c)], p.power[(i, c)],
                          p.attended[c], limits)
         if start is None:
             continue
-        unlimited = earliest(p, placed, ready(c), minutes, 0.0, 0.0, p.attended[c],
+        unlimited = earliest(p, usage, ready(c), minutes, 0.0, 0.0, p.attended[c],
                              (math.inf, math.inf)) if start > ready(c) + 1e-9 else start
         job = Job(i, c, start, start + minutes, p.airflow[(i, c)], p.power[(i, c)],
                   staggered=unlimited is not None and start > unlimited + 1e-9)
@@ -143,22 +162,25 @@ def _limits(p: Problem, by: dict[int, list[int]]) -> tuple[float, float]:
 
 def _list_schedule(p: Problem, order: list[int], by: dict[int, list[int]],
                    limits: tuple[float, float]) -> tuple[list[Job], list[int]]:
-    jobs = sorted(p.fixed, key=lambda j: j.end_min)
+    jobs = list(p.fixed)
+    usage = Usage()
     free = list(p.channel_free)
     for j in p.fixed:
         free[j.channel] = max(free[j.channel], j.end_min)
+        usage.add(j)
     left: list[int] = []
     for i in order:
-        job = _place(p, i, by[i], free, jobs, limits)
+        job = _place(p, i, by[i], free, usage, limits)
         if job is None:
             left.append(i)
             continue
-        insort(jobs, job, key=lambda j: j.end_min)
+        jobs.append(job)
+        usage.add(job)
         free[job.channel] = max(free[job.channel], job.end_min)
-    return _improve(p, jobs, by, limits), left
+    return _improve(p, jobs, usage, by, limits), left
 
 
-def _improve(p: Problem, jobs: list[Job], by: dict[int, list[int]],
+def _improve(p: Problem, jobs: list[Job], usage: Usage, by: dict[int, list[int]],
              limits: tuple[float, float]) -> list[Job]:
     """Move the last-finishing battery while that ends the bench sooner."""
     for _ in range(min(len(jobs), LOCAL_SEARCH_MOVES)):
@@ -170,11 +192,13 @@ def _improve(p: Problem, jobs: list[Job], by: dict[int, list[int]],
         free = list(p.channel_free)
         for j in others:
             free[j.channel] = max(free[j.channel], j.end_min)
-        moved = _place(p, last.battery, by[last.battery], free, others, limits)
+        usage.add(last, -1.0)
+        moved = _place(p, last.battery, by[last.battery], free, usage, limits)
         if moved is None or moved.end_min >= last.end_min - _EPS:
+            usage.add(last)
             break
-        insort(others, moved, key=lambda j: j.end_min)
-        jobs = others
+        usage.add(moved)
+        jobs = [*others, moved]
     return jobs
 
 
@@ -211,7 +235,8 @@ def lower_bound(p: Problem, jobs: list[Job], start: float) -> float:
     placed = {j.battery for j in jobs if not j.on_charge}
     if not placed:
         return max((j.end_min for j in jobs), default=start)
-    fits = {i: [c for (b, c) in p.duration if b == i] for i in placed}
+    by = p.channels_of()
+    fits = {i: by[i] for i in placed}
     minutes = {i: min(p.duration[(i, c)] for c in cs) for i, cs in fits.items()}
     spread = sum(minutes.values()) / len(p.attended)
     gas = (sum(min(p.airflow[(i, c)] for c in fits[i]) * minutes[i] for i in placed) / p.room

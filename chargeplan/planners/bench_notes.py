@@ -12,7 +12,7 @@ if TYPE_CHECKING:
     from chargeplan.planners.bench import BenchPlan
     from chargeplan.planners.bench_schedule import Problem
 
-__all__ = ["moved", "summary", "why_not"]
+__all__ = ["headline", "moved", "summary", "why_not"]
 
 
 def why_not(p: Problem, i: int) -> str:
@@ -38,6 +38,11 @@ def _due_text(plan: BenchPlan, i: int, end: float) -> str:
         return ""
     when = plan.clock(due)
     return f"  due {when}: " + ("met" if end <= due + 1e-6 else "MISSED")
+
+
+def headline(plan: BenchPlan) -> list[str]:
+    """The summary's first lines: what was scheduled, the bound, ventilation and mains."""
+    return summary(plan).splitlines()[:4 if plan.bench.mains_budget_w else 3]
 
 
 def summary(plan: BenchPlan) -> str:

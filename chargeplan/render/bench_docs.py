@@ -16,6 +16,7 @@ from chargeplan.cautions import DEFERRAL
 from chargeplan.plan import ChargePlan
 from chargeplan.planners.bench import AFTER_CHECK_PASS_SOC_PCT, AFTER_CHECK_REST_H, BenchPlan
 from chargeplan.planners.bench_intake import COLD_INSTRUCTION
+from chargeplan.planners.bench_notes import headline
 from chargeplan.render.bench_chart import gantt_svg
 from chargeplan.render.text import describe_exit
 
@@ -148,13 +149,16 @@ def _findings(plan: BenchPlan) -> list[tuple[str, list[tuple[str, str]]]]:
             if plan.plan_of(job).findings]
 
 
-def _chemistry_cautions(plan: BenchPlan) -> list[str]:
-    seen: list[str] = []
-    for job in plan.jobs:
-        for line in plan.plan_of(job).cautions[:-1]:
-            if line not in seen:
-                seen.append(line)
-    return seen
+def _chemistry_cautions(plan: BenchPlan) -> list[tuple[str, list[str]]]:
+    """The cautions of every chemistry on the bench, once each, grouped by family (the
+    deferral is apart)."""
+    groups: dict[str, list[str]] = {}
+    for job in sorted(plan.jobs, key=lambda j: j.battery):
+        charge = plan.plan_of(job)
+        label = "Lithium" if charge.battery.family == "lithium" else "Lead-acid"
+        seen = groups.setdefault(label, [])
+        seen.extend(line for line in charge.cautions[:-1] if line not in seen)
+    return sorted(groups.items())
 
 
 def _ventilation(plan: BenchPlan) -> list[str]:
@@ -204,7 +208,7 @@ def _context(plan: BenchPlan, html: bool) -> dict[str, Any]:
     matrix, legend = _matrix(plan)
     return {
         "plan": plan, "names": [c.name for c in plan.bench.channels],
-        "headline": plan.summary().splitlines()[:4], "schedule": _schedule(plan),
+        "headline": headline(plan), "schedule": _schedule(plan),
         "matrix": matrix, "legend": legend, "findings": _findings(plan),
         "unscheduled": _unscheduled(plan), "cautions": BENCH_CAUTIONS, "deferral": DEFERRAL,
         "chemistry_cautions": _chemistry_cautions(plan), "ventilation": _ventilation(plan),

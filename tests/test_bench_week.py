@@ -293,3 +293,28 @@ def test_replan_reusing_the_estimates_equals_planning_again():
     fresh = plan_bench(bench, now=now, progress=progress)
     again = replan_bench(plan_bench(bench), now=now, progress=Progress(rows=progress.rows))
     assert schedule_csv(fresh) == schedule_csv(again)
+
+
+def test_equalization_is_requested_per_battery_and_its_gas_counted():
+    # a flooded battery asked to equalize gets the stage from the engine (state.equalize);
+    # its airflow counts the stage's current as gas (IEC 62485-2 cl. 7, full battery)
+    channels = [{"name": "A", **PROBE, "unattended": True}]
+    asked = plan_bench(_bench([_battery(1, "flooded", "60 Ah", "80 %", equalize=True)],
+                              channels))
+    plain = plan_bench(_bench([_battery(1, "flooded", "60 Ah", "80 %", equalize=False)],
+                              channels))
+    assert "equalization" in [s.kind.value for s in asked.plans[(0, 0)].stages]
+    assert "equalization" not in [s.kind.value for s in plain.plans[(0, 0)].stages]
+    assert asked.options[(0, 0)].airflow_m3_per_h > plain.options[(0, 0)].airflow_m3_per_h
+
+
+def test_a_request_the_engine_cannot_take_is_an_entry_mistake():
+    from chargeplan.errors import InputError
+    from chargeplan.model.battery import State
+
+    bench = _bench([_battery(1, "flooded", "60 Ah", "30 %", desulfate=True)])
+    if "desulfate" in State.model_fields:
+        assert plan_bench(bench).jobs
+    else:
+        with pytest.raises(InputError, match=r"batteries\[0\]\.desulfate"):
+            plan_bench(bench)

@@ -177,6 +177,7 @@ def plan_options(rows: list[BenchBattery], channels: list[BenchChannel],
             profile = profiles.get(b.chemistry, field=f"batteries[{i}].chemistry")
         except InputError as error:
             raise error.in_file(f"battery {b.id}") from None
+        _state(b, i)  # a request the engine cannot take is the battery's entry mistake
         temperature, warm = cold_start(b, profile)
         found.append(profile)
         warm_ups.append(warm)

@@ -451,25 +451,38 @@ def bench(
     file: Annotated[Path, typer.Argument(help="the bench file (YAML or JSON)")],
     batteries: Annotated[Path | None, typer.Option("--batteries", help="batteries CSV")] = None,
     output: Annotated[Path | None, typer.Option("--output", "-o", help="write bench.md, "
-                                                "bench.html and setpoint files here")] = None,
+                                                "bench.html, the sheets, schedule.csv, "
+                                                "schedule.ics and setpoint files here")] = None,
+    now: Annotated[str | None, typer.Option("--now", help="re-plan at this local time, "
+                                            "e.g. 2026-12-07T13:00")] = None,
+    progress: Annotated[Path | None, typer.Option(
+        "--progress", help="progress.csv: battery, channel, started, finished")] = None,
     force: Annotated[bool, typer.Option(help="replace files that exist")] = False,
     profiles: ProfilePaths = None,
 ) -> None:
-    """Plan a charging bench: compatibility, schedule, ventilation, setup cards."""
+    """Plan a charging bench: compatibility, schedule, ventilation, cards, tags, log sheets."""
     with _errors():
-        from chargeplan.planners.bench import load_bench, plan_bench, read_bench_batteries
+        from chargeplan.planners.bench import (
+            load_bench,
+            plan_bench,
+            read_bench_batteries,
+            replan_at,
+        )
 
         found = _profile_set(profiles)
         rows = read_bench_batteries(batteries) if batteries is not None else None
-        plan = plan_bench(load_bench(file), rows, profiles=found)
+        moment, done = replan_at(now, progress)
+        plan = plan_bench(load_bench(file), rows, profiles=found, now=moment, progress=done,
+                          file=str(file))
         if output is not None:
-            from chargeplan.render.bench_docs import bench_document, setpoint_files
+            from chargeplan.render.bench_files import bench_outputs
             from chargeplan.render.write import write_all
 
-            write_all(output, {"bench.md": bench_document(plan),
-                               "bench.html": bench_document(plan, html=True),
-                               **setpoint_files(plan)}, force=force)
-            typer.echo(f"wrote {output}/bench.md, bench.html and the setpoint files", err=True)
+            files, changes = bench_outputs(plan, output)
+            write_all(output, files, force=force)
+            for line in changes:
+                typer.echo(line, err=True)
+            typer.echo(f"wrote {len(files)} files to {output}", err=True)
         typer.echo(plan.summary(), nl=False)
 
 

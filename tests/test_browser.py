@@ -83,3 +83,39 @@ def test_pdf_has_the_chart_and_readable_stage_labels(page):
     for stage in plan.stages:
         assert stage.kind.label in text
     assert "licensed practice" in text
+
+
+@pytest.fixture(scope="module")
+def bench_pages(tmp_path_factory):
+    from chargeplan.planners.bench import load_bench, plan_bench
+    from chargeplan.render.bench_docs import bench_document, bench_sheets
+
+    tmp = tmp_path_factory.mktemp("bench")
+    path = next(p for p in example_paths(include_storage=True) if p.name.startswith("bench"))
+    plan = plan_bench(load_bench(path))
+    pages = {"bench.html": bench_document(plan, html=True), **bench_sheets(plan)}
+    for name, text in pages.items():
+        (tmp / name).write_text(text, encoding="utf-8")
+    return tmp, plan
+
+
+@pytest.mark.parametrize("name", ["bench", "cards", "tags"])
+def test_bench_pages_render_and_read(bench_pages, name):
+    tmp, plan = bench_pages
+    html = tmp / f"{name}.html"
+    png = tmp / f"{name}.png"
+    _chromium(tmp, "--window-size=1000,1400", f"--screenshot={png}", html.as_uri())
+    width, _height, raw = _png_pixels(png)
+    assert width == 1000 and sum(1 for value in raw if value < 128) > len(raw) * 0.002
+    pdf = tmp / f"{name}.pdf"
+    _chromium(tmp, "--no-pdf-header-footer", f"--print-to-pdf={pdf}", html.as_uri())
+    text = subprocess.run(["pdftotext", str(pdf), "-"], check=True, capture_output=True,
+                          text=True).stdout
+    for job in plan.jobs:  # every scheduled battery is on the page, as readable text
+        assert plan.batteries[job.battery].id in text
+    if name == "bench":
+        assert "closes 17:00" in text and "staggered for ventilation" in text
+    if name == "cards":
+        assert "safety timer" in text and "Stop at once if" in text
+    if name == "tags":
+        assert "result:" in text

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from chargeplan.errors import InputError
 from chargeplan.physics.ventilation import (
@@ -10,11 +11,18 @@ from chargeplan.physics.ventilation import (
     GAS_CURRENT_MA_PER_AH,
     HYDROGEN_M3_PER_AH,
     SAFETY_FACTOR,
+    gas_current_at_voltage,
+    gas_current_from_charge,
     opening_area_iec62485,
     ventilation_airflow_iec62485,
 )
 
-__all__ = ["Requirement", "available_airflow", "requirement"]
+if TYPE_CHECKING:
+    from chargeplan.model.profile import Profile
+    from chargeplan.plan import ChargePlan
+
+__all__ = ["Requirement", "available_airflow", "charge_airflow", "requirement",
+           "stage_gas_current"]
 
 
 @dataclass(frozen=True)
@@ -61,3 +69,45 @@ def available_airflow(airflow_m3_per_h: float | None, opening_area_cm2: float | 
         raise InputError("a room's airflow and openings cannot be negative",
                          field="--room-airflow", fix="give the room's ventilation, e.g. 50m3/h")
     return max(airflow_m3_per_h or 0.0, (opening_area_cm2 or 0.0) / 28.0)
+
+
+def stage_gas_current(kind: str, cell_voltage_v: float, current_a: float, capacity_ah: float,
+                      profile: Profile) -> float:
+    """Igas (mA/Ah) of one lead-acid stage for IEC 62485-2 cl. 7.
+
+    - Equalization and desulfation run a full battery at a limited current, and on a full
+      battery nearly all the current is gas: Igas from the stage's current limit, times the
+      standard's fg and fs (:func:`gas_current_from_charge`).
+    - Every other stage: Igas at the stage's voltage through the profile's float and boost
+      points (IEC 62485-2 Table 1, boost at 2.40 V/cell; :func:`gas_current_at_voltage`),
+      never more than all of its current would give.
+    """
+    battery_type = "vented" if profile.vented else "vrla"
+    all_gas = float(gas_current_from_charge(current_a, capacity_ah, battery_type))
+    if kind in ("equalization", "desulfation"):
+        return all_gas
+    gas = profile.physics.gassing
+    if gas is None:
+        return all_gas
+    at_voltage = float(gas_current_at_voltage(
+        cell_voltage_v, gas.float_voltage.value, gas.float_current.value,
+        gas.boost_voltage.value, gas.boost_current.value))
+    return min(at_voltage, all_gas)
+
+
+def charge_airflow(plan: ChargePlan, profile: Profile, *, channel_may_equalize: bool,
+                   channel_max_current_a: float) -> tuple[float, float, str]:
+    """The airflow (m3/h) one lead-acid charge needs at its most gassing stage, that Igas
+    (mA/Ah), and the stage's name. A channel that cannot switch equalization off counts as
+    able to equalize (at the profile's equalization voltage and current, within the
+    channel's current): common practice, the worst the channel may do."""
+    b = plan.battery
+    stages = [(s.kind.value, s.voltage_v / b.cells_in_series, s.current_a) for s in plan.stages]
+    eq = profile.equalization
+    if channel_may_equalize and eq.allowed and eq.current is not None and eq.voltage is not None:
+        stages.append(("equalization", eq.voltage.value,
+                       min(eq.current.value * b.capacity_ah, channel_max_current_a)))
+    best = max(((stage_gas_current(kind, v, i, b.capacity_ah, profile), kind)
+                for kind, v, i in stages), default=(0.0, "none"))
+    q = float(ventilation_airflow_iec62485(b.cells_in_series, b.capacity_ah, best[0]))
+    return q, best[0], best[1]

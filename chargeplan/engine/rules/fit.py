@@ -230,6 +230,13 @@ def charger_quantisation(ctx: Context) -> None:
             elif e.kind == ExitKind.CURRENT_BELOW:
                 tail = snap(e.value, i_step, up=True)
                 record(f"{label}.exit_current", e.value, tail, "A")
+                if e.value >= i_new - 1e-12:
+                    raise ctx.refuse(
+                        f"the {stage.kind.label} tail current {amps(e.value)} is not below the "
+                        f"stage's current limit {amps(i_new)} (the channel's maximum current "
+                        f"{amps(channel.max_current_a)}): the stage could never end on it; use a "
+                        "channel with a larger current"
+                    )
                 if tail >= i_new:
                     raise ctx.refuse(
                         f"the {stage.kind.label} tail current {amps(e.value)} becomes "

@@ -1,123 +1,222 @@
-"""The storage planner's files: schedule.csv, calendar.ics, procedure.md and procedure.html."""
+"""The storage planner's files: schedule.csv, calendar.ics, procedure.md and procedure.html.
+
+Everything here formats values the planner finished (charge settings, hold voltages,
+freezing points, margins); nothing is computed again.
+"""
 
 from __future__ import annotations
 
 import csv
-import datetime as dt
-import hashlib
 import io
-from collections import defaultdict
 from functools import lru_cache
 from typing import Any
 
 import numpy as np
 
-from chargeplan.cautions import cautions_for
 from chargeplan.csvfile import csv_row
-from chargeplan.physics.ocv import ocv_from_soc
+from chargeplan.fmt import duration
+from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
+from chargeplan.planners.storage_kernel import CHARGES, Act, Kind, Remedy
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["calendar_ics", "procedure", "schedule_csv"]
+__all__ = ["SCHEDULE_COLUMNS", "action_text", "calendar_ics", "charge_text", "procedure",
+           "schedule_csv"]
 
 SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_soc_pct",
-                    "action", "freeze_risk", "charge_plan")
+                    "action", "freeze_risk", "charge_plan", "visit", "soc_after_pct",
+                    "charge_in", "charger_setting", "charge_voltage_v", "charge_current_a",
+                    "charge_hours", "freeze_point_c", "bay_min_c", "freeze_margin_k",
+                    "freeze_action", "reading")
+
+KIND_TEXT = {Kind.INTAKE: "intake", Kind.ROUND: "round", Kind.READING: "reading",
+             Kind.RELEASE: "release"}
+
+REMEDY_TEXT = {
+    Remedy.NONE: "",
+    Remedy.CHARGE_NOW: "charge it now, before the cold",
+    Remedy.DISCONNECT: "disconnect its load",
+    Remedy.MOVE: "move it to the warm room",
+    Remedy.SOONER: "top it up again by {date}",
+    Remedy.NOTHING: "no remedy on site: store it indoors",
+}
+
+THAW = ("first check it is not frozen: bring it indoors and let it thaw above 0 °C; look for "
+        "ice in the cells and a bulging or cracked case; never charge a frozen or bulging "
+        "battery")
+
+
+def charge_text(plan: StoragePlan, k: int) -> str:
+    """The charger's settings for visit ``k`` (empty when it needs no charger)."""
+    s = plan.setting_of(k)
+    if s is None:
+        return ""
+    if s.refused:
+        return f"do not charge here: {s.refused}"
+    temp = f" (for {s.temperature_c:.0f} °C)" if s.compensated else ""
+    time = f", about {duration(s.duration_s)}" if s.duration_s else ""
+    return (f"{s.chemistry_setting} setting, {s.voltage_v:.2f} V{temp}, {s.current_a:.1f} A: "
+            + " -> ".join(s.stages) + f", then disconnect{time}")
+
+
+def _charge_words(plan: StoragePlan, k: int, i: int) -> str:
+    v, f = plan.visits, plan.fleet
+    act = int(v.act[k])
+    if act == Act.TOP_UP:
+        return "charge it fully" if v.kind[k] != Kind.ROUND else "top up (charge it fully)"
+    if act == Act.COUNT_DOWN:
+        return (f"charge it full (the known point), then take out {plan.take_out_ah(i):.1f} Ah "
+                f"(counted by the charger or a meter) to its storage level of "
+                f"{f.storage_soc[i]:.0f} %; never judge LiFePO4 by its voltage")
+    if act == Act.TO_STORAGE:
+        return (f"charge it to its storage level ({f.storage_soc[i]:.0f} %, "
+                f"{f.storage_voltage_v[i]:.2f} V at rest)")
+    return ""
+
+
+def _where_words(plan: StoragePlan, k: int, i: int) -> str:
+    v = plan.visits
+    where, home = plan.bay_names[int(v.where[k])], plan.bay_names[int(v.bay[k])]
+    if where == home:
+        return ""
+    lithium = "" if plan.fleet.lead[i] else (", and wait until the battery itself is above "
+                                            "0 °C (hours to overnight)")
+    return f"move it to {where}{lithium}; after the charge return it to {home}"
+
+
+def _check_words(plan: StoragePlan, k: int, i: int) -> str:
+    v, f = plan.visits, plan.fleet
+    act = int(v.act[k])
+    if act == Act.MAINTAINER:
+        hold = plan.visit_hold_v[k] if plan.visit_hold_v is not None else np.nan
+        at = f" holding {hold:.2f} V (for this month's {plan.bay_mean[v.bay[k], v.day[k]]:.0f} °C)"
+        return (f"check the maintainer is connected and{at if np.isfinite(hold) else ''}; read "
+                "its own display; do not measure the rest voltage while it is connected (to "
+                f"measure, disconnect it for at least {REST_HOURS:g} h first)")
+    if f.lfp[i]:
+        return ("check the pack's own state-of-charge display; its rest voltage cannot tell "
+                "20 % from 90 %")
+    load = (f"disconnect its load for at least {REST_HOURS:g} h, measure, reconnect it"
+            if f.connected[i] and f.draw_pct_day[i] > 0 else
+            f"measure the rested voltage (no charger or load for at least {REST_HOURS:g} h)")
+    return load
+
+
+def action_text(plan: StoragePlan, k: int) -> str:
+    """What staff do at visit ``k``, in words."""
+    v, f = plan.visits, plan.fleet
+    i, act = int(v.battery[k]), int(v.act[k])
+    parts: list[str] = []
+    if v.kind[k] == Kind.READING:
+        parts.append("reading taken: the plan restarts from it")
+    if act == Act.REFUSED:
+        return "do not store it as it is (see the notes); set it aside for testing"
+    if act == Act.RELEASE:
+        return ("spring release: " + ("measure the rested voltage and charge it fully above "
+                                      "0 °C" if f.lead[i] else "charge it as the owner needs, "
+                                      "above 0 °C only") + "; reconnect its loads; hand it back")
+    if v.thaw[k]:
+        parts.append(THAW)
+    if act in CHARGES:
+        parts += [p for p in (_where_words(plan, k, i), _charge_words(plan, k, i)) if p]
+    elif act == Act.DISCHARGE:
+        parts.append(f"discharge it to its storage level ({f.storage_soc[i]:.0f} %): to "
+                     f"{f.storage_voltage_v[i]:.2f} V at rest")
+    elif act == Act.WAIT:
+        parts.append("a charge is due, but no bay with mains is inside its charge window "
+                     "today: move it to a warm room with mains")
+    elif act == Act.STORE and v.kind[k] != Kind.ROUND:
+        parts.append("store it as it is" + ("" if f.lead[i] else " (inside 40-50 %)"))
+    else:
+        parts.append(_check_words(plan, k, i))
+    if act != Act.MAINTAINER and v.kind[k] == Kind.INTAKE and f.lead[i]:
+        parts.append("flooded: check the electrolyte level, top up with distilled water only"
+                     if plan.chemistry[i] == "flooded" else "check terminals and case")
+    return "; ".join(parts)
+
+
+def freeze_action(plan: StoragePlan, k: int) -> str:
+    v = plan.visits
+    remedy = int(v.remedy[k])
+    text = REMEDY_TEXT[Remedy(remedy)]
+    if remedy == Remedy.SOONER:
+        text = text.format(date=plan.dates[int(v.remedy_day[k])].isoformat())
+    return text
+
+
+def _reading_cells(plan: StoragePlan) -> dict[tuple[int, int], str]:
+    index = {row.id: i for i, row in enumerate(plan.rows)}
+    out: dict[tuple[int, int], str] = {}
+    for flag in plan.reading_flags:
+        i = index.get(flag.battery)
+        if i is not None:
+            out[(i, (flag.date - plan.dates[0]).days)] = f"{flag.code}: {flag.text}"
+    return out
+
+
+def _num(value: float, places: int = 1) -> str:
+    return "" if not np.isfinite(value) else f"{value:.{places}f}"
+
+
+def _schedule_row(plan: StoragePlan, k: int, readings: dict[tuple[int, int], str]) -> list[Any]:
+    v, f = plan.visits, plan.fleet
+    i, day = int(v.battery[k]), int(v.day[k])
+    row = f.rows[i]
+    s = plan.setting_of(k)
+    charged = s is not None and not s.refused
+    return [plan.dates[day].isoformat(), row.id, row.owner, f.chemistry[i],
+            plan.bay_names[int(v.bay[k])], _num(v.soc_before[k], 0) or "unknown",
+            action_text(plan, k), "yes" if v.freeze[k] else "", charge_text(plan, k),
+            KIND_TEXT[Kind(int(v.kind[k]))], _num(v.soc_after[k], 0),
+            plan.bay_names[int(v.where[k])] if charged else "",
+            s.chemistry_setting if charged else "", f"{s.voltage_v:.2f}" if charged else "",
+            f"{s.current_a:.1f}" if charged else "", f"{s.hours:.1f}" if charged else "",
+            _num(v.freeze_c[k]), _num(v.low_c[k]), _num(v.margin_k[k]), freeze_action(plan, k),
+            readings.get((i, day), "")]
 
 
 def schedule_csv(plan: StoragePlan) -> str:
-    """One row per battery per round: the predicted charge, what to do, the charge plan."""
-    by_round = defaultdict(dict)
-    for t in plan.top_ups:
-        by_round[t.day][t.battery] = t
-    waiting = defaultdict(set)
-    for i, d in plan.postponed:
-        waiting[d].add(i)
+    """One row per visit (intake, each round, each reading, the release): the predicted charge,
+    what to do, the charger's settings, the freeze check with its margin."""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(SCHEDULE_COLUMNS)
-    step = plan.round_step
-    for r, d in enumerate(plan.round_days):
-        date = plan.dates[d].isoformat()
-        end = min(d + step, len(plan.dates))
-        for i, row in enumerate(plan.rows):
-            soc = float(plan.soc_at_rounds[i, r])
-            t = by_round[d].get(i)
-            if plan.on_maintainer[i]:
-                action = "check the maintainer is connected and charging"
-                charge = plan.maintainer.get(i, "on a maintainer")
-            elif t is not None:
-                if t.where != row.bay:
-                    action = (f"move to {t.where}; wait until the battery itself is above "
-                              "0 degC (measure it; hours to overnight), then top up")
-                else:
-                    action = "top up"
-                if plan.family[i] == "lead_acid" and plan.bay_min is not None and (
-                        plan.bay_index is not None and plan.bay_min[plan.bay_index[i], d] < 0):
-                    action += "; first check it is not frozen (no ice, no bulging case)"
-                charge = t.plan
-            elif i in waiting[d]:
-                action = ("top-up due, but no bay with mains is inside its charge window "
-                          "today: move it to a warm room with mains")
-                charge = ""
-            else:
-                action, charge = "measure the rested voltage", ""
-            freeze = plan.first_freeze_day[i]
-            risk = "yes" if d <= freeze < end else ""
-            csv_row(writer, (date, row.id, row.owner, plan.chemistry[i], row.bay,
-                             f"{soc:.0f}", action, risk, charge))
+    readings = _reading_cells(plan)
+    for k in range(len(plan.visits)):
+        csv_row(writer, _schedule_row(plan, k, readings))
     return out.getvalue()
 
 
 def calendar_ics(plan: StoragePlan) -> bytes:
-    """One event per round day (RFC 5545, via icalendar), listing the batteries due."""
+    """One event per round day and one for the spring release (RFC 5545, via icalendar)."""
+    import datetime as dt
+    import hashlib
+
     import icalendar
 
     cal = icalendar.Calendar()
     cal.add("prodid", "-//chargeplan//storage rounds//EN")
     cal.add("version", "2.0")
     stamp = dt.datetime.combine(plan.dates[0], dt.time(0, 0), tzinfo=dt.UTC)
-    by_day = defaultdict(list)
-    for t in plan.top_ups:
-        by_day[t.day].append(t)
     name = plan.site_file.site.name
+    site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
+    v = plan.visits
     for d in plan.round_days:
-        due = by_day.get(d, [])
+        here = np.flatnonzero((v.day == d) & (v.kind != Kind.RELEASE))
+        due = [k for k in here if v.act[k] in CHARGES]
         event = icalendar.Event()
-        site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
         event.add("uid", f"{plan.dates[d].isoformat()}-{site_key}@chargeplan")
         event.add("dtstamp", stamp)
         event.add("dtstart", plan.dates[d])
         event.add("dtend", plan.dates[d] + dt.timedelta(days=1))
         event.add("summary", f"Battery round, {name}: " + (
-            f"{len(due)} top-up{'s' if len(due) != 1 else ''}" if due else "checks only"))
-        lines = [f"Top up: {plan.rows[t.battery].id} ({plan.rows[t.battery].bay}"
-                 + (f" -> {t.where}" if t.where != plan.rows[t.battery].bay else "") + ")"
-                 for t in due]
-        lines.append("Measure every stored battery's rested voltage; see procedure.md.")
+            f"{len(due)} charge{'s' if len(due) != 1 else ''}" if due else "checks only"))
+        lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
+                 for k in due]
+        lines.append("Check every stored battery; see the round sheet and procedure.md.")
         event.add("description", "\n".join(lines))
         cal.add_component(event)
     return cal.to_ical()
-
-
-def _bands(plan: StoragePlan, profiles: ProfileSet) -> list[dict[str, Any]]:
-    """Per chemistry and cell count present: the rested voltage that means 'charge now'."""
-    seen: dict[tuple[str, int], dict[str, Any]] = {}
-    for i in range(len(plan.rows)):
-        key = (plan.chemistry[i], int(plan.cells[i]))
-        if key in seen:
-            continue
-        profile = profiles.get(key[0])
-        table = profile.rest_voltage.table
-        threshold = float(plan.threshold[i])
-        seen[key] = {
-            "chemistry": profile.name, "cells": key[1],
-            "threshold_pct": threshold,
-            "charge_below_v": float(ocv_from_soc(threshold, table)) * key[1],
-            "full_v": float(ocv_from_soc(100.0, table)) * key[1],
-            "storage_v": float(ocv_from_soc(float(plan.target_soc[i]), table)) * key[1],
-            "lithium": profile.family == "lithium",
-        }
-    return list(seen.values())
 
 
 @lru_cache(maxsize=2)
@@ -131,24 +230,20 @@ def _environment(html: bool) -> Any:
 
 def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None,
               html: bool = False) -> str:
-    """The written winter procedure, per chemistry present, with cautions and the deferral."""
-    profile_set = profiles or ProfileSet(use_environment=False)
-    families = sorted(set(plan.family.tolist()))
-    vented = any(profile_set.get(c).vented for c in set(plan.chemistry))
-    cautions: list[str] = []
-    for family in families:
-        for line in cautions_for(family, vented=vented and family == "lead_acid")[:-1]:
-            if line not in cautions:
-                cautions.append(line)
-    from chargeplan.cautions import DEFERRAL as deferral
-    first = plan.first_freeze_day[plan.first_freeze_day >= 0]
-    context = {
-        "site": plan.site_file.site, "plan": plan, "bands": _bands(plan, profile_set),
-        "families": families, "cautions": cautions, "deferral": deferral,
-        "maintained": int(plan.on_maintainer.sum()), "top_ups": len(plan.top_ups),
-        "first_freeze": plan.dates[int(first.min())].isoformat() if first.size else None,
-        "coldest": float(np.min(plan.bay_min)) if plan.bay_min is not None else None,
-        "notes": [(plan.rows[i].id, why) for i, why in plan.notes],
-    }
+    """The written winter procedure for this site, with cautions and the deferral."""
+    from chargeplan.render.storage_sections import procedure_sections
+
+    title, sections = procedure_sections(plan, profiles or ProfileSet(use_environment=False))
     name = "storage.html.j2" if html else "storage.md.j2"
-    return str(_environment(html).get_template(name).render(**context))
+    return str(_environment(html).get_template(name).render(title=title, sections=sections))
+
+
+def storage_files(plan: StoragePlan, profiles: ProfileSet,
+                  previous_folder: Any = None) -> dict[str, str | bytes]:
+    """Every file the storage command writes into its folder, by name."""
+    return {
+        "procedure.md": procedure(plan, profiles=profiles),
+        "procedure.html": procedure(plan, profiles=profiles, html=True),
+        "schedule.csv": schedule_csv(plan),
+        "calendar.ics": calendar_ics(plan),
+    }

@@ -111,8 +111,9 @@ class InventoryRow(BatteryRow):
         default=None, alias="parasitic_draw",
         description="the draw of a load wired to the battery, e.g. '20 mA'")
     loads: Literal["connected", "disconnected"] | None = Field(
-        default=None, description="whether its load stays connected in store (default: "
-        "connected when a parasitic_draw is given); the procedure tells staff the same")
+        default=None, description="connected: its load must stay connected all season; "
+        "disconnected: it is disconnected at intake; unset: connected when a parasitic_draw "
+        "is given, and disconnected by staff when it would freeze the battery")
     arrive: dt.date | None = Field(default=None, description="the day it comes in, if after "
                                    "the season's start")
     depart: dt.date | None = Field(default=None, description="the day it leaves, if before "

@@ -50,6 +50,7 @@ class Fleet:
     threshold: np.ndarray  # % below which it is topped up
     draw_pct_day: np.ndarray  # its load's draw while connected, %/day
     connected: np.ndarray  # bool: its load stays connected
+    may_disconnect: np.ndarray  # bool: staff may disconnect it (loads not given as connected)
     charge_min_c: np.ndarray
     charge_max_c: np.ndarray
 
@@ -156,6 +157,7 @@ def _arrays(site_file: SiteFile, rows: list[InventoryRow], resolved: list[Any]) 
                                     else np.nan for p in profiles]) * cells,
         draw_pct_day=np.array([r.parasitic_draw_a or 0.0 for r in rows]) * 24.0 / cap * 100.0,
         connected=np.array([r.load_connected for r in rows], dtype=bool),
+        may_disconnect=np.array([r.loads != "connected" for r in rows], dtype=bool),
         charge_min_c=np.where(lead, low_c, np.maximum(low_c, 0.0)),  # never lithium below 0
         charge_max_c=high_c,
     )

@@ -100,6 +100,7 @@ class Season:
     threshold: np.ndarray
     draw_pct_day: np.ndarray
     connected: np.ndarray
+    may_disconnect: np.ndarray
     charge_min_c: np.ndarray
     charge_max_c: np.ndarray
     on_maintainer: np.ndarray
@@ -169,6 +170,7 @@ class _State:
         self.connected = s.connected.copy()
         self.pending = np.zeros(s.n, dtype=bool)
         self.done = s.refused.copy()  # no rounds for a refused battery
+        self.extra: dict[int, list[int]] = {}  # day -> batteries to top up again that day
         self.parts: dict[str, list[np.ndarray]] = {c: [] for c in _COLUMNS}
         # daily loss (%/day) per profile kind and bay, and its running sum along the season
         sd = self_discharge_rate(s.rate[:, None, None], s.bay_mean[None, :, :],
@@ -289,17 +291,21 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
     remedy = np.where(before_risk & (remedy == Remedy.NONE) & charging, Remedy.CHARGE_NOW,
                       remedy)
     st.soc[idx] = after
+    # the margin until the next visit: the next round, or the extra top-up called for
     pred = st.predicted(idx, after, d, end)
-    freeze_c = np.where(s.lead[idx], freezing_point_at(pred.min(axis=1)), np.nan)
-    low_c = s.bay_min[st.bay[idx], d:end].min(axis=1)
-    margin = np.where(s.lead[idx], (s.bay_min[st.bay[idx], d:end]
-                                    - freezing_point_at(pred)).min(axis=1), np.nan)
+    until = np.where(remedy == Remedy.SOONER, remedy_day, end - 1)
+    seen = np.arange(d, end)[None, :] <= until[:, None]
+    pred = np.where(seen, pred, np.nan)
+    lows = np.where(seen, s.bay_min[st.bay[idx], d:end], np.nan)
+    freeze_c = np.where(s.lead[idx], freezing_point_at(np.nanmin(pred, axis=1)), np.nan)
+    low_c = np.nanmin(lows, axis=1)
+    margin = np.where(s.lead[idx], np.nanmin(lows - freezing_point_at(pred), axis=1), np.nan)
     risk = before_risk | (remedy != Remedy.NONE)
     st.record(day=np.full(len(idx), d), battery=idx, kind=kind, act=act, where=where,
               bay=st.bay[idx].copy(), soc_before=soc, soc_after=after, thaw=thaw,
               freeze=risk & ~s.on_maintainer[idx], remedy=remedy, remedy_day=remedy_day,
               freeze_c=freeze_c, low_c=low_c, margin_k=margin,
-              end_day=np.full(len(idx), end - 1))
+              end_day=until)
 
 
 def _remedies(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray,
@@ -311,7 +317,7 @@ def _remedies(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray,
     remedy_day = np.full(len(idx), -1)
     eligible = ~s.on_maintainer[idx] & ~s.refused[idx]
     risk = st.at_risk(idx, soc, d, end).any(axis=1) & eligible
-    load = risk & st.connected[idx] & (s.draw_pct_day[idx] > 0)
+    load = risk & st.connected[idx] & s.may_disconnect[idx] & (s.draw_pct_day[idx] > 0)
     st.connected[idx[load]] = False
     remedy[load] = Remedy.DISCONNECT
     risk = st.at_risk(idx, soc, d, end).any(axis=1) & eligible
@@ -325,6 +331,8 @@ def _remedies(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray,
         sooner = risk & (first > 0)
         remedy[sooner] = Remedy.SOONER
         remedy_day[sooner] = d + first[sooner] - 1
+        for i, day in zip(idx[sooner], remedy_day[sooner], strict=True):
+            st.extra.setdefault(int(day), []).append(int(i))
         remedy[risk & ~sooner] = Remedy.NOTHING
     return remedy, remedy_day
 
@@ -352,6 +360,25 @@ def _walk_days(st: _State, d: int, stop: int, soc_daily: np.ndarray,
         bay_daily[:, day] = st.bay
 
 
+def _visitors(st: _State, d: int, rounds: set[int],
+              readings: dict[int, list[tuple[int, float]]]) -> tuple[np.ndarray, np.ndarray]:
+    """Who is visited on day ``d``, as what, and the charge each starts from."""
+    s = st.s
+    kind = np.full(s.n, -1)
+    present = (s.arrive <= d) & (s.depart >= d)
+    if d in rounds:
+        kind[present & ~st.done] = Kind.ROUND
+    for i in st.extra.pop(d, []):
+        if present[i]:
+            kind[i] = Kind.ROUND  # the extra top-up a freeze risk called for
+    kind[s.arrive == d] = Kind.INTAKE
+    value = np.where(s.arrive == d, s.intake_soc, st.soc)
+    for i, measured in readings.get(d, []):
+        if present[i] and not s.refused[i]:
+            kind[i], value[i] = Kind.READING, measured
+    return kind, value
+
+
 def run_season(s: Season) -> Result:
     """Walk the season (see the module docstring); every visit is recorded."""
     st = _State(s)
@@ -361,23 +388,17 @@ def run_season(s: Season) -> Result:
     readings: dict[int, list[tuple[int, float]]] = {}
     for day, i, value in s.readings:
         readings.setdefault(day, []).append((i, value))
-    days = _decision_days(s)
-    for at, d in enumerate(days):
-        end = _next_round(s, d)
-        kind = np.full(s.n, -1)
-        present = (s.arrive <= d) & (s.depart >= d)
-        if d in rounds:
-            kind[present & ~st.done] = Kind.ROUND
-        kind[s.arrive == d] = Kind.INTAKE
-        value = np.where(s.arrive == d, s.intake_soc, st.soc)
-        for i, measured in readings.get(d, []):
-            if present[i] and not s.refused[i]:
-                kind[i], value[i] = Kind.READING, measured
+    planned = set(_decision_days(s))
+    d = min(planned) if planned else s.days
+    while d < s.days:
+        kind, value = _visitors(st, d, rounds, readings)
         idx = np.flatnonzero(kind >= 0)
         if idx.size:
-            _visit(st, idx, d, end, kind[idx], value[idx])
-        _walk_days(st, d, days[at + 1] if at + 1 < len(days) else s.days, soc_daily,
-                   bay_daily)
+            _visit(st, idx, d, _next_round(s, d), kind[idx], value[idx])
+        later = [x for x in (*planned, *st.extra) if x > d]
+        stop = min(later) if later else s.days
+        _walk_days(st, d, stop, soc_daily, bay_daily)
+        d = stop
     _release(st, soc_daily)
     parts = {c: np.concatenate(v) if v else np.zeros(0) for c, v in st.parts.items()}
     order = np.lexsort((parts["battery"], parts["day"]))

@@ -166,11 +166,12 @@ def test_outputs_are_written_and_well_formed(tmp_path):
     out = tmp_path / "out"
     result = runner.invoke(app, ["storage", str(site), "-o", str(out)])
     assert result.exit_code == 0, result.output
-    assert {p.name for p in out.iterdir()} == {"procedure.md", "procedure.html",
-                                               "schedule.csv", "calendar.ics"}
+    names = {p.name for p in out.iterdir()}
+    assert {"procedure.md", "procedure.html", "schedule.csv", "calendar.ics", "rounds.md",
+            "rounds.html", "readings.csv", "warm-room-2026-10-15.csv"} <= names
     cal = icalendar.Calendar.from_ical((out / "calendar.ics").read_bytes())
     events = [c for c in cal.walk("VEVENT")]
-    assert len(events) == 14  # 183 days (both ends in), a round every 14 days
+    assert len(events) == 15  # 183 days (both ends in), a round every 14 days; the release
     procedure = (out / "procedure.md").read_text()
     # Battery Council International table: 75 % rested is 12.45 V on 6 cells
     assert "12.45 V (75 %)" in procedure

@@ -221,3 +221,114 @@ def test_extra_inventory_columns_are_carried_as_notes(tmp_path):
     from chargeplan.planners.storage import read_inventory
 
     assert read_inventory(csv_path)[0].notes == "phone: 555 0100"
+
+
+def _lakeside():
+    from chargeplan.demo import example_paths
+
+    return next(p for p in example_paths(include_storage=True) if "storage" in p.name)
+
+
+def test_calendar_signals_changed_and_cancelled_rounds(tmp_path):
+    # RFC 5545 3.8.7.4 (SEQUENCE), 3.8.7.2 (DTSTAMP) and 3.8.1.11 (STATUS:CANCELLED),
+    # read back with the icalendar library
+    import icalendar
+
+    from chargeplan.planners.storage import load_site
+    from chargeplan.render.ics import read_previous
+    from chargeplan.render.storage_docs import calendar_ics
+
+    first = dt.datetime(2026, 10, 1, 8, 0, tzinfo=dt.UTC)
+    later = dt.datetime(2026, 10, 20, 9, 30, tzinfo=dt.UTC)
+    site = load_site(_lakeside())
+    path = tmp_path / "calendar.ics"
+    path.write_bytes(calendar_ics(plan_storage(site), {}, first))
+    assert calendar_ics(plan_storage(site), read_previous(path), later) == path.read_bytes()
+    shorter = site.model_copy(update={"site": site.site.model_copy(
+        update={"end": dt.date(2027, 3, 20)})})
+    inventory = [r.model_copy(update={"state_of_charge_pct": 60.0, "rest_voltage_v": None})
+                 if r.id == "LS-002" else r for r in site.inventory]
+    changed = shorter.model_copy(update={"inventory": inventory})
+    path.write_bytes(calendar_ics(plan_storage(changed), read_previous(path), later))
+    events = {str(e["uid"]): e for e in icalendar.Calendar.from_ical(
+        path.read_bytes()).walk("VEVENT")}
+    first_round = events[next(u for u in events if u.startswith("2026-10-15"))]
+    assert int(first_round["sequence"]) == 0  # LS-002 was charged at intake before, too
+    gone = [e for u, e in events.items() if u.startswith(("2027-04-01", "2027-04-15"))]
+    assert gone and all(str(e["status"]) == "CANCELLED" and int(e["sequence"]) == 1
+                        for e in gone)
+    assert all(e.decoded("dtstamp") == later for e in gone)
+    moved = [e for u, e in events.items() if u.startswith("release-2027-03-20")]
+    assert moved and int(moved[0]["sequence"]) == 0
+    # written once: the next run drops the cancelled rounds
+    again = calendar_ics(plan_storage(changed), read_previous(path), later)
+    uids = [str(e["uid"]) for e in icalendar.Calendar.from_ical(again).walk("VEVENT")]
+    assert not any(u.startswith("2027-04-01") for u in uids)
+
+
+def test_round_sheets_and_their_readings_template(tmp_path):
+    out = tmp_path / "out"
+    result = runner.invoke(app, ["storage", str(_lakeside()), "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    sheet = (out / "rounds.md").read_text()
+    schedule = list(csv.DictReader(io.StringIO((out / "schedule.csv").read_text())))
+    first = schedule[0]
+    # the sheet carries the engine's charger settings, exactly as the schedule has them
+    assert first["charge_plan"] and first["charge_plan"] in sheet
+    assert "## Round 1, 2026-10-15: shed north" in sheet
+    assert "electrolyte level and SG" in sheet and "terminals and case" in sheet
+    assert "returned to shed north" in sheet
+    template = (out / "readings.csv").read_text()
+    assert template.splitlines()[0].startswith("date,battery,owner,bay,expected_rest_voltage,"
+                                               "rest_voltage")
+    # read back as it is (all blank), then with one reading filled in
+    from chargeplan.planners.storage import read_readings
+
+    assert read_readings(out / "readings.csv") == []
+    lines = template.splitlines()
+    cells = lines[1].split(",")
+    cells[5] = "12.10 V"
+    (out / "readings.csv").write_text("\n".join([lines[0], ",".join(cells), *lines[2:]]) + "\n")
+    assert [r.rest_voltage_v for r in read_readings(out / "readings.csv")] == [12.10]
+    rerun = runner.invoke(app, ["storage", str(_lakeside()), "--readings",
+                                str(out / "readings.csv")])
+    assert rerun.exit_code == 0 and "reading: LS-001" in rerun.stdout
+
+
+def test_warm_room_jobs_go_to_the_bench_and_its_air_is_checked(tmp_path):
+    from chargeplan.physics.ventilation import ventilation_airflow_iec62485
+    from chargeplan.planners.bench import read_bench_batteries
+    from chargeplan.planners.storage import load_site
+
+    out = tmp_path / "out"
+    assert runner.invoke(app, ["storage", str(_lakeside()), "-o", str(out)]).exit_code == 0
+    jobs = read_bench_batteries(out / "warm-room-2026-10-15.csv")
+    assert [b.id for b in jobs] == ["LS-001", "LS-003", "LS-005"]
+    assert all(b.temperature_c == 29 for b in jobs)  # the workshop: 9 degC + 20 K
+    # IEC 62485-2 cl. 7: Q = 0.05 n Igas C 10^-3; boost: vented 20, VRLA 8 mA/Ah
+    plan = plan_storage(load_site(_lakeside()))
+    day = plan.ventilation()[0]
+    expected = 0.05 * 6 * 20 * 75 * 1e-3 + 0.05 * 6 * 8 * 18 * 1e-3
+    assert day.airflow_m3_per_h == pytest.approx(expected)
+    assert float(ventilation_airflow_iec62485(6, 75, 20)) == pytest.approx(0.45)
+    assert "Ventilation of workshop" in (out / "procedure.md").read_text()
+
+
+def test_maintainer_hold_follows_the_month():
+    # BU-410: -3 mV/degC per cell about 25 degC (IEC 62485-2 Table 1: VRLA float 2.27 V/cell)
+    from chargeplan.model.storage import SiteFile
+
+    months = [(11, -3, -8), (12, 0, -5), (1, 3, -2), (2, 8, 2)]
+    plan = plan_storage(SiteFile.model_validate({
+        "site": {"name": "Depot", "start": dt.date(2026, 11, 1), "duration": "120 d",
+                 "round_interval": "14 d", "policy": "maintainer"},
+        "monthly": [{"month": m, "mean": f"{a} degC", "min": f"{b} degC"} for m, a, b in months],
+        "bays": [{"name": "A", "mains": True}], "inventory": [_battery(1, "agm")]}))
+    v = plan.visits
+    held = np.flatnonzero(v.act == Act.MAINTAINER)
+    by_month = {plan.dates[int(v.day[k])].month: float(plan.visit_hold_v[k]) for k in held}
+    for month, temp in ((11, -3), (2, 8)):
+        assert by_month[month] == pytest.approx((2.27 + 0.003 * (25 - temp)) * 6, abs=0.011)
+    rows = _rows(plan)
+    assert all("do not measure the rest voltage" in r["action"] for r in rows
+               if r["visit"] == "round")

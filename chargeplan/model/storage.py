@@ -55,6 +55,12 @@ class Bay(InputModel):
         default=None, description="this bay's own temperatures (else the site's)")
     offset_k: quantity("temperature_difference", ge=-40, le=40) | None = Field(
         default=None, alias="offset", description="warmer (+) or colder than the site, e.g. '+8 K'")
+    airflow_m3_per_h: quantity("airflow", ge=0, le=1e7) | None = Field(
+        default=None, alias="airflow", description="mechanical ventilation, for charging "
+        "lead-acid here (IEC 62485-2 cl. 7)")
+    opening_area_cm2: quantity("area", ge=0, le=1e8) | None = Field(
+        default=None, alias="opening_area",
+        description="free area of each of the inlet and outlet, for natural ventilation")
 
 
 class Site(InputModel):

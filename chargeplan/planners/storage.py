@@ -272,6 +272,36 @@ class StoragePlan:
                          "expected": None}
         return list(seen.values())
 
+    def ventilation(self) -> list[Any]:
+        """The warm room's ventilation on each day it charges lead-acid (IEC 62485-2 cl. 7)."""
+        from chargeplan.planners.storage_ventilation import warm_room_ventilation
+        from chargeplan.planners.ventilation import available_airflow
+
+        site = self.site_file.site
+        if site.warm_room is None:
+            return []
+        warm = self.bay_names.index(site.warm_room)
+        room = self.site_file.bays[warm]
+        given = room.airflow_m3_per_h is not None or room.opening_area_cm2 is not None
+        f = self.fleet
+        return warm_room_ventilation(
+            self.visits, warm, f.lead, np.array([p.vented for p in f.profiles], dtype=bool),
+            f.cells, f.capacity_ah, self.dates,
+            available_airflow(room.airflow_m3_per_h, room.opening_area_cm2) if given else None)
+
+    def expected_rest_v(self, k: int) -> float:
+        """The rested voltage visit ``k``'s predicted charge means (the profile's table); NaN
+        where a rest voltage says nothing (LiFePO4's flat curve, a battery on a maintainer)."""
+        from chargeplan.physics.ocv import ocv_from_soc
+
+        v, f = self.visits, self.fleet
+        i = int(v.battery[k])
+        soc = float(v.soc_before[k])
+        if not np.isfinite(soc) or flat_reading(bool(f.lfp[i]), soc) or (
+                v.act[k] == Act.MAINTAINER):
+            return float("nan")
+        return float(ocv_from_soc(soc, f.profiles[i].rest_voltage.table)) * int(f.cells[i])
+
     def setting_of(self, k: int) -> ChargeSetting | None:
         if self.visit_setting is None or self.visit_setting[k] < 0:
             return None
@@ -523,6 +553,7 @@ def _notes(plan: StoragePlan) -> None:
         plan.notes.append(Note(int(i), "load-connected", f"its "
                                f"{f.rows[i].parasitic_draw_a * 1000:.0f} mA load stays "
                                "connected (loads: connected): it drains the battery"))
+    _fast_losers(plan)
     for i in sorted({int(b) for b in v.battery[v.act == Act.WAIT]}):
         since = plan.dates[int(v.day[(v.act == Act.WAIT) & (v.battery == i)].min())]
         low = float(np.nanmin(plan.soc_daily[i]))
@@ -534,6 +565,22 @@ def _notes(plan: StoragePlan) -> None:
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "
                                "freezing point of even a full battery: store it indoors"))
+
+
+def _fast_losers(plan: StoragePlan) -> None:
+    """Batteries that fall below their threshold within one round even when charged full."""
+    f, v = plan.fleet, plan.visits
+    order = np.lexsort((v.day, v.battery))
+    b, before, after = v.battery[order], v.soc_before[order], v.soc_after[order]
+    kind = v.kind[order]
+    same = b[1:] == b[:-1]
+    fell = same & (after[:-1] >= f.storage_soc[b[:-1]] - 0.5) & (kind[1:] == Kind.ROUND) & (
+        before[1:] < f.threshold[b[1:]])
+    for i in sorted(set(b[1:][fell].tolist())):
+        low = float(np.nanmin(before[1:][fell & (b[1:] == i)]))
+        plan.notes.append(Note(int(i), "loses-fast", f"falls to {low:.0f} % between rounds even "
+                               "when charged full: disconnect its load, put it on a maintainer, "
+                               "or round more often"))
 
 
 def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:

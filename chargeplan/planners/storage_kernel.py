@@ -281,7 +281,7 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
     charging = np.isin(act, CHARGES)
     where = _place(st, idx, d, np.nan_to_num(soc), thaw)
     act = np.where(charging & (where < 0), Act.WAIT, act)
-    where = np.where(where < 0, st.bay[idx], where)
+    where = np.where((where < 0) | ~np.isin(act, CHARGES), st.bay[idx], where)
     st.pending[idx] = act == Act.WAIT
     after = np.where(np.isin(act, (*CHARGES, Act.DISCHARGE)), s.target[idx], soc)
     after = np.where(s.on_maintainer[idx] & ~s.refused[idx] & (act != Act.WAIT),

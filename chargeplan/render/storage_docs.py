@@ -20,8 +20,8 @@ from chargeplan.planners.storage import StoragePlan
 from chargeplan.planners.storage_kernel import CHARGES, Act, Kind, Remedy
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["SCHEDULE_COLUMNS", "action_text", "calendar_ics", "charge_text", "procedure",
-           "schedule_csv"]
+__all__ = ["SCHEDULE_COLUMNS", "action_text", "bench_batteries", "calendar_events",
+           "calendar_ics", "charge_text", "procedure", "schedule_csv", "storage_files"]
 
 SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_soc_pct",
                     "action", "freeze_risk", "charge_plan", "visit", "soc_after_pct",
@@ -187,36 +187,75 @@ def schedule_csv(plan: StoragePlan) -> str:
     return out.getvalue()
 
 
-def calendar_ics(plan: StoragePlan) -> bytes:
-    """One event per round day and one for the spring release (RFC 5545, via icalendar)."""
+def calendar_events(plan: StoragePlan) -> list[Any]:
+    """One event per round day and one per release day (each battery's departure, or the
+    season's end), with stable UIDs."""
     import datetime as dt
     import hashlib
 
-    import icalendar
+    from chargeplan.render.ics import EventSpec
 
-    cal = icalendar.Calendar()
-    cal.add("prodid", "-//chargeplan//storage rounds//EN")
-    cal.add("version", "2.0")
-    stamp = dt.datetime.combine(plan.dates[0], dt.time(0, 0), tzinfo=dt.UTC)
     name = plan.site_file.site.name
     site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
     v = plan.visits
+    events = []
     for d in plan.round_days:
         here = np.flatnonzero((v.day == d) & (v.kind != Kind.RELEASE))
         due = [k for k in here if v.act[k] in CHARGES]
-        event = icalendar.Event()
-        event.add("uid", f"{plan.dates[d].isoformat()}-{site_key}@chargeplan")
-        event.add("dtstamp", stamp)
-        event.add("dtstart", plan.dates[d])
-        event.add("dtend", plan.dates[d] + dt.timedelta(days=1))
-        event.add("summary", f"Battery round, {name}: " + (
-            f"{len(due)} charge{'s' if len(due) != 1 else ''}" if due else "checks only"))
         lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
                  for k in due]
-        lines.append("Check every stored battery; see the round sheet and procedure.md.")
-        event.add("description", "\n".join(lines))
-        cal.add_component(event)
-    return cal.to_ical()
+        lines.append("Check every stored battery; see rounds.html and procedure.md.")
+        events.append(EventSpec(
+            f"{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
+            plan.dates[d] + dt.timedelta(days=1), f"Battery round, {name}: " + (
+                f"{len(due)} charge{'s' if len(due) != 1 else ''}" if due else "checks only"),
+            "\n".join(lines)))
+    for d in sorted(set(v.day[v.kind == Kind.RELEASE].tolist())):
+        ids = [plan.rows[int(b)].id for b in v.battery[(v.kind == Kind.RELEASE) & (v.day == d)]]
+        events.append(EventSpec(
+            f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
+            plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {len(ids)} "
+            f"batter{'ies' if len(ids) != 1 else 'y'}", "Release: " + ", ".join(ids[:200])
+            + (f" and {len(ids) - 200} more" if len(ids) > 200 else "")
+            + "\nMeasure, charge as procedure.md says, reconnect loads, hand back."))
+    return events
+
+
+def calendar_ics(plan: StoragePlan, previous: dict[str, Any] | None = None,
+                 now: Any = None) -> bytes:
+    """The rounds and releases (RFC 5545), compared with the calendar written before."""
+    from chargeplan.render.ics import write_calendar
+
+    return write_calendar(calendar_events(plan), previous or {},
+                          prodid="-//chargeplan//storage rounds//EN", now=now)
+
+
+BENCH_COLUMNS = ("id", "chemistry", "cells_in_series", "capacity", "state_of_charge",
+                 "temperature")
+
+
+def bench_batteries(plan: StoragePlan) -> dict[str, str]:
+    """Per day on which the warm room charges, its charge jobs as a bench batteries CSV
+    (``chargeplan bench FILE --batteries warm-room-DATE.csv``)."""
+    site = plan.site_file.site
+    if site.warm_room is None:
+        return {}
+    warm = plan.bay_names.index(site.warm_room)
+    v, f = plan.visits, plan.fleet
+    chosen = np.flatnonzero(np.isin(v.act, CHARGES) & (v.where == warm))
+    files: dict[str, str] = {}
+    for d in sorted(set(v.day[chosen].tolist())):
+        out = io.StringIO()
+        writer = csv.writer(out, lineterminator="\n")
+        writer.writerow(BENCH_COLUMNS)
+        for k in chosen[v.day[chosen] == d]:
+            i = int(v.battery[k])
+            soc = v.soc_before[k]
+            csv_row(writer, (f.rows[i].id, f.chemistry[i], int(f.cells[i]),
+                             f"{f.capacity_ah[i]:g} Ah", f"{soc:.0f} %" if np.isfinite(soc)
+                             else "", f"{plan.bay_mean[warm, d]:.0f} degC"))
+        files[f"warm-room-{plan.dates[d].isoformat()}.csv"] = out.getvalue()
+    return files
 
 
 @lru_cache(maxsize=2)
@@ -238,12 +277,24 @@ def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None,
     return str(_environment(html).get_template(name).render(title=title, sections=sections))
 
 
-def storage_files(plan: StoragePlan, profiles: ProfileSet,
-                  previous_folder: Any = None) -> dict[str, str | bytes]:
-    """Every file the storage command writes into its folder, by name."""
+def storage_files(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any = None,
+                  now: Any = None) -> dict[str, str | bytes]:
+    """Every file the storage command writes into its folder, by name. The calendar already
+    in ``previous_folder`` is read first, so changed and cancelled rounds are signalled."""
+    from pathlib import Path
+
+    from chargeplan.render.ics import read_previous
+    from chargeplan.render.storage_rounds import readings_template, round_sheets
+
+    previous = read_previous(Path(previous_folder) / "calendar.ics") if previous_folder else {}
+
     return {
         "procedure.md": procedure(plan, profiles=profiles),
         "procedure.html": procedure(plan, profiles=profiles, html=True),
         "schedule.csv": schedule_csv(plan),
-        "calendar.ics": calendar_ics(plan),
+        "calendar.ics": calendar_ics(plan, previous, now),
+        **bench_batteries(plan),
+        "rounds.md": round_sheets(plan),
+        "rounds.html": round_sheets(plan, html=True),
+        "readings.csv": readings_template(plan),
     }

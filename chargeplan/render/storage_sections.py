@@ -155,6 +155,28 @@ def _freeze(plan: StoragePlan) -> Section:
                 "action"] if chosen.size else [], rows=rows)
 
 
+def _ventilation(plan: StoragePlan) -> Section | None:
+    days = plan.ventilation()
+    if not days:
+        return None
+    worst = max(days, key=lambda d: d.airflow_m3_per_h)
+    room = plan.site_file.site.warm_room
+    shown = [d for d in days if d.ok is not True][:LISTED_MAX]
+    given = worst.available_m3_per_h
+    verdict = ("its ventilation is not given: make sure it gives at least that" if given is None
+               else f"it gives {given:.3g} m3/h: " + ("enough on every day" if all(
+                   d.ok for d in days) else "not enough on the days listed; stagger the charges"))
+    return Section(f"Ventilation of {room}", paragraphs=[
+        f"Lead-acid charges in {room} on {len(days)} days; with all of a day's charges "
+        f"running at once the most is {worst.batteries} batteries on {worst.date.isoformat()}, "
+        f"needing {worst.airflow_m3_per_h:.3g} m3/h of air, or free openings of "
+        f"{worst.opening_area_cm2:.0f} cm2 for inlet and outlet each (IEC 62485-2 cl. 7: Q = "
+        f"0.05 n Igas C 10^-3, boost gas current); {verdict}."],
+        header=["date", "lead-acid charging", "air needed", "openings needed"] if shown else [],
+        rows=[[d.date.isoformat(), str(d.batteries), f"{d.airflow_m3_per_h:.3g} m3/h",
+               f"{d.opening_area_cm2:.0f} cm2"] for d in shown])
+
+
 def _readings(plan: StoragePlan) -> Section | None:
     if not plan.reading_flags:
         return None
@@ -188,6 +210,6 @@ def _closing(plan: StoragePlan, profiles: ProfileSet) -> list[Section]:
 
 def procedure_sections(plan: StoragePlan, profiles: ProfileSet) -> tuple[str, list[Section]]:
     sections = [_overview(plan), _bays(plan), _intake(plan), _maintainers(plan), _rounds(plan),
-                _freeze(plan), _readings(plan), *_closing(plan, profiles)]
+                _freeze(plan), _ventilation(plan), _readings(plan), *_closing(plan, profiles)]
     return (f"Winter storage procedure: {plan.site_file.site.name}",
             [s for s in sections if s is not None])

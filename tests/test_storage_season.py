@@ -332,3 +332,36 @@ def test_maintainer_hold_follows_the_month():
     rows = _rows(plan)
     assert all("do not measure the rest voltage" in r["action"] for r in rows
                if r["visit"] == "round")
+
+
+@pytest.mark.parametrize(("chemistry", "cells", "soc", "temp", "storage"), [
+    ("flooded", 6, 30, -5, False), ("agm", 6, 70, 20, False), ("lifepo4", 4, 20, 25, False),
+    ("nmc", 3, 15, 20, True), ("gel", 12, 55, 5, False)])
+def test_settings_planned_once_per_kind_match_the_engine_at_each_capacity(chemistry, cells, soc,
+                                                                         temp, storage):
+    # the engine planning each capacity itself (no charger: currents are C-rates) is the check
+    from chargeplan.planners.storage_charges import REFERENCE_AH, charge_settings
+
+    profiles = ProfileSet(use_environment=False)
+    reference = charge_settings([(chemistry, cells, soc, temp, storage)], profiles)[0]
+    for capacity in (7.0, 42.0, 260.0):
+        own = _engine_setting(chemistry, cells, capacity, soc, temp, storage, profiles)
+        scaled = reference.for_capacity(capacity)
+        assert scaled.voltage_v == pytest.approx(own.voltage_v, abs=1e-9)
+        assert scaled.current_a == pytest.approx(own.current_a, rel=1e-9)
+        assert scaled.duration_s == pytest.approx(own.duration_s, rel=0.01)
+        assert scaled.stages == own.stages
+    assert REFERENCE_AH == 100.0
+
+
+def _engine_setting(chemistry, cells, capacity, soc, temp, storage, profiles):
+    from chargeplan.engine.planner import plan_charge
+    from chargeplan.estimate import estimate_plans
+    from chargeplan.model.storage import DAY_S
+    from chargeplan.planners.storage_charges import _setting, battery_file
+
+    charge = plan_charge(battery_file(chemistry, cells, capacity, temp, soc_pct=soc,
+                                      storage_s=90 * DAY_S if storage else None),
+                         profiles=profiles)
+    estimate_plans([charge], profiles=profiles)
+    return _setting(charge, temp)

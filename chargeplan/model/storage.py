@@ -4,6 +4,7 @@ policy, and the batteries."""
 from __future__ import annotations
 
 import datetime as dt
+from functools import cache
 from itertools import pairwise
 from typing import Literal
 
@@ -184,6 +185,12 @@ class SiteFile(InputModel):
                                  f"season ({first.isoformat()} to {last.isoformat()})")
 
 
+@cache
+def _known_columns(model: type[InputModel]) -> frozenset[str]:
+    return frozenset({f.alias or name for name, f in model.model_fields.items()}
+                     | set(model.model_fields))
+
+
 class InventoryCsvRow(InventoryRow):
     """An inventory CSV row: columns the model does not know (a phone number, a berth) are
     carried into ``notes`` as "column: value", so a facility's own columns are kept."""
@@ -193,7 +200,7 @@ class InventoryCsvRow(InventoryRow):
     def _extra_columns_to_notes(cls, data: object) -> object:
         if not isinstance(data, dict):
             return data
-        known = {f.alias or name for name, f in cls.model_fields.items()} | set(cls.model_fields)
+        known = _known_columns(cls)
         extra = {k: v for k, v in data.items() if k not in known}
         if not extra:
             return data

@@ -55,6 +55,8 @@ __all__ = ["FREEZE_MARGIN_K", "InputErrors", "Note", "Reading", "ReadingFlag", "
 FAST_LOSS_POINTS = 10.0
 #: Bytes per battery-day the planner may use at most (its day arrays), in all.
 MEMORY_LIMIT_BYTES = 6 * 1024**3
+#: Notes and reading flags the console summary shows (the procedure lists them all).
+SUMMARY_LINES = 20
 #: The readings log's columns (more may follow: the round sheet's template has them).
 READING_COLUMNS = ("date", "battery", "rest_voltage")
 
@@ -303,9 +305,11 @@ class StoragePlan:
         return float(ocv_from_soc(soc, f.profiles[i].rest_voltage.table)) * int(f.cells[i])
 
     def setting_of(self, k: int) -> ChargeSetting | None:
+        """Visit ``k``'s charger setting, for its battery's capacity."""
         if self.visit_setting is None or self.visit_setting[k] < 0:
             return None
-        return self.settings[int(self.visit_setting[k])]
+        setting = self.settings[int(self.visit_setting[k])]
+        return setting.for_capacity(float(self.fleet.capacity_ah[int(self.visits.battery[k])]))
 
     def intake_charger_hours(self) -> float:
         v = self.visits
@@ -342,10 +346,16 @@ class StoragePlan:
         waits = int((v.act == Act.WAIT).sum())
         if waits:
             lines.append(f"  charges waiting for a bay inside their window: {waits}")
-        for note in self.notes:
+        for note in self.notes[:SUMMARY_LINES]:
             lines.append(f"  ! {self.rows[note.battery].id}: {note.text}")
-        for flag in self.reading_flags:
+        if len(self.notes) > SUMMARY_LINES:
+            lines.append(f"  ! and {len(self.notes) - SUMMARY_LINES} more notes: see "
+                         "procedure.md")
+        for flag in self.reading_flags[:SUMMARY_LINES]:
             lines.append(f"  reading: {flag.battery}: {flag.text}")
+        if len(self.reading_flags) > SUMMARY_LINES:
+            lines.append(f"  reading: and {len(self.reading_flags) - SUMMARY_LINES} more: see "
+                         "procedure.md")
         return "\n".join(lines) + "\n"
 
 
@@ -587,20 +597,46 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
     """The charger settings of every charge and the maintainer's hold of every check."""
     f, v = plan.fleet, plan.visits
     charge = np.flatnonzero(np.isin(v.act, CHARGES))
-    cap = np.round(f.capacity_ah).astype(int)
     temp = np.round(plan.bay_mean[v.where, v.day]).astype(int)
     soc = np.where(np.isnan(v.soc_before), -1, v.soc_before // 5 * 5).astype(int)
-    values = [(f.chemistry[b], int(f.cells[b]), int(cap[b]), int(soc[k]), int(temp[k]),
-               bool(v.act[k] == Act.TO_STORAGE))
-              for k, b in zip(charge, v.battery[charge], strict=True)]
-    keys, which = keyed(values)
+    kind = _kind_codes(f)
+    codes = _pack(kind[v.battery[charge]], soc[charge], temp[charge],
+                  (v.act[charge] == Act.TO_STORAGE).astype(int))
+    unique, which = np.unique(codes, return_inverse=True)
+    first = charge[_firsts(codes, unique)]
+    keys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(soc[k]),
+             int(temp[k]), bool(v.act[k] == Act.TO_STORAGE)) for k in first]
     plan.settings = charge_settings(keys, profile_set)
     plan.visit_setting = np.full(len(v), -1)
     plan.visit_setting[charge] = which
     held = np.flatnonzero(v.act == Act.MAINTAINER)
-    hkeys, hwhich = keyed([(f.chemistry[b], int(f.cells[b]), int(cap[b]), int(temp[k]))
-                           for k, b in zip(held, v.battery[held], strict=True)])
+    hcodes = _pack(kind[v.battery[held]], temp[held])
+    hunique, hwhich = np.unique(hcodes, return_inverse=True)
+    hkeys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(temp[k]))
+             for k in held[_firsts(hcodes, hunique)]]
     holds = np.array(maintainer_holds(hkeys, profile_set) or [np.nan])
     plan.visit_hold_v = np.full(len(v), np.nan)
     plan.visit_hold_v[held] = holds[hwhich] if held.size else []
 
+
+def _kind_codes(f: Fleet) -> np.ndarray:
+    """One integer per distinct (chemistry, cells) of the fleet."""
+    pairs = [(c, int(n)) for c, n in zip(f.chemistry, f.cells, strict=True)]
+    index: dict[tuple[str, int], int] = {}
+    return np.fromiter((index.setdefault(p, len(index)) for p in pairs), dtype=np.int64,
+                       count=len(pairs))
+
+
+def _pack(*columns: np.ndarray) -> np.ndarray:
+    """Small integer columns packed into one int64 key per row (each column offset to >= 0)."""
+    code = np.zeros(len(columns[0]), dtype=np.int64)
+    for column in columns:
+        c = np.asarray(column, dtype=np.int64) + 1000
+        code = code * 4096 + c
+    return code
+
+
+def _firsts(codes: np.ndarray, unique: np.ndarray) -> np.ndarray:
+    """For each unique code, the position of its first row."""
+    order = np.argsort(codes, kind="stable")
+    return order[np.searchsorted(codes[order], unique)]

@@ -4,6 +4,11 @@ Each charge a visit calls for, and each maintainer's hold for the month, is plan
 engine once per kind of battery and conditions (models built from typed values, never from
 strings parsed again), all charges estimated together by the physics. The planner keeps
 the finished values; documents only format them.
+
+A kind is planned at ``REFERENCE_AH``: with no charger given, every current the engine sets
+is a C-rate (It) and every physics parameter is per Ah, so voltages and times do not depend
+on the capacity and currents scale with it. ``tests/test_storage_season.py`` checks that
+against the engine planning each capacity itself.
 """
 
 from __future__ import annotations
@@ -15,7 +20,11 @@ import numpy as np
 
 from chargeplan.model.storage import DAY_S
 
-__all__ = ["ChargeSetting", "battery_file", "charge_settings", "maintainer_holds"]
+__all__ = ["REFERENCE_AH", "ChargeSetting", "battery_file", "charge_settings",
+           "maintainer_holds"]
+
+#: The capacity each kind of charge is planned at (its currents scale with the capacity).
+REFERENCE_AH = 100.0
 
 
 @dataclass(frozen=True)
@@ -30,6 +39,12 @@ class ChargeSetting:
     duration_s: float | None  # the estimated charge time
     stages: tuple[str, ...]
     refused: str = ""  # the engine's refusal, when it refuses the charge
+
+    def for_capacity(self, capacity_ah: float) -> ChargeSetting:
+        """This setting for a battery of ``capacity_ah`` (planned at REFERENCE_AH)."""
+        from dataclasses import replace
+
+        return replace(self, current_a=self.current_a * capacity_ah / REFERENCE_AH)
 
     @property
     def hours(self) -> float:
@@ -65,18 +80,19 @@ def _setting(charge: Any, temperature_c: float) -> ChargeSetting:
                          tuple(s.kind.label for s in timed))
 
 
-def charge_settings(keys: list[tuple[str, int, int, int, int, bool]], profiles: Any,
+def charge_settings(keys: list[tuple[str, int, int, int, bool]], profiles: Any,
                     ) -> list[ChargeSetting]:
-    """One setting per key (chemistry, cells, capacity Ah, state of charge % or -1 for
-    unknown, temperature degC, to its storage level): planned, then estimated together."""
+    """One setting per key (chemistry, cells, state of charge % or -1 for unknown,
+    temperature degC, to its storage level), at REFERENCE_AH: planned, then estimated
+    together."""
     from chargeplan.engine.planner import plan_charge
     from chargeplan.errors import PlanRefused
     from chargeplan.estimate import estimate_plans
 
     plans: dict[int, Any] = {}
     out: list[ChargeSetting | None] = [None] * len(keys)
-    for k, (chem, cells, cap, soc, temp, storage) in enumerate(keys):
-        data = battery_file(chem, cells, max(cap, 1), temp, soc_pct=None if soc < 0 else soc,
+    for k, (chem, cells, soc, temp, storage) in enumerate(keys):
+        data = battery_file(chem, cells, REFERENCE_AH, temp, soc_pct=None if soc < 0 else soc,
                             storage_s=90 * DAY_S if storage else None)
         try:
             plans[k] = plan_charge(data, profiles=profiles)
@@ -86,21 +102,22 @@ def charge_settings(keys: list[tuple[str, int, int, int, int, bool]], profiles: 
     if plans:
         estimate_plans(list(plans.values()), profiles=profiles)
     for k, charge in plans.items():
-        out[k] = _setting(charge, keys[k][4])
+        out[k] = _setting(charge, keys[k][3])
     return [s for s in out if s is not None]
 
 
-def maintainer_holds(keys: list[tuple[str, int, int, int]], profiles: Any) -> list[float]:
-    """The maintainer's hold voltage per key (chemistry, cells, capacity Ah, bay temperature
-    degC): the engine's storage hold or float at that temperature (compensated for
-    lead-acid); NaN where the engine plans none."""
+def maintainer_holds(keys: list[tuple[str, int, int]], profiles: Any) -> list[float]:
+    """The maintainer's hold voltage per key (chemistry, cells, bay temperature degC): the
+    engine's storage hold or float at that temperature (compensated for lead-acid); NaN
+    where the engine plans none."""
     from chargeplan.engine.planner import plan_charge
     from chargeplan.errors import PlanRefused
     from chargeplan.plan import StageKind
 
     holds = []
-    for chem, cells, cap, temp in keys:
-        data = battery_file(chem, cells, max(cap, 1), temp, soc_pct=90.0, storage_s=180 * DAY_S)
+    for chem, cells, temp in keys:
+        data = battery_file(chem, cells, REFERENCE_AH, temp, soc_pct=90.0,
+                            storage_s=180 * DAY_S)
         try:
             charge = plan_charge(data, profiles=profiles)
         except PlanRefused:

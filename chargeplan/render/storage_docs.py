@@ -29,6 +29,9 @@ SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_s
                     "charge_hours", "freeze_point_c", "bay_min_c", "freeze_margin_k",
                     "freeze_action", "reading")
 
+#: Batteries named one by one in a calendar event; the rest are counted.
+LISTED = 200
+
 KIND_TEXT = {Kind.INTAKE: "intake", Kind.ROUND: "round", Kind.READING: "reading",
              Kind.RELEASE: "release"}
 
@@ -199,24 +202,28 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
     v = plan.visits
     events = []
+    charging = np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE)
     for d in plan.round_days:
-        here = np.flatnonzero((v.day == d) & (v.kind != Kind.RELEASE))
-        due = [k for k in here if v.act[k] in CHARGES]
+        due = np.flatnonzero(charging & (v.day == d))
         lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
-                 for k in due]
+                 for k in due[:LISTED]]
+        if len(due) > LISTED:
+            lines.append(f"and {len(due) - LISTED} more charges: see schedule.csv")
         lines.append("Check every stored battery; see rounds.html and procedure.md.")
         events.append(EventSpec(
             f"{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
             plan.dates[d] + dt.timedelta(days=1), f"Battery round, {name}: " + (
-                f"{len(due)} charge{'s' if len(due) != 1 else ''}" if due else "checks only"),
+                f"{len(due)} charge{'s' if len(due) != 1 else ''}" if len(due) else "checks only"),
             "\n".join(lines)))
     for d in sorted(set(v.day[v.kind == Kind.RELEASE].tolist())):
-        ids = [plan.rows[int(b)].id for b in v.battery[(v.kind == Kind.RELEASE) & (v.day == d)]]
+        ids = [plan.rows[int(b)].id for b in v.battery[(v.kind == Kind.RELEASE) & (v.day == d)]
+               [:LISTED]]
+        count = int(((v.kind == Kind.RELEASE) & (v.day == d)).sum())
         events.append(EventSpec(
             f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
-            plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {len(ids)} "
-            f"batter{'ies' if len(ids) != 1 else 'y'}", "Release: " + ", ".join(ids[:200])
-            + (f" and {len(ids) - 200} more" if len(ids) > 200 else "")
+            plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {count} "
+            f"batter{'ies' if count != 1 else 'y'}", "Release: " + ", ".join(ids)
+            + (f" and {count - LISTED} more" if count > LISTED else "")
             + "\nMeasure, charge as procedure.md says, reconnect loads, hand back."))
     return events
 

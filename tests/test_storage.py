@@ -34,9 +34,9 @@ def _site(batteries, *, mean="20 degC", low="15 degC", days=61, round_days=None,
     })
 
 
-def _battery(i, chemistry, soc="100 %", bay="A", **extra):
+def _battery(i, chemistry, soc="100 %", bay="A", capacity="50 Ah", **extra):
     size = {"cells_in_series": 3} if chemistry == "nmc" else {"nominal_voltage": "12 V"}
-    return {"id": f"T-{i}", "chemistry": chemistry, **size, "capacity": "50 Ah",
+    return {"id": f"T-{i}", "chemistry": chemistry, **size, "capacity": capacity,
             "state_of_charge": soc, "bay": bay, **extra}
 
 

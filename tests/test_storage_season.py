@@ -365,3 +365,21 @@ def _engine_setting(chemistry, cells, capacity, soc, temp, storage, profiles):
                          profiles=profiles)
     estimate_plans([charge], profiles=profiles)
     return _setting(charge, temp)
+
+
+def test_schedule_texts_made_once_per_kind_equal_each_visit_s_own():
+    from chargeplan.render.storage_docs import action_text, charge_text
+
+    batteries = [_battery(i, c, soc=s, parasitic_draw=d, capacity=f"{cap} Ah")
+                 for i, (c, s, d, cap) in enumerate([
+                     ("flooded", "40 %", "110 mA", 60), ("lifepo4", "20 %", None, 80),
+                     ("lifepo4", "20 %", None, 100), ("nmc", "90 %", None, 50),
+                     ("agm", "100 %", "30 mA", 20), ("gel", "60 %", None, 90)])]
+    for b in batteries:
+        if b["parasitic_draw"] is None:
+            del b["parasitic_draw"]
+    plan = plan_storage(_site(batteries, policy="maintainer", bays=WARM_BAYS, warm_room="warm",
+                              **COLD))
+    rows = _rows(plan)
+    assert [r["action"] for r in rows] == [action_text(plan, k) for k in range(len(rows))]
+    assert [r["charge_plan"] for r in rows] == [charge_text(plan, k) for k in range(len(rows))]

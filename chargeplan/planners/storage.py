@@ -564,13 +564,15 @@ def _notes(plan: StoragePlan) -> None:
                                f"{f.rows[i].parasitic_draw_a * 1000:.0f} mA load stays "
                                "connected (loads: connected): it drains the battery"))
     _fast_losers(plan)
-    for i in sorted({int(b) for b in v.battery[v.act == Act.WAIT]}):
-        since = plan.dates[int(v.day[(v.act == Act.WAIT) & (v.battery == i)].min())]
+    waits = v.act == Act.WAIT
+    since = np.full(f.n, len(plan.dates))
+    np.minimum.at(since, v.battery[waits], v.day[waits])
+    for i in np.flatnonzero(since < len(plan.dates)):
         low = float(np.nanmin(plan.soc_daily[i]))
-        plan.notes.append(Note(i, "no-charge-window", f"a charge is due from "
-                               f"{since.isoformat()} but no bay with mains is inside its charge "
-                               f"window; it falls to {low:.0f} % this season: move it to a warm "
-                               "room with mains"))
+        plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
+                               f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
+                               f"inside its charge window; it falls to {low:.0f} % this season: "
+                               "move it to a warm room with mains"))
     for i in np.flatnonzero(plan.would_freeze):
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "
@@ -586,8 +588,10 @@ def _fast_losers(plan: StoragePlan) -> None:
     same = b[1:] == b[:-1]
     fell = same & (after[:-1] >= f.storage_soc[b[:-1]] - 0.5) & (kind[1:] == Kind.ROUND) & (
         before[1:] < f.threshold[b[1:]])
-    for i in sorted(set(b[1:][fell].tolist())):
-        low = float(np.nanmin(before[1:][fell & (b[1:] == i)]))
+    lowest = np.full(f.n, np.inf)
+    np.minimum.at(lowest, b[1:][fell], before[1:][fell])
+    for i in np.flatnonzero(np.isfinite(lowest)):
+        low = float(lowest[i])
         plan.notes.append(Note(int(i), "loses-fast", f"falls to {low:.0f} % between rounds even "
                                "when charged full: disconnect its load, put it on a maintainer, "
                                "or round more often"))

@@ -118,8 +118,15 @@ def resolve_fleet(site_file: SiteFile, rows: list[InventoryRow], profile_set: Pr
     """Every row resolved, or every bad row reported at once (each naming its file)."""
     bay_names = [b.name for b in site_file.bays]
     resolved, errors = [], []
+    seen: dict[tuple[Any, ...], Any] = {}  # rows alike but for their id resolve alike
     for row in rows:
-        got = _resolve_row(row, profile_set, bay_names, f"{inventory_file}: battery {row.id}")
+        key = (row.chemistry, row.nominal_voltage_v, row.cells_in_series, row.bay)
+        got = seen.get(key)
+        if got is None:
+            got = _resolve_row(row, profile_set, bay_names, "{where}")
+            seen[key] = got
+        if isinstance(got, str):
+            got = got.format(where=f"{inventory_file}: battery {row.id}")
         if isinstance(got, str):
             errors.append(got)
         else:

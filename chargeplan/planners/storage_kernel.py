@@ -194,9 +194,12 @@ class _State:
 
     def at_risk(self, idx: np.ndarray, soc: np.ndarray, d: int, end: int) -> np.ndarray:
         """(len(idx), end-d): lead-acid whose predicted charge is in its freezing range."""
-        pred = self.predicted(idx, soc, d, end)
-        safe = self.safe_soc[self.bay[idx], d:end]
-        return self.s.lead[idx, None] & (pred < safe)
+        out = np.zeros((len(idx), max(end - d, 0)), dtype=bool)
+        lead = np.flatnonzero(self.s.lead[idx])
+        if lead.size:
+            pred = self.predicted(idx[lead], soc[lead], d, end)
+            out[lead] = pred < self.safe_soc[self.bay[idx[lead]], d:end]
+        return out
 
     def record(self, **columns: np.ndarray) -> None:
         for name in _COLUMNS:

@@ -20,7 +20,7 @@ from chargeplan.planners.storage import StoragePlan
 from chargeplan.planners.storage_kernel import CHARGES, Act, Kind, Remedy
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["SCHEDULE_COLUMNS", "action_text", "bench_batteries", "calendar_events",
+__all__ = ["SCHEDULE_COLUMNS", "action_text", "batteries_csv", "bench_batteries", "calendar_events",
            "calendar_ics", "charge_text", "procedure", "schedule_csv", "storage_files"]
 
 SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_soc_pct",
@@ -147,46 +147,149 @@ def freeze_action(plan: StoragePlan, k: int) -> str:
     return text
 
 
-def _reading_cells(plan: StoragePlan) -> dict[tuple[int, int], str]:
+def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> list[str]:
     index = {row.id: i for i, row in enumerate(plan.rows)}
-    out: dict[tuple[int, int], str] = {}
+    flags: dict[tuple[int, int], str] = {}
     for flag in plan.reading_flags:
         i = index.get(flag.battery)
         if i is not None:
-            out[(i, (flag.date - plan.dates[0]).days)] = f"{flag.code}: {flag.text}"
-    return out
+            flags[(i, (flag.date - plan.dates[0]).days)] = f"{flag.code}: {flag.text}"
+    if not flags:
+        return [""] * len(chosen)
+    v = plan.visits
+    return [flags.get((int(v.battery[k]), int(v.day[k])), "") for k in chosen]
 
 
-def _num(value: float, places: int = 1) -> str:
-    return "" if not np.isfinite(value) else f"{value:.{places}f}"
+def _by_key(chosen: np.ndarray, key: np.ndarray, make: Any) -> list[Any]:
+    """A column made once per distinct key (rows x columns of integers)."""
+    if not len(chosen):
+        return []
+    _unique, first, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
+    made = [make(int(chosen[j])) for j in first]
+    return [made[i] for i in inverse.ravel()]
 
 
-def _schedule_row(plan: StoragePlan, k: int, readings: dict[tuple[int, int], str]) -> list[Any]:
+def _fmt(values: np.ndarray, places: int, blank: str = "") -> list[str]:
+    return [f"{x:.{places}f}" if x == x else blank for x in values.tolist()]
+
+
+#: Visits above which schedule.csv keeps only the visits with something to do (intake,
+#: charges, discharges, waits, readings, freeze risks); batteries.csv sums up each battery.
+SCHEDULE_ALL_MAX = 200_000
+
+
+def schedule_rows(plan: StoragePlan) -> np.ndarray:
+    """The visits schedule.csv lists (see SCHEDULE_ALL_MAX)."""
+    v = plan.visits
+    if len(v) <= SCHEDULE_ALL_MAX:
+        return np.arange(len(v))
+    routine = np.isin(v.act, (Act.CHECK, Act.MAINTAINER, Act.STORE, Act.RELEASE))
+    return np.flatnonzero(~routine | (v.kind == Kind.INTAKE) | (v.kind == Kind.READING)
+                          | v.freeze)
+
+
+def _action_keys(plan: StoragePlan, chosen: np.ndarray) -> np.ndarray:
+    """What action_text depends on, per visit, as integers."""
     v, f = plan.visits, plan.fleet
-    i, day = int(v.battery[k]), int(v.day[k])
-    row = f.rows[i]
-    s = plan.setting_of(k)
-    charged = s is not None and not s.refused
-    return [plan.dates[day].isoformat(), row.id, row.owner, f.chemistry[i],
-            plan.bay_names[int(v.bay[k])], _num(v.soc_before[k], 0) or "unknown",
-            action_text(plan, k), "yes" if v.freeze[k] else "", charge_text(plan, k),
-            KIND_TEXT[Kind(int(v.kind[k]))], _num(v.soc_after[k], 0),
-            plan.bay_names[int(v.where[k])] if charged else "",
-            s.chemistry_setting if charged else "", f"{s.voltage_v:.2f}" if charged else "",
-            f"{s.current_a:.1f}" if charged else "", f"{s.hours:.1f}" if charged else "",
-            _num(v.freeze_c[k]), _num(v.low_c[k]), _num(v.margin_k[k]), freeze_action(plan, k),
-            readings.get((i, day), "")]
+    b = v.battery[chosen]
+    act = v.act[chosen]
+    cap = np.where(act == Act.COUNT_DOWN, np.round(f.capacity_ah[b] * 10), 0)
+    holds = plan.visit_hold_v[chosen] if plan.visit_hold_v is not None else np.zeros(len(b))
+    hold = np.where(act == Act.MAINTAINER, np.nan_to_num(np.round(holds * 100), nan=-1), 0)
+    temp = np.where(act == Act.MAINTAINER, np.round(plan.bay_mean[v.bay[chosen],
+                                                                  v.day[chosen]]), 0)
+    load = f.connected[b] & (f.draw_pct_day[b] > 0)
+    chem = np.unique(np.array(f.chemistry), return_inverse=True)[1].ravel()[b]
+    return np.column_stack([v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen],
+                            chem, f.cells[b], load, cap, hold, temp]).astype(np.int64)
+
+
+def _setting_cells(settings: list[Any], charged: np.ndarray) -> list[list[str]]:
+    if not charged.any():
+        blank = [""] * len(charged)
+        return [blank, blank, blank, blank]
+    pairs = list(zip(settings, charged.tolist(), strict=True))
+    return [[s.chemistry_setting if c else "" for s, c in pairs],
+            [f"{s.voltage_v:.2f}" if c else "" for s, c in pairs],
+            [f"{s.current_a:.1f}" if c else "" for s, c in pairs],
+            [f"{s.hours:.1f}" if c else "" for s, c in pairs]]
+
+
+def _columns(plan: StoragePlan, chosen: np.ndarray) -> list[list[Any]]:
+    v, f = plan.visits, plan.fleet
+    b = v.battery[chosen]
+    ids = np.array([r.id for r in f.rows], dtype=object)
+    owners = np.array([r.owner for r in f.rows], dtype=object)
+    chems = np.array(f.chemistry, dtype=object)
+    bays = np.array(plan.bay_names, dtype=object)
+    dates = np.array([d.isoformat() for d in plan.dates], dtype=object)
+    setting = (plan.visit_setting[chosen] if plan.visit_setting is not None
+               else np.full(len(chosen), -1))
+    charged = setting >= 0
+    if charged.any():
+        refused = np.array([s.refused != "" for s in plan.settings])[np.maximum(setting, 0)]
+        charged &= ~refused
+    charge_key = np.column_stack([setting, np.round(f.capacity_ah[b] * 10)]).astype(np.int64)
+    settings = _by_key(chosen, charge_key, plan.setting_of)
+    return [
+        dates[v.day[chosen]].tolist(), ids[b].tolist(), owners[b].tolist(), chems[b].tolist(),
+        bays[v.bay[chosen]].tolist(), _fmt(v.soc_before[chosen], 0, "unknown"),
+        _by_key(chosen, _action_keys(plan, chosen), lambda k: action_text(plan, k)),
+        np.where(v.freeze[chosen], "yes", "").tolist(),
+        _by_key(chosen, charge_key, lambda k: charge_text(plan, k)),
+        [KIND_TEXT[Kind(x)] for x in v.kind[chosen].tolist()], _fmt(v.soc_after[chosen], 0),
+        np.where(charged, bays[v.where[chosen]], "").tolist(),
+        *_setting_cells(settings, charged),
+        _fmt(v.freeze_c[chosen], 1), _fmt(v.low_c[chosen], 1), _fmt(v.margin_k[chosen], 1),
+        _by_key(chosen, np.column_stack([v.remedy[chosen], v.remedy_day[chosen]]),
+                lambda k: freeze_action(plan, k)),
+        _reading_cells(plan, chosen)]
 
 
 def schedule_csv(plan: StoragePlan) -> str:
     """One row per visit (intake, each round, each reading, the release): the predicted charge,
-    what to do, the charger's settings, the freeze check with its margin."""
+    what to do, the charger's settings, the freeze check with its margin. Above
+    SCHEDULE_ALL_MAX visits, only the visits with something to do."""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(SCHEDULE_COLUMNS)
-    readings = _reading_cells(plan)
-    for k in range(len(plan.visits)):
-        csv_row(writer, _schedule_row(plan, k, readings))
+    chosen = schedule_rows(plan)
+    for row in zip(*_columns(plan, chosen), strict=True):
+        csv_row(writer, row)
+    return out.getvalue()
+
+
+BATTERY_COLUMNS = ("battery", "owner", "chemistry", "bay", "on_maintainer", "intake_action",
+                   "charges", "charger_hours", "lowest_predicted_soc_pct", "freeze_risk_rounds",
+                   "bay_at_release", "notes")
+
+
+def batteries_csv(plan: StoragePlan) -> str:
+    """One row per battery: its season in short (the schedule's visits add up to these)."""
+    v, f = plan.visits, plan.fleet
+    charging = np.isin(v.act, CHARGES)
+    charges = np.bincount(v.battery[charging], minlength=f.n)
+    hours_of = np.array([s.hours for s in plan.settings] + [0.0])
+    each = hours_of[plan.visit_setting] if plan.visit_setting is not None else np.zeros(len(v))
+    hours = np.bincount(v.battery, weights=np.where(charging, each, 0.0), minlength=f.n)
+    freeze = np.bincount(v.battery[v.freeze], minlength=f.n)
+    lowest = np.min(np.where(np.isnan(plan.soc_daily), np.inf, plan.soc_daily), axis=1)
+    intake = np.flatnonzero(v.kind == Kind.INTAKE)
+    texts = _by_key(intake, _action_keys(plan, intake), lambda k: action_text(plan, k))
+    intake_text = dict(zip(v.battery[intake].tolist(), texts, strict=True))
+    notes: dict[int, list[str]] = {}
+    for note in plan.notes:
+        notes.setdefault(note.battery, []).append(note.code)
+    last = plan.bay_daily[np.arange(f.n), f.depart]
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(BATTERY_COLUMNS)
+    for i, row in enumerate(f.rows):
+        csv_row(writer, (row.id, row.owner, f.chemistry[i], row.bay,
+                         "yes" if plan.on_maintainer[i] else "", intake_text.get(i, ""),
+                         int(charges[i]), f"{hours[i]:.1f}",
+                         f"{lowest[i]:.0f}" if np.isfinite(lowest[i]) else "", int(freeze[i]),
+                         plan.bay_names[int(last[i])], " ".join(notes.get(i, []))))
     return out.getvalue()
 
 
@@ -299,6 +402,7 @@ def storage_files(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any 
         "procedure.md": procedure(plan, profiles=profiles),
         "procedure.html": procedure(plan, profiles=profiles, html=True),
         "schedule.csv": schedule_csv(plan),
+        "batteries.csv": batteries_csv(plan),
         "calendar.ics": calendar_ics(plan, previous, now),
         **bench_batteries(plan),
         "rounds.md": round_sheets(plan),

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
@@ -227,7 +228,7 @@ class StoragePlan:
         waits = np.flatnonzero(v.act == Act.WAIT)
         return [(int(v.battery[k]), int(v.day[k])) for k in waits]
 
-    @property
+    @cached_property
     def first_freeze_day(self) -> np.ndarray:
         """The first day each lead-acid battery's predicted electrolyte freezes under the plan
         (at or above the day's minimum; TM 5-1185), -1 for none."""
@@ -260,10 +261,10 @@ class StoragePlan:
 
         seen: dict[tuple[str, int], dict[str, Any]] = {}
         f = self.fleet
-        for i in range(f.n):
-            key = (f.chemistry[i], int(f.cells[i]))
-            if key in seen:
-                continue
+        firsts: dict[tuple[str, int], int] = {}
+        for i, key in enumerate(zip(f.chemistry, f.cells.tolist(), strict=True)):
+            firsts.setdefault(key, i)
+        for key, i in firsts.items():
             profile, n = f.profiles[i], key[1]
             table = profile.rest_voltage.table
             seen[key] = {"chemistry": profile.name, "cells": n,
@@ -312,9 +313,16 @@ class StoragePlan:
         return setting.for_capacity(float(self.fleet.capacity_ah[int(self.visits.battery[k])]))
 
     def intake_charger_hours(self) -> float:
+        """The estimated charge time of every intake charge, added up."""
         v = self.visits
-        chosen = np.flatnonzero(np.isin(v.act, CHARGES) & (v.kind == Kind.INTAKE))
-        return sum(s.hours for k in chosen if (s := self.setting_of(int(k))) is not None)
+        if self.visit_setting is None:
+            return 0.0
+        hours = np.array([s.hours for s in self.settings] + [0.0])[self.visit_setting]
+        return float(hours[np.isin(v.act, CHARGES) & (v.kind == Kind.INTAKE)].sum())
+
+    def top_up_count(self) -> int:
+        v = self.visits
+        return int((np.isin(v.act, CHARGES) & (v.kind == Kind.ROUND)).sum())
 
     def take_out_ah(self, i: int) -> float:
         """LiFePO4 counted down to its storage level: the Ah to take out after a full charge."""
@@ -338,7 +346,7 @@ class StoragePlan:
                  f"  on a maintainer: {int(self.on_maintainer.sum())}",
                  f"  intake charges: {intake}, "
                  f"{self.intake_charger_hours():.1f} charger-hours in all",
-                 f"  top-ups across the season: {len(self.top_ups)}",
+                 f"  top-ups across the season: {self.top_up_count()}",
                  f"  rounds with a freeze risk: {int(v.freeze.sum())}"]
         first = self.first_freeze_day[self.first_freeze_day >= 0]
         lines.append("  first day a battery freezes under this plan: " + (

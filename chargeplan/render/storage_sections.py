@@ -45,7 +45,7 @@ def _overview(plan: StoragePlan) -> Section:
         f"{plan.round_step} days: {dates}.",
         f"{len(plan.rows)} batteries; {int(plan.on_maintainer.sum())} on a maintainer; "
         f"{int(intake.sum())} charges at intake ({plan.intake_charger_hours():.1f} "
-        f"charger-hours in all); {len(plan.top_ups)} top-ups on rounds; "
+        f"charger-hours in all); {plan.top_up_count()} top-ups on rounds; "
         f"{int(v.freeze.sum())} intervals with a freeze risk.",
     ], items=[] if site.warm_room is None else [f"Warm room: {site.warm_room}."])
 
@@ -97,14 +97,15 @@ def _intake(plan: StoragePlan) -> Section:
 def _maintainers(plan: StoragePlan) -> Section:
     v = plan.visits
     chosen = np.flatnonzero((v.act == Act.MAINTAINER) & (v.kind == Kind.ROUND))
-    months: dict[tuple[int, str], float] = {}
-    for k in chosen:
-        key = (int(v.battery[k]), f"{plan.dates[int(v.day[k])]:%Y-%m}")
-        months.setdefault(key, float(plan.visit_hold_v[k]) if plan.visit_hold_v is not None
-                          else np.nan)
-    rows = [[plan.rows[i].id, plan.bay_names[int(plan.fleet.bay[i])], month,
-             f"{volts:.2f} V" if np.isfinite(volts) else "as the maintainer sets"]
-            for (i, month), volts in list(months.items())[:LISTED_MAX]]
+    month = np.array([d.year * 100 + d.month for d in plan.dates])[v.day[chosen]]
+    _u, first = np.unique(np.column_stack([v.battery[chosen], month]), axis=0,
+                          return_index=True) if chosen.size else (None, np.zeros(0, int))
+    picked = chosen[np.sort(first)][:LISTED_MAX]
+    rows = [[plan.rows[int(v.battery[k])].id, plan.bay_names[int(v.bay[k])],
+             f"{plan.dates[int(v.day[k])]:%Y-%m}",
+             f"{plan.visit_hold_v[k]:.2f} V" if plan.visit_hold_v is not None
+             and np.isfinite(plan.visit_hold_v[k]) else "as the maintainer sets"]
+            for k in picked]
     return Section("Maintainers", items=[
         "Only lead-acid goes on a maintainer; lithium is never floated (rule CP206): it is "
         "kept at its storage level and checked on rounds.",

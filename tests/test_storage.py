@@ -192,7 +192,7 @@ def test_huge_inventories_are_refused_up_front(monkeypatch):
 
 def test_fast_dischargers_are_flagged():
     from chargeplan.planners.storage import Reading
-
+    # AGM rested table (from memory): 12.06 V is about 30 %, far below the predicted ~94 %
     # BCI table: 12.06 V rested is 25 %, far below the predicted ~94 % after 30 days
     plan = plan_storage(_site([_battery(1, "agm")], days=60), plan_top_ups=False,
                         readings=[Reading(dt.date(2026, 12, 1), "T-1", 12.06)])

@@ -426,24 +426,16 @@ def storage(
         rows = read_inventory(inventory) if inventory is not None else None
         measured = read_readings(readings) if readings is not None else None
         found = _profile_set(profiles)
-        plan = plan_storage(site_file, rows, profiles=found,
-                            inventory_file=str(inventory or site))
+        plan = plan_storage(site_file, rows, profiles=found, readings=measured,
+                            inventory_file=str(inventory or site), site_path=str(site))
         if output is not None:
-            from chargeplan.render.storage_docs import calendar_ics, procedure, schedule_csv
+            from chargeplan.render.storage_docs import storage_files
             from chargeplan.render.write import write_all
 
-            write_all(output, {
-                "procedure.md": procedure(plan, profiles=found),
-                "procedure.html": procedure(plan, profiles=found, html=True),
-                "schedule.csv": schedule_csv(plan),
-                "calendar.ics": calendar_ics(plan),
-            }, force=force)
-            typer.echo(f"wrote {output}/procedure.md, procedure.html, schedule.csv, "
-                       "calendar.ics", err=True)
+            files = storage_files(plan, found, previous_folder=output)
+            write_all(output, files, force=force)
+            typer.echo(f"wrote {output}/: {', '.join(files)}", err=True)
         typer.echo(plan.summary(), nl=False)
-        if measured is not None:
-            for flag in plan.compare_readings(measured, found) or ["readings: all as expected"]:
-                typer.echo(f"  reading: {flag}")
 
 
 @app.command()

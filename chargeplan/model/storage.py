@@ -4,6 +4,7 @@ policy, and the batteries."""
 from __future__ import annotations
 
 import datetime as dt
+from functools import cache
 from itertools import pairwise
 from typing import Literal
 
@@ -12,7 +13,10 @@ from pydantic import Field, model_validator
 from chargeplan.model.fields import InputModel, Text, quantity
 from chargeplan.model.rows import BatteryRow
 
-__all__ = ["Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile"]
+__all__ = ["DAY_S", "Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile"]
+
+#: Seconds in a day: the storage season is counted in whole days.
+DAY_S = 86400
 
 
 class MonthTemperature(InputModel):
@@ -46,12 +50,18 @@ class Bay(InputModel):
     name: Text
     mains: bool = Field(default=False, description="a socket for maintainers")
     lithium_maintainer: bool = Field(
-        default=False, description="its maintainers have a lithium mode with no "
-        "high-voltage stage")
+        default=False, description="accepted for older files and not used: lithium is never "
+        "floated (rule CP206), so lithium is kept off maintainers")
     monthly: list[MonthTemperature] | None = Field(
         default=None, description="this bay's own temperatures (else the site's)")
     offset_k: quantity("temperature_difference", ge=-40, le=40) | None = Field(
         default=None, alias="offset", description="warmer (+) or colder than the site, e.g. '+8 K'")
+    airflow_m3_per_h: quantity("airflow", ge=0, le=1e7) | None = Field(
+        default=None, alias="airflow", description="mechanical ventilation, for charging "
+        "lead-acid here (IEC 62485-2 cl. 7)")
+    opening_area_cm2: quantity("area", ge=0, le=1e8) | None = Field(
+        default=None, alias="opening_area",
+        description="free area of each of the inlet and outlet, for natural ventilation")
 
 
 class Site(InputModel):
@@ -71,7 +81,7 @@ class Site(InputModel):
         default=None, alias="lithium_top_up")
     warm_room: Text | None = Field(
         default=None, description="the bay where lithium is charged when its own bay is below "
-        "0 degC")
+        "0 degC, and where a lead-acid battery at risk of freezing is moved")
 
     @model_validator(mode="after")
     def _season(self) -> Site:
@@ -79,6 +89,12 @@ class Site(InputModel):
             raise ValueError("give end or duration (not both)")
         if self.end is not None and self.end <= self.start:
             raise ValueError("end is not after start; check the dates")
+        if self.round_interval_s % DAY_S:
+            raise ValueError(f"round_interval is {self.round_interval_s / 3600:g} h, not a "
+                             "whole number of days; give it in days, e.g. '14 d'")
+        if self.duration_s is not None and self.duration_s % DAY_S:
+            raise ValueError(f"duration is {self.duration_s / 3600:g} h, not a whole number of "
+                             "days; give it in days, e.g. '180 d'")
         return self
 
     @property
@@ -86,7 +102,11 @@ class Site(InputModel):
         if self.end is not None:
             return (self.end - self.start).days + 1  # the end day is in the season
         assert self.duration_s is not None
-        return int(self.duration_s // 86400)
+        return int(self.duration_s // DAY_S)
+
+    @property
+    def round_days(self) -> int:
+        return int(self.round_interval_s // DAY_S)
 
 
 class InventoryRow(BatteryRow):
@@ -96,13 +116,31 @@ class InventoryRow(BatteryRow):
     bay: Text
     parasitic_draw_a: quantity("current", ge=0, le=100) | None = Field(
         default=None, alias="parasitic_draw",
-        description="a load left connected in store, e.g. '20 mA'")
+        description="the draw of a load wired to the battery, e.g. '20 mA'")
+    loads: Literal["connected", "disconnected"] | None = Field(
+        default=None, description="connected: its load must stay connected all season; "
+        "disconnected: it is disconnected at intake; unset: connected when a parasitic_draw "
+        "is given, and disconnected by staff when it would freeze the battery")
+    arrive: dt.date | None = Field(default=None, description="the day it comes in, if after "
+                                   "the season's start")
+    depart: dt.date | None = Field(default=None, description="the day it leaves, if before "
+                                   "the season's end")
+    notes: str = Field(default="", description="free text carried to the round sheets")
 
     @model_validator(mode="after")
     def _reading(self) -> InventoryRow:
         if (self.state_of_charge_pct is None) == (self.rest_voltage_v is None):
             raise ValueError("give state_of_charge or rest_voltage at intake (one of them)")
+        if self.arrive and self.depart and self.depart < self.arrive:
+            raise ValueError("depart is before arrive; check the dates")
         return self
+
+    @property
+    def load_connected(self) -> bool:
+        """The model follows what staff are told: a load draws only while connected."""
+        if self.loads is not None:
+            return self.loads == "connected"
+        return bool(self.parasitic_draw_a)
 
 
 class SiteFile(InputModel):
@@ -127,6 +165,8 @@ class SiteFile(InputModel):
             twice = next(i for i in ids if ids.count(i) > 1)
             raise ValueError(f"battery id '{twice}' is listed twice in the inventory; give each "
                              "battery its own id")
+        for row in self.inventory or []:
+            self._in_season(row)
         if self.site.warm_room is not None and self.site.warm_room not in names:
             raise ValueError(f"warm_room '{self.site.warm_room}' is not one of the bays")
         if self.periods:
@@ -135,3 +175,36 @@ class SiteFile(InputModel):
                 if b.start <= a.end:
                     raise ValueError("temperature periods overlap; check their dates")
         return self
+
+    def _in_season(self, row: InventoryRow) -> None:
+        first = self.site.start
+        last = first + dt.timedelta(days=self.site.days - 1)
+        for name, day in (("arrive", row.arrive), ("depart", row.depart)):
+            if day is not None and not first <= day <= last:
+                raise ValueError(f"battery {row.id}: {name} {day.isoformat()} is outside the "
+                                 f"season ({first.isoformat()} to {last.isoformat()})")
+
+
+@cache
+def _known_columns(model: type[InputModel]) -> frozenset[str]:
+    return frozenset({f.alias or name for name, f in model.model_fields.items()}
+                     | set(model.model_fields))
+
+
+class InventoryCsvRow(InventoryRow):
+    """An inventory CSV row: columns the model does not know (a phone number, a berth) are
+    carried into ``notes`` as "column: value", so a facility's own columns are kept."""
+
+    @model_validator(mode="before")
+    @classmethod
+    def _extra_columns_to_notes(cls, data: object) -> object:
+        if not isinstance(data, dict):
+            return data
+        known = _known_columns(cls)
+        extra = {k: v for k, v in data.items() if k not in known}
+        if not extra:
+            return data
+        kept = {k: v for k, v in data.items() if k in known}
+        carried = "; ".join(f"{k}: {v}" for k, v in extra.items())
+        kept["notes"] = "; ".join(p for p in (str(kept.get("notes", "")), carried) if p)
+        return kept

@@ -1,18 +1,19 @@
 """The storage planner: winter procedures, top-up dates and freeze checks for an inventory.
 
-Every battery's state of charge is followed day by day as numpy arrays (batteries x days):
-self-discharge from its profile, doubled per 10 K of warming (BU-802b), at its bay's mean
-temperature, plus any parasitic draw. At each staff round the planner looks ahead to the
-next round and tops up a battery that would fall below its threshold, or, for lead-acid,
-whose electrolyte would freeze on a coming cold day (US Army TM 5-1185 Table III). Lithium is
-never charged in a bay below 0 degC: it goes to the warm room, or waits for a warmer round.
-Top-ups are charge plans from the core engine, timed by the physics.
+In four parts: intake (``storage_intake``: rows resolved into typed arrays), policy (here:
+who goes on a maintainer, which readings reset a battery), the pure kernel
+(``storage_kernel``: the season walked as arrays; self-discharge from each profile,
+doubled per 10 K of warming, BU-802b, at the bay's mean temperature, plus any connected
+load; freeze checks by US Army TM 5-1185 Table III) and the charger settings
+(``storage_charges``: from the core engine, timed by the physics). Notes for staff carry
+machine-readable codes.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
@@ -21,21 +22,44 @@ import numpy as np
 from chargeplan.csvfile import InputErrors, csv_reader, csv_rows, read_rows
 from chargeplan.errors import InputError
 from chargeplan.loading import read_mapping, validate
-from chargeplan.model.storage import InventoryRow, SiteFile
-from chargeplan.physics.electrolyte import freezing_point_tm5_1185, specific_gravity_bci
+from chargeplan.model.storage import InventoryCsvRow, InventoryRow, SiteFile
 from chargeplan.physics.ocv import soc_from_ocv
-from chargeplan.physics.self_discharge import self_discharge_rate
+from chargeplan.planners.storage_charges import (
+    ChargeSetting,
+    battery_file,
+    charge_settings,
+    keyed,
+    maintainer_holds,
+)
+from chargeplan.planners.storage_intake import (
+    LITHIUM_STORAGE_BAND_PCT,
+    Fleet,
+    flat_reading,
+    resolve_fleet,
+)
+from chargeplan.planners.storage_kernel import (
+    CHARGES,
+    FREEZE_MARGIN_K,
+    Act,
+    Kind,
+    Season,
+    Visits,
+    freezing_point_at,
+    run_season,
+)
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["FREEZE_MARGIN_K", "StoragePlan", "load_site", "plan_storage", "read_inventory"]
+__all__ = ["FREEZE_MARGIN_K", "InputErrors", "Note", "Reading", "ReadingFlag", "StoragePlan",
+           "TopUp", "load_site", "plan_storage", "read_inventory", "read_readings"]
 
-#: A lead-acid battery is topped up when a coming day's minimum is within this of its
-#: electrolyte's freezing point (common practice: keep a margin).
-FREEZE_MARGIN_K = 3.0
 #: Percentage points below the prediction at which a reading is flagged (common practice).
 FAST_LOSS_POINTS = 10.0
-#: Rows per battery and bytes per cell of the day arrays the planner may use at most.
+#: Bytes per battery-day the planner may use at most (its day arrays), in all.
 MEMORY_LIMIT_BYTES = 6 * 1024**3
+#: Notes and reading flags the console summary shows (the procedure lists them all).
+SUMMARY_LINES = 20
+#: The readings log's columns (more may follow: the round sheet's template has them).
+READING_COLUMNS = ("date", "battery", "rest_voltage")
 
 
 def load_site(path: str | Path) -> SiteFile:
@@ -43,17 +67,41 @@ def load_site(path: str | Path) -> SiteFile:
 
 
 def read_inventory(path: str | Path) -> list[InventoryRow]:
-    """The inventory CSV; every bad row is reported (with its line) before anything is done."""
-    return read_rows(path, InventoryRow)
+    """The inventory CSV; every bad row is reported (with its line) before anything is done.
+    Columns the model does not know are carried into each battery's notes."""
+    return read_rows(path, InventoryCsvRow)
 
 
-READING_COLUMNS = ("date", "battery", "rest_voltage")
+@dataclass(frozen=True)
+class Reading:
+    date: dt.date
+    battery: str
+    rest_voltage_v: float
 
 
-def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
-    """The readings log: CSV columns date (YYYY-MM-DD), battery, rest_voltage ('12.41 V')."""
+def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
     from chargeplan.units import parse_quantity
 
+    if not data.get("rest_voltage"):
+        return None  # a row of the template left blank: not measured
+    try:
+        date = dt.date.fromisoformat(data.get("date", ""))
+    except ValueError:
+        return (f"{where}: date: '{data.get('date', '')}' is not a date; write it as "
+                "YYYY-MM-DD, e.g. 2026-12-01")
+    if not data.get("battery"):
+        return f"{where}: battery: is empty; give the battery id"
+    try:
+        volts = parse_quantity(data["rest_voltage"], "voltage")
+    except ValueError as error:
+        return f"{where}: rest_voltage: {error}"
+    return Reading(date, data["battery"], volts)
+
+
+def read_readings(path: str | Path) -> list[Reading]:
+    """The readings log (or the round sheet's readings.csv as filled in): columns date
+    (YYYY-MM-DD), battery, rest_voltage ('12.41 V'); other columns are ignored and a row with
+    no rest_voltage was not measured."""
     shown, reader = csv_reader(path)
     if reader.fieldnames is None:
         raise InputError("is empty", file=shown,
@@ -62,61 +110,297 @@ def read_readings(path: str | Path) -> list[tuple[dt.date, str, float]]:
     if missing:
         raise InputError(f"has no {', '.join(missing)} column", file=shown, field=missing[0],
                          fix="write the header date,battery,rest_voltage")
-    readings: list[tuple[dt.date, str, float]] = []
+    readings: list[Reading] = []
     errors: list[str] = []
     for line, data in csv_rows(reader, shown, errors):
-        where = f"{shown}: line {line}"
-        try:
-            date = dt.date.fromisoformat(data.get("date", ""))
-        except ValueError:
-            errors.append(f"{where}: date: '{data.get('date', '')}' is not a date; write it as "
-                          "YYYY-MM-DD, e.g. 2026-12-01")
-            continue
-        if not data.get("battery"):
-            errors.append(f"{where}: battery: is empty; give the battery id")
-            continue
-        try:
-            volts = parse_quantity(data.get("rest_voltage", ""), "voltage")
-        except ValueError as error:
-            errors.append(f"{where}: rest_voltage: {error}")
-            continue
-        readings.append((date, data["battery"], volts))
+        got = _reading_row(data, f"{shown}: line {line}")
+        if isinstance(got, str):
+            errors.append(got)
+        elif got is not None:
+            readings.append(got)
     if errors:
         raise InputErrors(errors)
     return readings
 
 
-def _temperatures(site_file: SiteFile, dates: list[dt.date]) -> tuple[np.ndarray, np.ndarray]:
-    """Each bay's daily mean and minimum (°C), shape (bays, days)."""
+@dataclass(frozen=True)
+class ReadingFlag:
+    code: str  # unknown-battery, outside-season, flat-curve, fast-loss, reset
+    battery: str
+    date: dt.date
+    text: str
 
-    def series(monthly, periods) -> tuple[np.ndarray, np.ndarray]:
-        mean = np.full(len(dates), np.nan)
-        low = np.full(len(dates), np.nan)
-        if monthly is not None:
-            by_month = {m.month: m for m in monthly}
-            for d, day in enumerate(dates):
-                m = by_month.get(day.month)
-                if m is not None:
-                    mean[d], low[d] = m.mean_c, m.min_c
-        else:
-            for period in periods:
-                for d, day in enumerate(dates):
-                    if period.start <= day <= period.end:
-                        mean[d], low[d] = period.mean_c, period.min_c
+
+@dataclass(frozen=True)
+class Note:
+    battery: int
+    code: str
+    text: str
+
+
+@dataclass(frozen=True)
+class TopUp:
+    """A charge at a round, as the older interface listed them."""
+
+    battery: int
+    day: int
+    soc_before: float
+    where: str
+    setting: ChargeSetting | None
+
+    @property
+    def plan(self) -> str:
+        from chargeplan.fmt import duration
+
+        s = self.setting
+        if s is None:
+            return ""
+        if s.refused:
+            return f"do not charge here: {s.refused}"
+        time = f", about {duration(s.duration_s)}" if s.duration_s else ""
+        return (f"{s.chemistry_setting} setting, {s.voltage_v:.2f} V, {s.current_a:.1f} A: "
+                + " -> ".join(s.stages) + ", then disconnect" + time)
+
+
+@dataclass
+class StoragePlan:
+    site_file: SiteFile
+    fleet: Fleet
+    dates: list[dt.date]
+    round_days: list[int]
+    bay_names: list[str]
+    bay_mean: np.ndarray
+    bay_min: np.ndarray
+    on_maintainer: np.ndarray
+    refused: np.ndarray
+    visits: Visits
+    soc_daily: np.ndarray
+    bay_daily: np.ndarray
+    settings: list[ChargeSetting] = field(default_factory=list)
+    visit_setting: np.ndarray | None = None  # per visit: index into settings, -1 none
+    visit_hold_v: np.ndarray | None = None  # per visit: the maintainer's hold voltage
+    notes: list[Note] = field(default_factory=list)
+    reading_flags: list[ReadingFlag] = field(default_factory=list)
+
+    # the fleet's columns, under the names the documents use
+    @property
+    def rows(self) -> list[InventoryRow]:
+        return self.fleet.rows
+
+    @property
+    def chemistry(self) -> list[str]:
+        return self.fleet.chemistry
+
+    @property
+    def family(self) -> np.ndarray:
+        return np.where(self.fleet.lead, "lead_acid", "lithium")
+
+    @property
+    def cells(self) -> np.ndarray:
+        return self.fleet.cells
+
+    @property
+    def threshold(self) -> np.ndarray:
+        return self.fleet.threshold
+
+    @property
+    def target_soc(self) -> np.ndarray:
+        return self.fleet.storage_soc
+
+    @property
+    def bay_index(self) -> np.ndarray:
+        return self.fleet.bay
+
+    @property
+    def round_step(self) -> int:
+        return self.site_file.site.round_days
+
+    @property
+    def top_ups(self) -> list[TopUp]:
+        v = self.visits
+        chosen = np.flatnonzero(np.isin(v.act, CHARGES) & (v.kind == Kind.ROUND))
+        return [TopUp(int(v.battery[k]), int(v.day[k]), float(v.soc_before[k]),
+                      self.bay_names[int(v.where[k])], self.setting_of(int(k))) for k in chosen]
+
+    @property
+    def postponed(self) -> list[tuple[int, int]]:
+        v = self.visits
+        waits = np.flatnonzero(v.act == Act.WAIT)
+        return [(int(v.battery[k]), int(v.day[k])) for k in waits]
+
+    @cached_property
+    def first_freeze_day(self) -> np.ndarray:
+        """The first day each lead-acid battery's predicted electrolyte freezes under the plan
+        (at or above the day's minimum; TM 5-1185), -1 for none."""
+        soc = np.nan_to_num(self.soc_daily, nan=100.0)
+        lows = self.bay_min[self.bay_daily, np.arange(len(self.dates))[None, :]]
+        frozen = self.fleet.lead[:, None] & (lows <= freezing_point_at(soc))
+        return np.where(frozen.any(axis=1), np.argmax(frozen, axis=1), -1)
+
+    @property
+    def would_freeze(self) -> np.ndarray:
+        full = float(freezing_point_at(np.array(100.0)))
+        return self.fleet.lead & (self.bay_min[self.fleet.bay].min(axis=1) <= full)
+
+    @property
+    def maintainer(self) -> dict[int, str]:
+        """Battery -> its maintainer's hold at intake, in words."""
+        out: dict[int, str] = {}
+        v = self.visits
+        for k in np.flatnonzero(v.act == Act.MAINTAINER):
+            i = int(v.battery[k])
+            if i not in out and self.visit_hold_v is not None:
+                temp = self.bay_mean[int(v.bay[k]), int(v.day[k])]
+                out[i] = f"on a maintainer at {self.visit_hold_v[k]:.2f} V (for {temp:.0f} degC)"
+        return out
+
+    def bands(self) -> list[dict[str, Any]]:
+        """Per chemistry and cell count present: the rested voltages that mean charge now,
+        storage level and full (the profile's table)."""
+        from chargeplan.physics.ocv import ocv_from_soc
+
+        seen: dict[tuple[str, int], dict[str, Any]] = {}
+        f = self.fleet
+        firsts: dict[tuple[str, int], int] = {}
+        for i, key in enumerate(zip(f.chemistry, f.cells.tolist(), strict=True)):
+            firsts.setdefault(key, i)
+        for key, i in firsts.items():
+            profile, n = f.profiles[i], key[1]
+            table = profile.rest_voltage.table
+            seen[key] = {"chemistry": profile.name, "cells": n,
+                         "threshold_pct": float(f.threshold[i]),
+                         "charge_below_v": float(ocv_from_soc(f.threshold[i], table)) * n,
+                         "full_v": float(ocv_from_soc(100.0, table)) * n,
+                         "storage_v": float(ocv_from_soc(f.storage_soc[i], table)) * n,
+                         "expected": None}
+        return list(seen.values())
+
+    def ventilation(self) -> list[Any]:
+        """The warm room's ventilation on each day it charges lead-acid (IEC 62485-2 cl. 7)."""
+        from chargeplan.planners.storage_ventilation import warm_room_ventilation
+        from chargeplan.planners.ventilation import available_airflow
+
+        site = self.site_file.site
+        if site.warm_room is None:
+            return []
+        warm = self.bay_names.index(site.warm_room)
+        room = self.site_file.bays[warm]
+        given = room.airflow_m3_per_h is not None or room.opening_area_cm2 is not None
+        f = self.fleet
+        return warm_room_ventilation(
+            self.visits, warm, f.lead, np.array([p.vented for p in f.profiles], dtype=bool),
+            f.cells, f.capacity_ah, self.dates,
+            available_airflow(room.airflow_m3_per_h, room.opening_area_cm2) if given else None)
+
+    def expected_rest_v(self, k: int) -> float:
+        """The rested voltage visit ``k``'s predicted charge means (the profile's table); NaN
+        where a rest voltage says nothing (LiFePO4's flat curve, a battery on a maintainer)."""
+        from chargeplan.physics.ocv import ocv_from_soc
+
+        v, f = self.visits, self.fleet
+        i = int(v.battery[k])
+        soc = float(v.soc_before[k])
+        if not np.isfinite(soc) or flat_reading(bool(f.lfp[i]), soc) or (
+                v.act[k] == Act.MAINTAINER):
+            return float("nan")
+        return float(ocv_from_soc(soc, f.profiles[i].rest_voltage.table)) * int(f.cells[i])
+
+    def setting_of(self, k: int) -> ChargeSetting | None:
+        """Visit ``k``'s charger setting, for its battery's capacity."""
+        if self.visit_setting is None or self.visit_setting[k] < 0:
+            return None
+        setting = self.settings[int(self.visit_setting[k])]
+        return setting.for_capacity(float(self.fleet.capacity_ah[int(self.visits.battery[k])]))
+
+    def intake_charger_hours(self) -> float:
+        """The estimated charge time of every intake charge, added up."""
+        v = self.visits
+        if self.visit_setting is None:
+            return 0.0
+        hours = np.array([s.hours for s in self.settings] + [0.0])[self.visit_setting]
+        return float(hours[np.isin(v.act, CHARGES) & (v.kind == Kind.INTAKE)].sum())
+
+    def top_up_count(self) -> int:
+        v = self.visits
+        return int((np.isin(v.act, CHARGES) & (v.kind == Kind.ROUND)).sum())
+
+    def take_out_ah(self, i: int) -> float:
+        """LiFePO4 counted down to its storage level: the Ah to take out after a full charge."""
+        return float(self.fleet.capacity_ah[i] * (100.0 - self.fleet.storage_soc[i]) / 100.0)
+
+    def compare_readings(self, readings: list[Any] | None = None,
+                         profiles: ProfileSet | None = None) -> list[str]:
+        """The readings' flags as lines (the plan was made with them)."""
+        return [f"{f.battery}: {f.text}" for f in self.reading_flags]
+
+    def summary(self) -> str:
+        from collections import Counter
+
+        v = self.visits
+        counts = Counter(self.chemistry)
+        intake = int((np.isin(v.act, CHARGES) & (v.kind == Kind.INTAKE)).sum())
+        lines = [f"{self.site_file.site.name}: {len(self.rows)} batteries, "
+                 f"{self.dates[0].isoformat()} to {self.dates[-1].isoformat()} "
+                 f"({len(self.dates)} d), rounds every {self.round_step} d",
+                 "  by chemistry: " + ", ".join(f"{k} {n}" for k, n in sorted(counts.items())),
+                 f"  on a maintainer: {int(self.on_maintainer.sum())}",
+                 f"  intake charges: {intake}, "
+                 f"{self.intake_charger_hours():.1f} charger-hours in all",
+                 f"  top-ups across the season: {self.top_up_count()}",
+                 f"  rounds with a freeze risk: {int(v.freeze.sum())}"]
+        first = self.first_freeze_day[self.first_freeze_day >= 0]
+        lines.append("  first day a battery freezes under this plan: " + (
+            self.dates[int(first.min())].isoformat() if first.size else "none"))
+        waits = int((v.act == Act.WAIT).sum())
+        if waits:
+            lines.append(f"  charges waiting for a bay inside their window: {waits}")
+        for note in self.notes[:SUMMARY_LINES]:
+            lines.append(f"  ! {self.rows[note.battery].id}: {note.text}")
+        if len(self.notes) > SUMMARY_LINES:
+            lines.append(f"  ! and {len(self.notes) - SUMMARY_LINES} more notes: see "
+                         "procedure.md")
+        for flag in self.reading_flags[:SUMMARY_LINES]:
+            lines.append(f"  reading: {flag.battery}: {flag.text}")
+        if len(self.reading_flags) > SUMMARY_LINES:
+            lines.append(f"  reading: and {len(self.reading_flags) - SUMMARY_LINES} more: see "
+                         "procedure.md")
+        return "\n".join(lines) + "\n"
+
+
+def _series(dates: list[dt.date], monthly: Any, periods: Any) -> tuple[np.ndarray, np.ndarray]:
+    mean = np.full(len(dates), np.nan)
+    low = np.full(len(dates), np.nan)
+    if monthly is not None:
+        by_month = {m.month: m for m in monthly}
+        for d, day in enumerate(dates):
+            if (m := by_month.get(day.month)) is not None:
+                mean[d], low[d] = m.mean_c, m.min_c
         return mean, low
+    for period in periods:
+        for d, day in enumerate(dates):
+            if period.start <= day <= period.end:
+                mean[d], low[d] = period.mean_c, period.min_c
+    return mean, low
 
-    site_mean, site_min = series(site_file.monthly, site_file.periods)
+
+def _temperatures(site_file: SiteFile, dates: list[dt.date],
+                  shown: str) -> tuple[np.ndarray, np.ndarray]:
+    """Each bay's daily mean and minimum (degC), shape (bays, days)."""
+    site_mean, site_min = _series(dates, site_file.monthly, site_file.periods)
     if np.isnan(site_mean).any():
         first = dates[int(np.argmax(np.isnan(site_mean)))]
-        raise InputError(f"no temperature for {first.isoformat()}", field="monthly",
+        raise InputError(f"no temperature for {first.isoformat()}", file=shown,
+                         field="monthly" if site_file.monthly is not None else "periods",
                          fix="give a temperature for every month (or period) of the season")
     means, mins = [], []
     for bay in site_file.bays:
         if bay.monthly is not None:
-            mean, low = series(bay.monthly, None)
+            mean, low = _series(dates, bay.monthly, None)
             if np.isnan(mean).any():
-                raise InputError(f"bay {bay.name} has no temperature for some months",
-                                 field="bays.monthly", fix="give all the season's months")
+                first = dates[int(np.argmax(np.isnan(mean)))]
+                raise InputError(f"bay {bay.name} has no temperature for {first:%B %Y}",
+                                 file=shown, field="bays.monthly",
+                                 fix="give all the season's months")
         else:
             offset = bay.offset_k or 0.0
             mean, low = site_mean + offset, site_min + offset
@@ -125,129 +409,111 @@ def _temperatures(site_file: SiteFile, dates: list[dt.date]) -> tuple[np.ndarray
     return np.vstack(means), np.vstack(mins)
 
 
-@dataclass
-class TopUp:
-    battery: int
-    day: int
-    soc_before: float
-    where: str  # the bay it is charged in
-    plan: str = ""  # the charge plan, in one sentence, with its time
-
-
-@dataclass
-class StoragePlan:
-    site_file: SiteFile
-    rows: list[InventoryRow]
-    dates: list[dt.date]
-    round_days: list[int]
-    chemistry: list[str]
-    family: np.ndarray
-    cells: np.ndarray
-    start_soc: np.ndarray
-    target_soc: np.ndarray
-    threshold: np.ndarray
-    on_maintainer: np.ndarray
-    soc_at_rounds: np.ndarray  # (batteries, rounds), before any top-up that round
-    top_ups: list[TopUp]
-    first_freeze_day: np.ndarray  # day index, -1 for none (under the plan)
-    would_freeze: np.ndarray  # bool: freezes even when full
-    postponed: list[tuple[int, int]]  # (battery, day) lithium top-ups waiting for 0 degC
-    notes: list[tuple[int, str]] = field(default_factory=list)  # (battery, why)
-    bay_min: np.ndarray | None = None
-    bay_index: np.ndarray | None = None
-    soc_daily: np.ndarray | None = None  # (batteries, days), at the end of each day
-    maintainer: dict[int, str] = field(default_factory=dict)  # battery -> its hold setting
-
-    def compare_readings(self, readings: list[tuple[dt.date, str, float]],
-                         profiles: ProfileSet | None = None) -> list[str]:
-        """Flag batteries whose measured rest voltage says they discharge much faster than
-        predicted (a failing cell or a hidden load): more than FAST_LOSS_POINTS below."""
-        profile_set = profiles or ProfileSet(use_environment=False)
-        index = {row.id: i for i, row in enumerate(self.rows)}
-        flags = []
-        for date, battery, volts in readings:
-            i = index.get(battery)
-            if i is None or self.soc_daily is None:
-                flags.append(f"{battery}: not in the inventory")
-                continue
-            day = (date - self.dates[0]).days
-            if not 0 <= day < len(self.dates):
-                flags.append(f"{battery}: reading on {date.isoformat()} is outside the season")
-                continue
-            table = profile_set.get(self.chemistry[i]).rest_voltage.table
-            measured = float(soc_from_ocv(volts / self.cells[i], table))
-            topped = [t for t in self.top_ups if t.battery == i and t.day == day]
-            # on a top-up day, the reading is taken before the top-up
-            predicted = topped[0].soc_before if topped else float(self.soc_daily[i, day])
-            if profile_set.get(self.chemistry[i]).rest_voltage.in_flat_band(measured, predicted):
-                continue  # LiFePO4's flat curve: a rest voltage cannot tell 30 % from 80 %
-            if measured < predicted - FAST_LOSS_POINTS:
-                flags.append(f"{battery}: {measured:.0f} % measured on {date.isoformat()}, "
-                             f"{predicted:.0f} % predicted: it discharges faster than its "
-                             "chemistry should (a failing cell or a hidden load); test it")
-        return flags
-
-    def summary(self) -> str:
-        from collections import Counter
-
-        counts = Counter(self.chemistry)
-        lines = [f"{self.site_file.site.name}: {len(self.rows)} batteries, "
-                 f"{self.dates[0].isoformat()} to {self.dates[-1].isoformat()} "
-                 f"({len(self.dates)} d), rounds every {len(self.dates) and self.round_step} d"]
-        lines.append("  by chemistry: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items())))
-        lines.append(f"  on a maintainer: {int(self.on_maintainer.sum())}")
-        lines.append(f"  top-ups across the season: {len(self.top_ups)}")
-        first = self.first_freeze_day[self.first_freeze_day >= 0]
-        lines.append("  first freeze-risk date: " + (self.dates[int(first.min())].isoformat()
-                                                     if first.size else "none under this plan"))
-        if self.postponed:
-            lines.append(f"  lithium top-ups waiting for a bay above 0 degC: {len(self.postponed)}")
-        for i, why in self.notes:
-            lines.append(f"  ! {self.rows[i].id}: {why}")
-        return "\n".join(lines) + "\n"
-
-    @property
-    def round_step(self) -> int:
-        return int(self.site_file.site.round_interval_s // 86400)
-
-
-def _damaged(rows: list[InventoryRow], profiles_of: list[Any], profile_set: ProfileSet,
-             notes: list[tuple[int, str]]) -> list[int]:
+def _refused(fleet: Fleet, profile_set: ProfileSet) -> list[tuple[int, str]]:
     """Batteries whose intake voltage the core rules refuse (reversed, dead or shorted cell,
-    wrong cell count, over-discharged lithium): they are not to be stored as they are."""
+    over-discharged lithium): they are not to be stored as they are."""
     from chargeplan.engine.planner import derive_state
     from chargeplan.errors import PlanRefused
-    from chargeplan.model.battery import BatteryFile
+    from chargeplan.model.battery import State
 
     refused = []
-    for i, row in enumerate(rows):
+    for i, row in enumerate(fleet.rows):
         if row.rest_voltage_v is None:
             continue
-        battery: dict[str, Any] = {"name": row.id, "chemistry": row.chemistry,
-                                   "capacity": f"{row.capacity_ah} Ah"}
-        if row.cells_in_series is not None:
-            battery["cells_in_series"] = row.cells_in_series
+        data = battery_file(fleet.chemistry[i], int(fleet.cells[i]), row.capacity_ah, 20.0,
+                            name=row.id)
+        data = data.model_copy(update={"state": State.model_construct(
+            rest_voltage_v=row.rest_voltage_v)})
         if row.nominal_voltage_v is not None:
-            battery["nominal_voltage"] = f"{row.nominal_voltage_v} V"
-        data = {"battery": battery, "state": {"rest_voltage": f"{row.rest_voltage_v} V"},
-                "conditions": {"battery_temperature": "20 degC"}}
+            data = data.model_copy(update={"battery": data.battery.model_copy(
+                update={"nominal_voltage_v": row.nominal_voltage_v})})
         try:
-            derive_state(BatteryFile.model_validate(data), profiles=profile_set)
+            derive_state(data, profiles=profile_set)
         except PlanRefused as refusal:
-            refused.append(i)
-            notes.append((i, f"do not store it as it is: {refusal.reason}"))
+            refused.append((i, refusal.reason))
     return refused
 
 
-def _cells(row: InventoryRow, profile) -> int | None:
-    from chargeplan.engine.rules.derive import NOMINAL_TOLERANCE, cell_counts
+def _maintainer_policy(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray,
+                       bay_min: np.ndarray, refused: np.ndarray) -> np.ndarray:
+    """Lead-acid on a maintainer where the bay has mains and stays inside its charge window
+    all season. Lithium never: it is not floated (rule CP206; BU-702)."""
+    mains = np.array([b.mains for b in site_file.bays])[fleet.bay]
+    in_window = ((bay_min.min(axis=1)[fleet.bay] >= fleet.charge_min_c)
+                 & (bay_mean.max(axis=1)[fleet.bay] <= fleet.charge_max_c))
+    return ((site_file.site.policy == "maintainer") & mains & in_window & fleet.lead
+            & ~refused)
 
-    if row.cells_in_series is not None:
-        return row.cells_in_series
-    assert row.nominal_voltage_v is not None
-    fits = cell_counts(row.nominal_voltage_v, profile.nominal_cell_voltage.value,
-                       NOMINAL_TOLERANCE[profile.family])
-    return fits[0] if len(fits) == 1 else None
+
+def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
+                    profile_set: ProfileSet) -> tuple[list[tuple[int, int, float]],
+                                                      list[ReadingFlag]]:
+    index = {row.id: i for i, row in enumerate(fleet.rows)}
+    events, flags = [], []
+    for r in readings:
+        i, day = index.get(r.battery), (r.date - dates[0]).days
+        if i is None:
+            flags.append(ReadingFlag("unknown-battery", r.battery, r.date,
+                                     "not in the inventory; check the id"))
+            continue
+        if not fleet.arrive[i] <= day <= fleet.depart[i]:
+            flags.append(ReadingFlag("outside-season", r.battery, r.date,
+                                     f"reading on {r.date.isoformat()} is outside its stay"))
+            continue
+        table = profile_set.get(fleet.chemistry[i]).rest_voltage.table
+        soc = float(soc_from_ocv(r.rest_voltage_v / fleet.cells[i], table))
+        if flat_reading(bool(fleet.lfp[i]), soc):
+            flags.append(ReadingFlag(
+                "flat-curve", r.battery, r.date, f"{r.rest_voltage_v:.2f} V on "
+                f"{r.date.isoformat()} is not usable for state of charge (LiFePO4's flat "
+                "curve); the plan keeps its forecast"))
+            continue
+        events.append((day, i, soc))
+    return events, flags
+
+
+def _reading_results(events: list[tuple[int, int, float]], plan: StoragePlan) -> None:
+    """Each reading against the forecast it replaces."""
+    for day, i, soc in events:
+        before = plan.soc_daily[i, day - 1] if day > fleet_first(plan, i) else np.nan
+        battery, date = plan.rows[i].id, plan.dates[day]
+        if np.isfinite(before) and soc < before - FAST_LOSS_POINTS:
+            plan.reading_flags.append(ReadingFlag(
+                "fast-loss", battery, date, f"{soc:.0f} % measured on {date.isoformat()}, "
+                f"{before:.0f} % predicted: it discharges faster than its chemistry should (a "
+                "failing cell or a hidden load); test it. The plan restarts from the reading"))
+        else:
+            plan.reading_flags.append(ReadingFlag(
+                "reset", battery, date, f"{soc:.0f} % measured on {date.isoformat()}"
+                + (f" ({before:.0f} % predicted)" if np.isfinite(before) else "")
+                + "; the plan restarts from the reading"))
+
+
+def fleet_first(plan: StoragePlan, i: int) -> int:
+    return int(plan.fleet.arrive[i])
+
+
+def _season(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray, bay_min: np.ndarray,
+            on_maintainer: np.ndarray, refused: np.ndarray,
+            events: list[tuple[int, int, float]]) -> Season:
+    site = site_file.site
+    kinds, kind_of = keyed([(p.id,) for p in fleet.profiles])
+    first = [fleet.profiles[int(np.argmax(kind_of == k))] for k in range(len(kinds))]
+    names = [b.name for b in site_file.bays]
+    return Season(
+        lead=fleet.lead, lfp=fleet.lfp, bay=fleet.bay, kind_of=kind_of,
+        rate=np.array([p.storage.self_discharge.value for p in first]),
+        reference_c=np.array([p.storage.reference.value for p in first]),
+        doubling_k=np.array([p.storage.doubling.value for p in first]),
+        arrive=fleet.arrive, depart=fleet.depart, intake_soc=fleet.intake_soc,
+        target=fleet.storage_soc, threshold=fleet.threshold, draw_pct_day=fleet.draw_pct_day,
+        connected=fleet.connected, may_disconnect=fleet.may_disconnect,
+        charge_min_c=fleet.charge_min_c,
+        charge_max_c=fleet.charge_max_c, on_maintainer=on_maintainer, refused=refused,
+        bay_mean=bay_mean, bay_min=bay_min, mains=np.array([b.mains for b in site_file.bays]),
+        warm=names.index(site.warm_room) if site.warm_room else -1,
+        round_days=list(range(0, site.days, site.round_days)), readings=events,
+        band=LITHIUM_STORAGE_BAND_PCT)
 
 
 def plan_storage(
@@ -256,277 +522,133 @@ def plan_storage(
     *,
     profiles: ProfileSet | None = None,
     inventory_file: str = "inventory",
+    site_path: str = "site file",
+    readings: list[Reading] | None = None,
     plan_top_ups: bool = True,
 ) -> StoragePlan:
     """Plan the season for every battery (see the module docstring)."""
     profile_set = profiles or ProfileSet(use_environment=False)
     rows = list(site_file.inventory or []) + list(inventory or [])
     if not rows:
-        raise InputError("no batteries to store", field="inventory",
+        raise InputError("no batteries to store", file=site_path, field="inventory",
                          fix="list them under inventory: or give --inventory batteries.csv")
-    site = site_file.site
-    days = site.days
-    n = len(rows)
-    if n * days * 4 * 6 > MEMORY_LIMIT_BYTES:
+    days = site_file.site.days
+    if len(rows) * days * 4 * 6 > MEMORY_LIMIT_BYTES:
         raise InputError(
-            f"{n} batteries over {days} days would need about "
-            f"{n * days * 24 / 1024**3:.1f} GB", field="inventory",
+            f"{len(rows)} batteries over {days} days would need about "
+            f"{len(rows) * days * 24 / 1024**3:.1f} GB", file=inventory_file, field="inventory",
             fix="split the inventory into parts of about 500,000 batteries and plan each")
-    dates = [site.start + dt.timedelta(days=d) for d in range(days)]
-    bay_names = [b.name for b in site_file.bays]
-    bay_mean, bay_min = _temperatures(site_file, dates)
-
-    # per battery, as arrays
-    errors = []
-    profiles_of, cells, bay_index = [], np.zeros(n, dtype=int), np.zeros(n, dtype=int)
-    for i, row in enumerate(rows):
-        where = f"{inventory_file}: battery {row.id}"
-        try:
-            profile = profile_set.get(row.chemistry, field="chemistry")
-        except InputError as error:
-            errors.append(f"{where}: chemistry: {error.problem}; {error.fix}")
-            continue
-        count = _cells(row, profile)
-        if count is None:
-            errors.append(f"{where}: nominal_voltage: no single cell count fits; give "
-                          "cells_in_series")
-            continue
-        if row.bay not in bay_names:
-            errors.append(f"{where}: bay: '{row.bay}' is not a bay of the site; use one of "
-                          f"{', '.join(bay_names)}")
-            continue
-        profiles_of.append(profile)
-        cells[i] = count
-        bay_index[i] = bay_names.index(row.bay)
-    if errors:
-        raise InputErrors(errors)
-    family = np.array([p.family for p in profiles_of])
-    lead = family == "lead_acid"
-    cap = np.array([r.capacity_ah for r in rows])
-    rate = np.array([p.storage.self_discharge.value for p in profiles_of])  # %/day at reference
-    ref = np.array([p.storage.reference.value for p in profiles_of])
-    doubling = np.array([p.storage.doubling.value for p in profiles_of])
-    draw = np.array([r.parasitic_draw_a or 0.0 for r in rows]) * 24.0 / cap * 100.0  # %/day
-    intake = np.zeros(n)
-    storage_level = np.full(n, 100.0)
-    threshold = np.zeros(n)
-    notes: list[tuple[int, str]] = []
-    for i, (row, profile) in enumerate(zip(rows, profiles_of, strict=True)):
-        table = profile.rest_voltage.table
-        if row.state_of_charge_pct is not None:
-            intake[i] = row.state_of_charge_pct
-        else:
-            assert row.rest_voltage_v is not None
-            intake[i] = float(soc_from_ocv(row.rest_voltage_v / cells[i], table))
-        if profile.family == "lithium":
-            storage_level[i] = float(soc_from_ocv(profile.charge.storage_voltage.value, table))
-            threshold[i] = site.lithium_top_up_pct or profile.storage.top_up_below.value
-        else:
-            threshold[i] = site.lead_acid_top_up_pct or profile.storage.top_up_below.value
-        if profile.family == "lithium" and intake[i] > storage_level[i] + 15:
-            notes.append((i, f"lithium at {intake[i]:.0f} % at intake: discharge it to about "
-                             f"{storage_level[i]:.0f} % before storage (BU-702)"))
-        if profile.family == "lithium" and intake[i] < 10:
-            notes.append((i, "lithium nearly empty at intake: check it before storage; charge "
-                             "it to the storage level above 0 degC"))
-        if profile.family == "lead_acid" and intake[i] < 50:
-            notes.append((i, f"lead-acid at {intake[i]:.0f} % at intake: charge it fully at "
-                             "intake and check it holds its charge before storing"))
-        if row.parasitic_draw_a:
-            notes.append((i, f"a {row.parasitic_draw_a * 1000:.0f} mA load is connected: "
-                             "disconnect it, or it drains the battery"))
-    # after intake: lead-acid charged full, lithium to its storage level (not above as found)
-    start = np.where(lead, 100.0, np.maximum(np.minimum(intake, 100.0), storage_level))
-    start = np.where(~lead & (intake > storage_level), intake, start)
-
-    # the charge-temperature window of each battery (its profile's, inside the envelope)
-    low_c = np.array([max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value)
-                      for p in profiles_of])
-    high_c = np.array([min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value)
-                       for p in profiles_of])
-    low_c = np.where(lead, low_c, np.maximum(low_c, 0.0))  # never lithium below 0 degC
-    floats = np.array(["float" not in p.envelope.forbidden_stages for p in profiles_of])
-
-    # maintainers: mains, a whole season inside the charge window, lithium only with a lithium
-    # maintainer and never a chemistry that must not be floated (NMC)
-    bays = site_file.bays
-    mains_bay = np.array([b.mains for b in bays])
-    mains = mains_bay[bay_index]
-    season_min = bay_min.min(axis=1)[bay_index]
-    season_max = bay_mean.max(axis=1)[bay_index]
-    in_window = (season_min >= low_c) & (season_max <= high_c)
-    li_ok = np.array([b.lithium_maintainer for b in bays])[bay_index] & floats
-    excluded = np.zeros(n, dtype=bool)
-    for i in _damaged(rows, profiles_of, profile_set, notes):
-        excluded[i] = True
-    on_maintainer = ((site.policy == "maintainer") & mains & in_window & (lead | li_ok)
-                     & ~excluded)
-
-    # daily loss, %/day: self-discharge at the bay's mean temperature plus the draw
-    loss = self_discharge_rate(rate[:, None], bay_mean[bay_index], ref[:, None],
-                               doubling[:, None]) + draw[:, None]
-    loss = loss.astype(np.float32)
-    step = max(1, int(site.round_interval_s // 86400))
-    round_days = list(range(0, days, step))
-    soc = start.copy()
-    soc_daily = np.zeros((n, days), dtype=np.float32)  # at the end of each day
-    soc_rounds = np.zeros((n, len(round_days)), dtype=np.float32)
-    first_freeze = np.full(n, -1)
-    warm = bay_names.index(site.warm_room) if site.warm_room else None
-    top_ups: list[TopUp] = []
-    postponed: list[tuple[int, int]] = []
-    pending = np.zeros(n, dtype=bool)
-    waiting_since = np.full(n, -1)
-    flagged = np.zeros(n, dtype=bool)
-    cum = np.cumsum(loss, axis=1, dtype=np.float64)
-    full_freeze = float(freezing_point_tm5_1185(specific_gravity_bci(100.0)))
-    would_freeze = lead & (season_min <= full_freeze)
-    target = np.where(lead, 100.0, storage_level)
-
-    def chargeable(bay: np.ndarray | int, d: int, level: np.ndarray) -> np.ndarray:
-        """Inside the charge window in that bay today (lead-acid: and not frozen)."""
-        ok = (bay_min[bay, d] >= low_c) & (bay_mean[bay, d] <= high_c)
-        frozen = bay_min[bay, d] <= freezing_point_tm5_1185(specific_gravity_bci(level))
-        return ok & ~(lead & frozen)
-
-    for r, d in enumerate(round_days):
-        soc_rounds[:, r] = soc
-        end = min(d + step, days)
-        before = cum[:, d - 1] if d > 0 else 0.0
-        ahead = cum[:, d:end] - (before[:, None] if d > 0 else 0.0)  # loss by each coming day
-        predicted = soc[:, None] - ahead
-        full = soc >= target - 0.5
-        short = ~on_maintainer & ~excluded & (predicted[:, -1] < threshold)
-        for i in np.flatnonzero(short & full & ~flagged):
-            flagged[i] = True
-            notes.append((int(i), f"loses {ahead[i, -1]:.0f} % between rounds even when full: "
-                                  "put it on a maintainer, disconnect its load, or round more "
-                                  "often"))
-        need = short | (pending & ~on_maintainer)
-        if lead.any():
-            freeze = freezing_point_tm5_1185(specific_gravity_bci(np.clip(predicted, 0, 100)))
-            cold = (bay_min[:, d:end][bay_index] <= freeze + FREEZE_MARGIN_K).any(axis=1)
-            need |= lead & ~on_maintainer & ~excluded & cold & (soc < 100.0)
-        need &= ~full
-        # where to charge: its own bay if it has mains and is inside the window, else the
-        # warm room; otherwise wait for a later round (and say so)
-        here = chargeable(bay_index, d, soc) & mains
-        there = (chargeable(warm, d, soc) & mains_bay[warm]) if warm is not None else (
-            np.zeros(n, dtype=bool))
-        go = need & (here | there)
-        wait = need & ~go
-        for i in np.flatnonzero(wait):
-            postponed.append((int(i), d))
-            if waiting_since[i] < 0:
-                waiting_since[i] = d
-        waiting_since[go] = -1
-        pending = wait
-        for i in np.flatnonzero(go):
-            where = bay_names[bay_index[i]] if here[i] else bay_names[warm]  # type: ignore[index]
-            top_ups.append(TopUp(int(i), d, float(soc[i]), where))
-        soc = np.where(go, target, soc)
-        for day in range(d, end):
-            soc = np.where(on_maintainer, soc, np.maximum(soc - loss[:, day], 0.0))
-            soc_daily[:, day] = soc
-            if lead.any():
-                freeze_now = freezing_point_tm5_1185(specific_gravity_bci(soc))
-                hit = lead & (bay_min[bay_index, day] <= freeze_now) & (first_freeze < 0)
-                first_freeze[hit] = day
-    for i in sorted({i for i, _d in postponed}):
-        low = float(soc_daily[i].min())
-        since = dates[min(d for j, d in postponed if j == i)].isoformat()
-        notes.append((int(i), f"a top-up is due from {since} but no bay with mains is inside "
-                              f"its charge window; it falls to {low:.0f} % this season: move "
-                              "it to a warm room with mains"))
-    for i in np.flatnonzero(would_freeze):
-        notes.append((int(i), f"its bay falls to {bay_min[bay_index[i]].min():.0f} degC, at "
-                              "or below the freezing point of even a full battery: store it "
-                              "indoors"))
-    plan = StoragePlan(site_file, rows, dates, round_days, [p.id for p in profiles_of], family,
-                       cells, start, target, threshold,
-                       on_maintainer, soc_rounds, top_ups, first_freeze, would_freeze,
-                       postponed, notes, bay_min, bay_index, soc_daily)
-    if plan_top_ups and top_ups:
-        _plan_top_ups(plan, profile_set, bay_mean, bay_names)
-    if plan_top_ups and on_maintainer.any():
-        _maintainer_voltages(plan, profile_set, bay_mean)
+    dates = [site_file.site.start + dt.timedelta(days=d) for d in range(days)]
+    fleet = resolve_fleet(site_file, rows, profile_set, inventory_file)
+    bay_mean, bay_min = _temperatures(site_file, dates, site_path)
+    refusals = _refused(fleet, profile_set)
+    refused = np.zeros(fleet.n, dtype=bool)
+    refused[[i for i, _ in refusals]] = True
+    on_maintainer = _maintainer_policy(site_file, fleet, bay_mean, bay_min, refused)
+    events, flags = _reading_events(readings or [], fleet, dates, profile_set)
+    season = _season(site_file, fleet, bay_mean, bay_min, on_maintainer, refused, events)
+    result = run_season(season)
+    plan = StoragePlan(site_file, fleet, dates, season.round_days,
+                       [b.name for b in site_file.bays], bay_mean, bay_min, on_maintainer,
+                       refused, result.visits, result.soc_daily, result.bay_daily,
+                       reading_flags=flags)
+    _reading_results(events, plan)
+    plan.notes.extend(Note(i, "refused", f"do not store it as it is: {why}") for i, why in refusals)
+    _notes(plan)
+    if plan_top_ups:
+        _settings(plan, profile_set)
     return plan
 
 
-def _maintainer_voltages(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray) -> None:
-    """The maintainer's hold voltage for each battery on one: the core engine's storage hold
-    at the bay's mean temperature over the season (compensated for lead-acid)."""
-    from chargeplan.engine.planner import plan_charge
-    from chargeplan.errors import PlanRefused
-    from chargeplan.model.battery import BatteryFile
-    from chargeplan.plan import StageKind
-
-    made: dict[tuple[Any, ...], str] = {}
-    assert plan.bay_index is not None
-    for i in np.flatnonzero(plan.on_maintainer):
-        temp = round(float(bay_mean[plan.bay_index[i]].mean()))
-        key = (plan.chemistry[i], int(plan.cells[i]), round(plan.rows[i].capacity_ah), temp)
-        if key not in made:
-            data = {"battery": {"name": "maintainer", "chemistry": key[0],
-                                "cells_in_series": key[1], "capacity": f"{max(key[2], 1)} Ah"},
-                    "state": {"state_of_charge": "90 %"},
-                    "conditions": {"battery_temperature": f"{temp} degC"},
-                    "storage": {"duration": f"{len(plan.dates)} d"}}
-            try:
-                hold = plan_charge(BatteryFile.model_validate(data),
-                                   profiles=profiles).stage(StageKind.STORAGE_HOLD)
-                made[key] = (f"on a maintainer at {hold.voltage_v:.2f} V (for {temp} degC)"
-                             if hold else "on a maintainer")
-            except PlanRefused as refusal:
-                made[key] = f"not on a maintainer: {refusal.reason}"
-        plan.maintainer[int(i)] = made[key]
+def _notes(plan: StoragePlan) -> None:
+    """What staff must know about single batteries, each with its code."""
+    f, v = plan.fleet, plan.visits
+    for i in np.flatnonzero(f.lead & (np.nan_to_num(f.intake_soc, nan=100.0) < 50)):
+        plan.notes.append(Note(int(i), "lead-acid-low", f"lead-acid at {f.intake_soc[i]:.0f} % "
+                               "at intake: after its charge, check it holds its charge before "
+                               "storing it"))
+    for i in np.flatnonzero(f.connected & (f.draw_pct_day > 0)):
+        plan.notes.append(Note(int(i), "load-connected", f"its "
+                               f"{f.rows[i].parasitic_draw_a * 1000:.0f} mA load stays "
+                               "connected (loads: connected): it drains the battery"))
+    _fast_losers(plan)
+    waits = v.act == Act.WAIT
+    since = np.full(f.n, len(plan.dates))
+    np.minimum.at(since, v.battery[waits], v.day[waits])
+    for i in np.flatnonzero(since < len(plan.dates)):
+        low = float(np.nanmin(plan.soc_daily[i]))
+        plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
+                               f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
+                               f"inside its charge window; it falls to {low:.0f} % this season: "
+                               "move it to a warm room with mains"))
+    for i in np.flatnonzero(plan.would_freeze):
+        plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
+                               f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "
+                               "freezing point of even a full battery: store it indoors"))
 
 
-def _plan_top_ups(plan: StoragePlan, profiles: ProfileSet, bay_mean: np.ndarray,
-                  bay_names: list[str]) -> None:
-    """A charge plan for each top-up, made once per kind of battery and conditions, and all
-    of them estimated together (one simulation of every kind)."""
-    from chargeplan.engine.planner import plan_charge
-    from chargeplan.errors import PlanRefused
-    from chargeplan.estimate import estimate_plans
-    from chargeplan.fmt import duration
-    from chargeplan.model.battery import BatteryFile
+def _fast_losers(plan: StoragePlan) -> None:
+    """Batteries that fall below their threshold within one round even when charged full."""
+    f, v = plan.fleet, plan.visits
+    order = np.lexsort((v.day, v.battery))
+    b, before, after = v.battery[order], v.soc_before[order], v.soc_after[order]
+    kind = v.kind[order]
+    same = b[1:] == b[:-1]
+    fell = same & (after[:-1] >= f.storage_soc[b[:-1]] - 0.5) & (kind[1:] == Kind.ROUND) & (
+        before[1:] < f.threshold[b[1:]])
+    lowest = np.full(f.n, np.inf)
+    np.minimum.at(lowest, b[1:][fell], before[1:][fell])
+    for i in np.flatnonzero(np.isfinite(lowest)):
+        low = float(lowest[i])
+        plan.notes.append(Note(int(i), "loses-fast", f"falls to {low:.0f} % between rounds even "
+                               "when charged full: disconnect its load, put it on a maintainer, "
+                               "or round more often"))
 
-    keys: list[tuple[Any, ...]] = []
-    kinds: dict[tuple[Any, ...], int] = {}
-    plans, refused = [], {}
-    for top_up in plan.top_ups:
-        i = top_up.battery
-        row = plan.rows[i]
-        temp = round(float(bay_mean[bay_names.index(top_up.where), top_up.day]))
-        soc = int(top_up.soc_before // 5 * 5)
-        key = (plan.chemistry[i], int(plan.cells[i]), round(row.capacity_ah), soc, temp)
-        keys.append(key)
-        if key in kinds or key in refused:
-            continue
-        remaining = max(len(plan.dates) - top_up.day, 1)
-        data = {
-            "battery": {"name": f"top-up {row.id}", "chemistry": key[0],
-                        "cells_in_series": key[1], "capacity": f"{max(key[2], 1)} Ah"},
-            "state": {"state_of_charge": f"{soc} %"},
-            "conditions": {"battery_temperature": f"{temp} degC"},
-        }
-        if plan.family[top_up.battery] == "lithium":  # to its storage level, then stop
-            data["storage"] = {"duration": f"{remaining} d"}
-        try:
-            plans.append(plan_charge(BatteryFile.model_validate(data), profiles=profiles))
-            kinds[key] = len(plans) - 1
-        except PlanRefused as refusal:
-            refused[key] = f"do not charge here: {refusal.reason}"
-    if plans:
-        estimate_plans(plans, profiles=profiles)
-    text = {}
-    for key, index in kinds.items():
-        charge = plans[index]
-        total = charge.total_estimate()
-        timed = [s.kind.label for s in charge.stages
-                 if not (s.estimate and s.estimate.per_day)]
-        text[key] = (" -> ".join(timed) + (", then disconnect" if len(timed) < len(
-            charge.stages) else "") + (f", about {duration(total[0])}" if total else ""))
-    for top_up, key in zip(plan.top_ups, keys, strict=True):
-        top_up.plan = text.get(key) or refused[key]
+
+def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
+    """The charger settings of every charge and the maintainer's hold of every check."""
+    f, v = plan.fleet, plan.visits
+    charge = np.flatnonzero(np.isin(v.act, CHARGES))
+    temp = np.round(plan.bay_mean[v.where, v.day]).astype(int)
+    soc = np.where(np.isnan(v.soc_before), -1, v.soc_before // 5 * 5).astype(int)
+    kind = _kind_codes(f)
+    codes = _pack(kind[v.battery[charge]], soc[charge], temp[charge],
+                  (v.act[charge] == Act.TO_STORAGE).astype(int))
+    unique, which = np.unique(codes, return_inverse=True)
+    first = charge[_firsts(codes, unique)]
+    keys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(soc[k]),
+             int(temp[k]), bool(v.act[k] == Act.TO_STORAGE)) for k in first]
+    plan.settings = charge_settings(keys, profile_set)
+    plan.visit_setting = np.full(len(v), -1)
+    plan.visit_setting[charge] = which
+    held = np.flatnonzero(v.act == Act.MAINTAINER)
+    hcodes = _pack(kind[v.battery[held]], temp[held])
+    hunique, hwhich = np.unique(hcodes, return_inverse=True)
+    hkeys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(temp[k]))
+             for k in held[_firsts(hcodes, hunique)]]
+    holds = np.array(maintainer_holds(hkeys, profile_set) or [np.nan])
+    plan.visit_hold_v = np.full(len(v), np.nan)
+    plan.visit_hold_v[held] = holds[hwhich] if held.size else []
+
+
+def _kind_codes(f: Fleet) -> np.ndarray:
+    """One integer per distinct (chemistry, cells) of the fleet."""
+    pairs = [(c, int(n)) for c, n in zip(f.chemistry, f.cells, strict=True)]
+    index: dict[tuple[str, int], int] = {}
+    return np.fromiter((index.setdefault(p, len(index)) for p in pairs), dtype=np.int64,
+                       count=len(pairs))
+
+
+def _pack(*columns: np.ndarray) -> np.ndarray:
+    """Small integer columns packed into one int64 key per row (each column offset to >= 0)."""
+    code = np.zeros(len(columns[0]), dtype=np.int64)
+    for column in columns:
+        c = np.asarray(column, dtype=np.int64) + 1000
+        code = code * 4096 + c
+    return code
+
+
+def _firsts(codes: np.ndarray, unique: np.ndarray) -> np.ndarray:
+    """For each unique code, the position of its first row."""
+    order = np.argsort(codes, kind="stable")
+    return order[np.searchsorted(codes[order], unique)]

@@ -1,6 +1,8 @@
 """Storage planner benchmark: N batteries over a 270-day season, and writing its files.
 
-Run on its own: ``python tests/benchmarks/bench_storage.py [--sizes 1000 10000 100000]``.
+Run on its own: ``python tests/benchmarks/bench_storage.py [--sizes 1000 10000 100000]``;
+``--end-to-end 100000`` times the command line itself over 181 days (read the CSV, plan,
+write every file) and each phase of it in process.
 Targets (issue: storage): 100,000 batteries under 5 s and 1.5 GB peak, near-linear growth;
 the schedule CSV and calendar for 10,000 batteries under 10 s. Each size runs in a fresh
 process so its peak memory is its own.
@@ -69,12 +71,99 @@ def child(n: int, write: bool) -> None:
                       "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
 
 
+SITE_181 = """site: {name: Benchmark depot, start: 2026-10-15, duration: 181 d,
+  round_interval: 14 d,
+  policy: maintainer, warm_room: heated}
+monthly:
+  - {month: 10, mean: 9 degC, min: 1 degC}
+  - {month: 11, mean: 4 degC, min: -5 degC}
+  - {month: 12, mean: 0 degC, min: -12 degC}
+  - {month: 1, mean: -2 degC, min: -28 degC}
+  - {month: 2, mean: -1 degC, min: -15 degC}
+  - {month: 3, mean: 3 degC, min: -7 degC}
+  - {month: 4, mean: 8 degC, min: 0 degC}
+bays:
+  - {name: north}
+  - {name: south, mains: true}
+  - {name: east, mains: true, offset: -3 K}
+  - {name: heated, mains: true, offset: +18 K, airflow: 40 m3/h}
+"""
+
+
+def _inventory_csv(n: int, path) -> None:
+    import numpy as np
+
+    rng = np.random.default_rng(3)
+    chems = ["flooded", "agm", "gel", "lifepo4", "nmc"]
+    bays = ["north", "south", "east", "heated"]
+    with open(path, "w", encoding="utf-8") as out:
+        out.write("id,owner,chemistry,nominal_voltage,cells_in_series,capacity,state_of_charge,"
+                  "bay,parasitic_draw\n")
+        for i in range(n):
+            chem = chems[i % 5]
+            size = ",3" if chem == "nmc" else "12 V,"
+            draw = "20 mA" if i % 7 == 0 else ""
+            out.write(f"U{i},owner {i % 97},{chem},{size},{rng.uniform(5, 200):.0f} Ah,"
+                      f"{rng.uniform(15, 100):.0f} %,{bays[i % 4]},{draw}\n")
+
+
+def end_to_end(n: int) -> None:
+    """The command line over 181 days, then its phases one by one in process."""
+    import tempfile
+    from pathlib import Path
+
+    folder = Path(tempfile.mkdtemp(prefix="bench-storage-"))
+    (folder / "site.yaml").write_text(SITE_181, encoding="utf-8")
+    _inventory_csv(n, folder / "inventory.csv")
+    command = [sys.executable, "-m", "chargeplan", "storage", str(folder / "site.yaml"),
+               "--inventory", str(folder / "inventory.csv"), "-o", str(folder / "out"), "--force"]
+    start = time.perf_counter()
+    subprocess.run(command, check=True, capture_output=True)
+    total = time.perf_counter() - start
+    sizes = {p.name: p.stat().st_size for p in (folder / "out").iterdir()}
+    print(f"{n:,} batteries x 181 d through the CLI: {total:.2f} s (target 5 s); "
+          f"schedule.csv {sizes['schedule.csv'] / 1e6:.1f} MB, all files "
+          f"{sum(sizes.values()) / 1e6:.1f} MB")
+    out = subprocess.run([sys.executable, __file__, "--phases", str(folder)], check=True,
+                         capture_output=True, text=True).stdout
+    print(out, end="")
+
+
+def phases(folder: str) -> None:
+    from pathlib import Path
+
+    from chargeplan.planners.storage import load_site, plan_storage, read_inventory
+    from chargeplan.profiles import ProfileSet
+    from chargeplan.render.storage_docs import storage_files
+
+    where = Path(folder)
+    t0 = time.perf_counter()
+    site = load_site(where / "site.yaml")
+    rows = read_inventory(where / "inventory.csv")
+    t1 = time.perf_counter()
+    profiles = ProfileSet(use_environment=False)
+    plan = plan_storage(site, rows, profiles=profiles)
+    t2 = time.perf_counter()
+    storage_files(plan, profiles)
+    t3 = time.perf_counter()
+    print(f"  phases in process: read {t1 - t0:.2f} s, plan {t2 - t1:.2f} s "
+          f"({len(plan.visits):,} visits), documents {t3 - t2:.2f} s")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000, 100000])
     parser.add_argument("--child", type=int, help=argparse.SUPPRESS)
     parser.add_argument("--write", action="store_true", help=argparse.SUPPRESS)
+    parser.add_argument("--end-to-end", type=int, help="time the CLI for this many batteries")
+    parser.add_argument("--phases", help=argparse.SUPPRESS)
     args = parser.parse_args()
+    if args.phases:
+        phases(args.phases)
+        return
+    if args.end_to_end:
+        end_to_end(args.end_to_end)
+        return
     if args.child:
         child(args.child, args.write)
         return

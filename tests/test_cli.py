@@ -71,14 +71,14 @@ def test_refusal_exits_1(write_yaml):
 @pytest.mark.parametrize(
     ("change", "fragments"),
     [
-        ({"battery": {"capacity": "9 V"}}, ["battery.capacity", "is not a capacity", "9 Ah"]),
+        ({"battery": {"capacity": "24 V"}}, ["battery.capacity", "is not a capacity", "24 Ah"]),
         ({"battery": {"capacity": "9"}}, ["battery.capacity", "has no unit"]),
         ({"battery": {"chemistry": "nicad"}}, ["battery.chemistry", "unknown chemistry",
                                               "flooded, agm"]),
         ({"battery": {"capacity": "nan Ah"}}, ["battery.capacity", "finite"]),
         ({"battery": {"capacity": "-5 Ah"}}, ["battery.capacity", "below"]),
         ({"battery": {"cells_in_series": 4}}, ["battery.cells_in_series", "8 V nominal"]),
-        ({"battery": {"capacty": "9 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
+        ({"battery": {"capacty": "24 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
         ({"battery": {"overrides": {"max_charge_current": "0.2 C"}}},
          ["max_charge_current", "0.1 It"]),
         ({"conditions": {"battery_temperature": "20 C"}}, ["battery_temperature", "degC"]),

@@ -17,7 +17,7 @@ from pydantic import BaseModel as _BaseModel
 from pydantic import ConfigDict
 from pydantic_core import core_schema
 
-from chargeplan.units import DIMENSIONS, describe_dimension, parse_quantity
+from chargeplan.units import DIMENSIONS, QuantityError, describe_dimension, parse_quantity, quote
 
 __all__ = [
     "CellOrPackVoltage",
@@ -30,7 +30,8 @@ __all__ = [
     "quantity",
 ]
 
-_NUMBER_WITH_UNIT = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*\S.*$"
+# one number (ASCII digits; the minus sign U+2212 too), then a unit (chargeplan.units)
+_NUMBER_WITH_UNIT = r"^\s*[-+\u2212]?([0-9]+(\.[0-9]*)?|\.[0-9]+)([eE][-+]?[0-9]+)?\s*[^\s0-9.,].*$"
 
 
 class InputModel(_BaseModel):
@@ -92,7 +93,7 @@ def _reader(kind: str, low: float | None, high: float | None) -> Callable[[objec
     def read(raw: object) -> float:
         value = parse_quantity(raw, kind)
         if not math.isfinite(value):  # parse_quantity refuses these too; a NaN passes < and >
-            raise ValueError(f"'{raw}' is not a finite number")
+            raise ValueError(f"'{quote(raw)}' is not a finite number")
         if low is not None and value < low:
             raise ValueError(f"{_shown(value, unit)} is below the least sensible "
                              f"{_shown(low, unit)}")
@@ -160,24 +161,25 @@ def _current_or_rate(raw: object) -> CurrentSpec:
     try:
         value = parse_quantity(raw, "current")
         result = CurrentSpec(amperes=value)
-    except ValueError as as_current:
+    except QuantityError as as_current:
+        if as_current.about_text:  # the characters are wrong: a C-rate would not read either
+            raise
         try:
             result = CurrentSpec(c_rate=parse_quantity(raw, "c_rate"))
-        except ValueError:
-            raise ValueError(
-                f"{str(as_current).split('; write')[0]}; write a current such as '2.5 A' "
-                "or a C-rate such as '0.1 It'"
-            ) from None
+        except QuantityError:
+            raise QuantityError(as_current.problem, "write a current such as '2.5 A' or a "
+                                "C-rate such as '0.1 It'") from None
     magnitude = result.amperes if result.amperes is not None else result.c_rate
     assert magnitude is not None
     if not magnitude > 0:
-        raise ValueError(f"'{raw}' must be above zero")
+        raise ValueError(f"'{quote(raw)}' must be above zero")
     if result.amperes is not None and result.amperes < 0.001:
-        raise ValueError(f"'{raw}' is below 1 mA, the smallest current a setpoint file carries")
+        raise ValueError(f"'{quote(raw)}' is below 1 mA, the smallest current a setpoint "
+                         "file carries")
     if result.amperes is not None and result.amperes > 10_000:
-        raise ValueError(f"'{raw}' is above the largest sensible 10000 A")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 10000 A")
     if result.c_rate is not None and result.c_rate > 20:
-        raise ValueError(f"'{raw}' is above the largest sensible 20 It")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 20 It")
     return result
 
 
@@ -215,18 +217,18 @@ def _pack_or_cell(raw: object) -> VoltageSpec:
         return raw
     try:
         result = VoltageSpec(parse_quantity(raw, "voltage"), per_cell=False)
-    except ValueError as as_pack:
+    except QuantityError as as_pack:
+        if as_pack.about_text:  # the characters are wrong: a per-cell value would not read
+            raise
         try:
             result = VoltageSpec(parse_quantity(raw, "cell_voltage"), per_cell=True)
-        except ValueError:
-            raise ValueError(
-                f"{str(as_pack).split('; write')[0]}; write a battery voltage such as "
-                "'14.7 V' or a voltage per cell such as '2.45 V/cell'"
-            ) from None
+        except QuantityError:
+            raise QuantityError(as_pack.problem, "write a battery voltage such as '14.7 V' "
+                                "or a voltage per cell such as '2.45 V/cell'") from None
     if not (result.volts > 0 and math.isfinite(result.volts)):
-        raise ValueError(f"'{raw}' must be above zero")
+        raise ValueError(f"'{quote(raw)}' must be above zero")
     if result.volts > 1000:
-        raise ValueError(f"'{raw}' is above the largest sensible 1000 V")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 1000 V")
     return result
 
 

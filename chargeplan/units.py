@@ -233,23 +233,22 @@ def _text_problem(shown: str, *, digits_ok: str = "") -> QuantityError | None:
 
 def _number_problem(text: str, shown: str, example: str, wanted: str) -> QuantityError:
     """Why ``text`` (ASCII, normalised) is not one number and a unit: the likeliest reason."""
-    numbers = re.findall(r"[0-9][0-9,.'_]*", text)
-    if re.search(r"[0-9],[0-9]", text):
-        first = next(n for n in numbers if "," in n)
-        if re.fullmatch(r"[0-9]{1,3}(,[0-9]{3})+(\.[0-9]*)?", first):
-            return QuantityError(f"'{quote(shown)}' groups digits with a comma",
-                                 f"write {first.replace(',', '')}, without thousands "
-                                 "separators", about_text=True)
-        if re.fullmatch(r"[0-9]+,[0-9]+", first):
-            dotted = first.replace(",", ".")
-            return QuantityError(f"'{quote(shown)}' has a decimal comma",
-                                 f"write {dotted}, not {first}", about_text=True)
-        return QuantityError(f"'{quote(shown)}' has a comma in its number",
-                             "write one number with a decimal point, e.g. 1.5",
-                             about_text=True)
-    if re.search(r"[0-9][_'][0-9]", text) or any(n.count(".") > 1 for n in numbers):
-        return QuantityError(f"'{quote(shown)}' groups digits", "write the number without "
-                             "thousands separators, e.g. 1500", about_text=True)
+    numbers = re.findall(r"[0-9][0-9,.'_]*[0-9]|[0-9]", text)
+    comma = next((n for n in numbers if "," in n), None)
+    if comma is not None and re.fullmatch(r"[0-9]+,[0-9]+", comma):
+        dotted, plain = comma.replace(",", "."), comma.replace(",", "")
+        if re.fullmatch(r"[0-9]{1,3},[0-9]{3}", comma):  # a decimal comma or a separator
+            return QuantityError(f"'{quote(shown)}' has a comma in its number (a decimal "
+                                 "comma or a thousands separator)",
+                                 f"write {dotted} or {plain}, not {comma}", about_text=True)
+        return QuantityError(f"'{quote(shown)}' has a decimal comma",
+                             f"write {dotted}, not {comma}", about_text=True)
+    grouped = next((n for n in numbers if re.search(r"[0-9][_',][0-9]", n)
+                    or n.count(".") > 1), None)
+    if grouped is not None:
+        return QuantityError(f"'{quote(shown)}' groups digits (thousands separators)",
+                             f"write {_ungrouped(grouped)}: one decimal point at most, no "
+                             "separators", about_text=True)
     if re.search(r"[0-9.][ \t]+[-+.]?[0-9]", text) or len(re.findall(
             r"(?<![A-Za-z*^0-9.])[-+]?\.?[0-9]", text)) > 1:
         return QuantityError(f"'{quote(shown)}' has two numbers, or a space inside a number",
@@ -257,6 +256,17 @@ def _number_problem(text: str, shown: str, example: str, wanted: str) -> Quantit
                              about_text=True)
     return QuantityError(f"cannot read '{quote(shown)}' as a quantity", f"write {wanted}",
                          about_text=True)
+
+
+def _ungrouped(number: str) -> str:
+    """'3_950' -> '3950'; '1.500,5' -> '1500.5' (the last of two kinds of mark as the
+    decimal marker: a suggestion in a message, never a value read)."""
+    marks = [m for m in ".," if m in number]
+    if len(marks) == 2:
+        decimal = max(marks, key=number.rfind)
+        whole, _, fraction = number.rpartition(decimal)
+        return re.sub(r"[_.,']", "", whole) + "." + fraction
+    return re.sub(r"[_.,']", "", number)
 
 
 def _normalise(shown: str, kind: str) -> str:

@@ -262,7 +262,7 @@ def state(
 @app.command()
 def runtime(
     file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
-    load: Annotated[str, typer.Option("--load", help="a current (3A) or a power (36W)")],
+    load: Annotated[str, typer.Option("--load", help="a current (5A) or a power (60W)")],
     profiles: ProfilePaths = None,
 ) -> None:
     """How long a load takes to flatten the battery from its present state."""

@@ -79,8 +79,8 @@ ureg = _registry()
 Q_ = ureg.Quantity
 
 # Each named dimension: the unit we convert to, an example a user can copy, its name.
-# The examples come from the bundled scenarios (the small-engine workshop's mower and
-# generator batteries, the lakeside boat store, the drone bench).
+# The examples come from the bundled scenarios: the small-engine workshop's ride-on mower
+# (24 Ah) and its bench's mains budget (800 W), the lakeside boat store.
 DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "voltage": ("V", "12.6 V", "a voltage"),
     "cell_voltage": ("V/cell", "2.40 V/cell", "a voltage per cell"),
@@ -93,7 +93,7 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "duration": ("s", "8 h", "a duration"),
     "fraction": ("percent", "60 %", "a percentage"),
     "coefficient": ("mV/K/cell", "-3 mV/K/cell", "a temperature coefficient per cell"),
-    "power": ("W", "36 W", "a power"),
+    "power": ("W", "800 W", "a power"),
     "resistance": ("ohm", "10 mohm", "a resistance"),
     "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
     "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),

@@ -36,6 +36,7 @@ __all__ = [
     "describe_dimension",
     "option_number",
     "option_quantity",
+    "parse_number",
     "parse_quantity",
     "quote",
     "ureg",
@@ -396,14 +397,46 @@ def _parse_slowly(text: object, kind: str) -> float:
     return magnitude
 
 
-def option_number(text: str | None, option: str, *, integer: bool = False) -> float | None:
-    """A command-line option's plain number (no unit), read as strictly as a quantity's:
-    ASCII digits, one sign, one decimal point, an optional exponent; None when not given.
+def parse_number(text: str, *, integer: bool = False) -> float:
+    """A plain number (no unit) read as strictly as a quantity's: ASCII digits, one sign,
+    one decimal point, an optional exponent (the minus sign U+2212 counts as a minus).
 
-    ``nan``, ``inf``, ``3_950``, ``1,5`` and the rest are an InputError naming the option.
+    ``nan``, ``inf``, ``3_950``, ``1,5`` and the rest raise :class:`QuantityError`.
+    With ``integer``, only a whole number written without a point or exponent is read.
 
-    >>> option_number("1.009e-3", "--a")
+    >>> parse_number("1.009e-3")
     0.001009
+    >>> parse_number("−4")
+    -4.0
+    """
+    shown = text.strip()
+    example = "12" if integer else "3950"
+    wanted = f"write {'a whole number' if integer else 'a number'} such as {example}"
+    if not shown:
+        raise QuantityError("empty", wanted)
+    problem = _text_problem(shown)
+    if problem is not None:
+        raise problem
+    raw = shown.translate(_MEANINGFUL)
+    if _NOT_FINITE.fullmatch(raw):
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", wanted)
+    if not _NUMBER_ONLY.fullmatch(raw):
+        if re.fullmatch(r"[ \t]*[-+]?[0-9.eE]+[ \t]*[A-Za-z%].*", raw):
+            raise QuantityError(f"'{quote(shown)}' has a unit", f"write the number alone, "
+                                f"e.g. {example}")
+        raise _number_problem(raw, shown, example, f"a number such as {example}")
+    if integer and not re.fullmatch(r"[ \t]*[-+]?[0-9]+[ \t]*", raw, re.ASCII):
+        raise QuantityError(f"'{quote(shown)}' is not a whole number", wanted)
+    value = int(raw) if integer else float(raw)
+    if not math.isfinite(value):
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", wanted)
+    return value
+
+
+def option_number(text: str | None, option: str, *, integer: bool = False) -> float | None:
+    """A command-line option's plain number (:func:`parse_number`), or None when not given;
+    a bad one is an InputError naming the option.
+
     >>> option_number("12", "--adc-bits", integer=True)
     12
     """
@@ -411,34 +444,10 @@ def option_number(text: str | None, option: str, *, integer: bool = False) -> fl
         return None
     from chargeplan.errors import InputError
 
-    shown = text.strip()
-    example = "12" if integer else "3950"
     try:
-        problem = _text_problem(shown) if shown else QuantityError("empty", f"write a number "
-                                                                   f"such as {example}")
-        if problem is not None:
-            raise problem
-        raw = shown.translate(_MEANINGFUL)
-        if _NOT_FINITE.fullmatch(raw):
-            raise QuantityError(f"'{quote(shown)}' is not a finite number",
-                                f"write a number such as {example}")
-        if not _NUMBER_ONLY.fullmatch(raw):
-            if re.fullmatch(r"[ \t]*[-+]?[0-9.eE]+[ \t]*[A-Za-z%].*", raw):
-                raise QuantityError(f"'{quote(shown)}' has a unit", "write the number alone, "
-                                    f"e.g. {example}")
-            raise _number_problem(raw, shown, example, f"a number such as {example}")
-        value = float(raw)
-        if not math.isfinite(value):
-            raise QuantityError(f"'{quote(shown)}' is not a finite number",
-                                f"write a number such as {example}")
-        if integer:
-            if not re.fullmatch(r"[ \t]*[-+]?[0-9]+[ \t]*", raw, re.ASCII):
-                raise QuantityError(f"'{quote(shown)}' is not a whole number",
-                                    f"write a whole number such as {example}")
-            return int(raw)
+        return parse_number(text, integer=integer)
     except QuantityError as error:
         raise InputError(error.problem, field=option, fix=error.fix) from None
-    return value
 
 
 def option_quantity(text: str | None, kind: str, option: str) -> float | None:

@@ -17,7 +17,14 @@ from pydantic import BaseModel as _BaseModel
 from pydantic import ConfigDict
 from pydantic_core import core_schema
 
-from chargeplan.units import DIMENSIONS, QuantityError, describe_dimension, parse_quantity, quote
+from chargeplan.units import (
+    DIMENSIONS,
+    QuantityError,
+    describe_dimension,
+    parse_number,
+    parse_quantity,
+    quote,
+)
 
 __all__ = [
     "CellOrPackVoltage",
@@ -27,6 +34,7 @@ __all__ = [
     "Parsed",
     "Text",
     "VoltageSpec",
+    "number",
     "quantity",
 ]
 
@@ -117,6 +125,49 @@ def quantity(
     ``ge``/``le`` bound the value in the kind's canonical unit.
     """
     return Annotated[float, Parsed(_reader(kind, ge, le), _schema(kind, description))]
+
+
+def _number_reader(whole: bool, low: float | None, high: float | None) -> Callable[[object], float]:
+    """A plain number: a YAML or JSON number, or text read by the one reader (a CSV cell)."""
+
+    def read(raw: object) -> float:
+        if isinstance(raw, bool):
+            raise QuantityError(f"{raw} is not a number", "write a number such as 6")
+        if isinstance(raw, int | float) and not isinstance(raw, bool):
+            value = raw
+            if whole and not float(raw).is_integer():
+                raise QuantityError(f"{raw:g} is not a whole number",
+                                    "write a whole number such as 6")
+            if not math.isfinite(value):
+                raise QuantityError(f"{raw} is not a finite number", "write a finite number")
+        elif isinstance(raw, str):
+            value = parse_number(raw, integer=whole)
+        else:
+            raise QuantityError(f"expected a number, got {type(raw).__name__}",
+                                "write a number such as 6")
+        if low is not None and value < low:
+            raise QuantityError(f"{value:g} is below the least sensible {low:g}",
+                                f"use a value of at least {low:g}")
+        if high is not None and value > high:
+            raise QuantityError(f"{value:g} is above the largest sensible {high:g}",
+                                f"use a value of at most {high:g}")
+        return int(value) if whole else float(value)
+
+    return read
+
+
+def number(*, ge: float | None = None, le: float | None = None, whole: bool = False,
+           description: str | None = None) -> Any:
+    """An annotated plain number (no unit): a YAML or JSON number, or text as strict as a
+    quantity's (a CSV cell): no '3_950', '1,5', 'nan' or lookalike digits."""
+    schema: dict[str, Any] = {"type": "integer" if whole else "number"}
+    if ge is not None:
+        schema["minimum"] = ge
+    if le is not None:
+        schema["maximum"] = le
+    if description:
+        schema["description"] = description
+    return Annotated[int if whole else float, Parsed(_number_reader(whole, ge, le), schema)]
 
 
 TEXT_MAX = 200

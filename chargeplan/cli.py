@@ -1,8 +1,8 @@
 """The command line: parse, make one library call, print, map errors to exit codes.
 
-Exit codes (DESIGN.md): 0 ok; 1 the plan is refused for safety; 2 bad input;
-3 internal error. No domain logic lives here; heavy imports wait for the command
-that needs them.
+Exit codes (DEVELOPERS.md, "Errors and exit codes"): 0 ok; 1 the plan is refused for
+safety; 2 bad input; 3 internal error. No domain logic lives here; heavy imports wait for
+the command that needs them.
 
 No ``from __future__ import annotations`` here: typer reads every command's signature at
 start-up, and string annotations would each be evaluated (DEVELOPERS.md, start-up).
@@ -33,6 +33,11 @@ class Format(StrEnum):
     json = "json"
     c_header = "c-header"
     image = "image"
+
+
+def _choices(values) -> str:
+    """The metavar that shows a fixed-choice option's values in --help."""
+    return "[" + "|".join(str(getattr(v, "value", v)) for v in values) + "]"
 
 
 ProfilePaths = Annotated[
@@ -108,7 +113,7 @@ def _emit(text: str | bytes, output: Path | None, force: bool) -> None:
 def plan(
     file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
     format_name: Annotated[str, typer.Option(
-        "--format", "-f", help="text, markdown, html, json, c-header or image")] = "text",
+        "--format", "-f", metavar=_choices(Format), help="the output format")] = "text",
     explain: Annotated[bool, typer.Option(help="add the rule and arithmetic behind each "
                                                "setpoint")] = False,
     output: Annotated[
@@ -237,11 +242,12 @@ def state(
     chemistry: Annotated[str, typer.Option("--chemistry", help="a profile id")],
     rest_voltage: Annotated[str | None, typer.Option("--rest-voltage",
                                                      help="e.g. 12.31V")] = None,
-    specific_gravity: Annotated[float | None, typer.Option("--specific-gravity",
-                                                           help="hydrometer, as read")] = None,
+    specific_gravity: Annotated[str | None, typer.Option(
+        "--specific-gravity", metavar="NUMBER", help="hydrometer, as read, e.g. 1.215")] = None,
     temperature: Annotated[str | None, typer.Option("--temperature",
                                                     help="battery temperature, e.g. 5degC")] = None,
-    cells: Annotated[int | None, typer.Option("--cells", help="cells in series")] = None,
+    cells: Annotated[str | None, typer.Option("--cells", metavar="INTEGER",
+                                              help="cells in series")] = None,
     nominal_voltage: Annotated[str | None, typer.Option("--nominal-voltage")] = None,
     rested_for: Annotated[str | None, typer.Option("--rested-for",
                                                    help="time since charging, e.g. 30min")] = None,
@@ -250,14 +256,14 @@ def state(
     """State of charge from a rest voltage or a hydrometer reading."""
     with _errors():
         from chargeplan.planners.readings import state_of_charge
-        from chargeplan.units import option_quantity
+        from chargeplan.units import option_number, option_quantity
 
         reading = state_of_charge(
             chemistry,
             rest_voltage_v=option_quantity(rest_voltage, "voltage", "--rest-voltage"),
-            specific_gravity=specific_gravity,
+            specific_gravity=option_number(specific_gravity, "--specific-gravity"),
             temperature_c=option_quantity(temperature, "temperature", "--temperature"),
-            cells=cells,
+            cells=option_number(cells, "--cells", integer=True),
             nominal_voltage_v=option_quantity(nominal_voltage, "voltage", "--nominal-voltage"),
             rested_s=option_quantity(rested_for, "duration", "--rested-for"),
             profiles=_profile_set(profiles),
@@ -272,7 +278,7 @@ def state(
 @app.command()
 def runtime(
     file: Annotated[Path, typer.Argument(help="the battery file (YAML or JSON)")],
-    load: Annotated[str, typer.Option("--load", help="a current (8.3A) or a power (100W)")],
+    load: Annotated[str, typer.Option("--load", help="a current (5A) or a power (60W)")],
     profiles: ProfilePaths = None,
 ) -> None:
     """How long a load takes to flatten the battery from its present state."""
@@ -347,14 +353,19 @@ def firmware(
 @app.command()
 def thermistor(
     r25: Annotated[str, typer.Option("--r25", help="resistance at 25 degC, e.g. 10kohm")],
-    beta: Annotated[float, typer.Option("--beta", help="B value in K, e.g. 3950")],
+    beta: Annotated[str, typer.Option("--beta", metavar="NUMBER",
+                                      help="B value in K, e.g. 3950")],
     bias: Annotated[str, typer.Option("--bias", help="divider bias resistor, e.g. 10kohm")],
-    adc_bits: Annotated[int, typer.Option("--adc-bits", help="ADC resolution")] = 12,
+    adc_bits: Annotated[str, typer.Option("--adc-bits", metavar="INTEGER",
+                                          help="ADC resolution")] = "12",
     battery: Annotated[Path | None, typer.Option("--battery", help="codes for this "
                                                                     "battery's interlocks")] = None,
-    a: Annotated[float | None, typer.Option("--a", help="Steinhart-Hart A")] = None,
-    b: Annotated[float | None, typer.Option("--b", help="Steinhart-Hart B")] = None,
-    c: Annotated[float | None, typer.Option("--c", help="Steinhart-Hart C")] = None,
+    a: Annotated[str | None, typer.Option("--a", metavar="NUMBER",
+                                          help="Steinhart-Hart A, e.g. 1.009e-3")] = None,
+    b: Annotated[str | None, typer.Option("--b", metavar="NUMBER",
+                                          help="Steinhart-Hart B")] = None,
+    c: Annotated[str | None, typer.Option("--c", metavar="NUMBER",
+                                          help="Steinhart-Hart C")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="print JSON")] = False,
     profiles: ProfilePaths = None,
 ) -> None:
@@ -362,18 +373,22 @@ def thermistor(
     with _errors():
         from chargeplan.errors import InputError
         from chargeplan.firmware.thermistor import FULL_SCALE_NOTE, Divider, thermistor_table
-        from chargeplan.units import option_quantity
+        from chargeplan.units import option_number, option_quantity
 
-        given = [v is not None for v in (a, b, c)]
+        coefficients = tuple(option_number(text, name)
+                             for text, name in ((a, "--a"), (b, "--b"), (c, "--c")))
+        given = [v is not None for v in coefficients]
         if any(given) and not all(given):
             raise InputError("Steinhart-Hart needs all three", field="--a",
                              fix="give --a, --b and --c, or none of them")
+        beta_k = option_number(beta, "--beta") or 0.0
+        bits = int(option_number(adc_bits, "--adc-bits", integer=True) or 0)
         divider = Divider(
             r25_ohm=option_quantity(r25, "resistance", "--r25") or 0.0,
-            beta_k=beta,
+            beta_k=beta_k,
             bias_ohm=option_quantity(bias, "resistance", "--bias") or 0.0,
-            adc_bits=adc_bits,
-            steinhart_hart=(a, b, c) if all(given) else None,  # type: ignore[arg-type]
+            adc_bits=bits,
+            steinhart_hart=coefficients if all(given) else None,  # type: ignore[arg-type]
         )
         plan = None
         if battery is not None:
@@ -480,11 +495,15 @@ def bench(
 
 @app.command()
 def ventilation(
-    cells: Annotated[int, typer.Option("--cells", help="cells in series per battery")],
+    cells: Annotated[str, typer.Option("--cells", metavar="INTEGER",
+                                       help="cells in series per battery")],
     capacity: Annotated[str, typer.Option("--capacity", help="rated capacity, e.g. 100Ah")],
-    battery_type: Annotated[str, typer.Option("--type", help="vented or vrla")] = "vented",
-    mode: Annotated[str, typer.Option("--mode", help="float or boost")] = "boost",
-    batteries: Annotated[int, typer.Option("--batteries", help="how many")] = 1,
+    battery_type: Annotated[str, typer.Option("--type", metavar=_choices(("vented", "vrla")),
+                                              help="vented or vrla")] = "vented",
+    mode: Annotated[str, typer.Option("--mode", metavar=_choices(("float", "boost")),
+                                      help="float or boost")] = "boost",
+    batteries: Annotated[str, typer.Option("--batteries", metavar="INTEGER",
+                                           help="how many")] = "1",
     room_airflow: Annotated[str | None, typer.Option("--room-airflow",
                                                      help="room airflow, e.g. 50m3/h")] = None,
     room_opening: Annotated[str | None, typer.Option("--room-opening",
@@ -494,10 +513,12 @@ def ventilation(
     """Airflow and opening area a charging room needs (IEC 62485-2 cl. 7), and a room check."""
     with _errors():
         from chargeplan.planners.ventilation import available_airflow, requirement
-        from chargeplan.units import option_quantity
+        from chargeplan.units import option_number, option_quantity
 
-        need = requirement(cells, option_quantity(capacity, "capacity", "--capacity") or 0.0,
-                           battery_type, mode, batteries)
+        need = requirement(int(option_number(cells, "--cells", integer=True) or 0),
+                           option_quantity(capacity, "capacity", "--capacity") or 0.0,
+                           battery_type, mode,
+                           int(option_number(batteries, "--batteries", integer=True) or 0))
         room = None
         if room_airflow is not None or room_opening is not None:
             room = available_airflow(option_quantity(room_airflow, "airflow", "--room-airflow"),
@@ -598,6 +619,26 @@ def schema(
         if not all(results.values()):
             typer.echo("regenerate with: chargeplan schema --out schemas --force", err=True)
             raise typer.Exit(1)
+
+
+def _version(value: bool) -> None:
+    if value:
+        from importlib.metadata import PackageNotFoundError, version
+
+        try:
+            typer.echo(f"chargeplan {version('chargeplan')}")
+        except PackageNotFoundError:  # a source tree that was never installed
+            typer.echo("chargeplan (not installed: no package metadata)")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _main(
+    show_version: Annotated[bool, typer.Option(
+        "--version", callback=_version, is_eager=True,
+        help="print chargeplan's version and exit")] = False,
+) -> None:
+    """Plan battery charging (lead-acid and lithium) and write charger setpoint files."""
 
 
 def main() -> None:

@@ -1,7 +1,8 @@
 """The one exceptions module.
 
 Every error the library raises on purpose derives from :class:`ChargeplanError`;
-the command line maps each branch to an exit code (DESIGN.md, "Contracts")::
+the command line maps each branch to an exit code (DEVELOPERS.md, "Errors and exit
+codes")::
 
     ChargeplanError
     ├── InputError            exit 2  bad input: the file, the field and the fix

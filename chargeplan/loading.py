@@ -166,12 +166,15 @@ def _parse_yaml(text: str, shown: str) -> Any:
 
 
 def _location(loc: tuple[int | str, ...]) -> str:
+    """The field's dotted path; a key longer than a message quotes is cut short."""
+    from chargeplan.units import quote
+
     text = ""
     for part in loc:
         if isinstance(part, int):
             text += f"[{part}]"
         else:
-            text += f".{part}" if text else str(part)
+            text += f".{quote(part)}" if text else quote(part)
     return text
 
 
@@ -208,11 +211,16 @@ def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) ->
     kind = first["type"]
     message = str(first["msg"]).removeprefix("Value error, ").removeprefix("Assertion failed, ")
     fix: str | None
-    if kind == "missing":
+    from chargeplan.units import QUOTE_MAX, QuantityError
+
+    cause = first.get("ctx", {}).get("error")
+    if isinstance(cause, QuantityError):  # the reader's own problem and fix
+        message, fix = cause.problem, cause.fix
+    elif kind == "missing":
         message, fix = "is missing", f"add {field}" + _example_hint(field)
     elif kind == "extra_forbidden":
         known = _known_keys(model, loc)
-        close = difflib.get_close_matches(str(loc[-1]), known, n=1)
+        close = difflib.get_close_matches(str(loc[-1])[:QUOTE_MAX], known, n=1)
         message = "is not a known field"
         fix = f"did you mean '{close[0]}'?" if close else "remove it or check its spelling"
         if known and not close:
@@ -255,12 +263,12 @@ _BOUND_WORDS = {
 }
 
 _EXAMPLES = {
-    "capacity": "capacity: 9 Ah",
+    "capacity": "capacity: 24 Ah",
     "chemistry": "chemistry: agm",
     "name": "name: Mower battery, bay 3",
     "battery_temperature": "battery_temperature: 20 degC",
     "conditions": "conditions: {battery_temperature: 20 degC}",
-    "battery": "battery: {name: ..., chemistry: agm, nominal_voltage: 12 V, capacity: 9 Ah}",
+    "battery": "battery: {name: ..., chemistry: agm, nominal_voltage: 12 V, capacity: 24 Ah}",
     "duration": "duration: 120 d",
     "max_voltage": "max_voltage: 16 V",
     "max_current": "max_current: 4 A",

@@ -1,4 +1,4 @@
-"""The independent safety check of every finished plan (DESIGN.md: **must**).
+"""The independent safety check of every finished plan (DEVELOPERS.md, "Layering").
 
 It shares no code path with the rules that made the plan: it reads the built-in
 hard envelope as plain numbers, its own table of published ceilings

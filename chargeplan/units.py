@@ -31,10 +31,15 @@ except ImportError:  # pragma: no cover - depends on the installed pint
 __all__ = [
     "DAY_S",
     "DIMENSIONS",
+    "QUOTE_MAX",
     "Q_",
+    "QuantityError",
     "describe_dimension",
+    "option_number",
     "option_quantity",
+    "parse_number",
     "parse_quantity",
+    "quote",
     "ureg",
 ]
 
@@ -79,19 +84,21 @@ ureg = _registry()
 Q_ = ureg.Quantity
 
 # Each named dimension: the unit we convert to, an example a user can copy, its name.
+# The examples come from the bundled scenarios: the small-engine workshop's ride-on mower
+# (24 Ah) and its bench's mains budget (800 W), the lakeside boat store.
 DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "voltage": ("V", "12.6 V", "a voltage"),
     "cell_voltage": ("V/cell", "2.40 V/cell", "a voltage per cell"),
     "current": ("A", "2.5 A", "a current"),
     "c_rate": ("It", "0.1 It", "a C-rate"),
-    "capacity": ("Ah", "9 Ah", "a capacity"),
+    "capacity": ("Ah", "24 Ah", "a capacity"),
     "energy": ("Wh", "120 Wh", "an energy"),
     "temperature": ("degC", "25 degC", "a temperature"),
     "temperature_difference": ("K", "5 K", "a temperature difference"),
     "duration": ("s", "8 h", "a duration"),
     "fraction": ("percent", "60 %", "a percentage"),
     "coefficient": ("mV/K/cell", "-3 mV/K/cell", "a temperature coefficient per cell"),
-    "power": ("W", "100 W", "a power"),
+    "power": ("W", "800 W", "a power"),
     "resistance": ("ohm", "10 mohm", "a resistance"),
     "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
     "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),
@@ -106,17 +113,60 @@ _POWERS_WRITTEN_PLAIN = frozenset({"airflow", "area", "volume"})
 
 _DEGREES_C = re.compile(r"(?<![A-Za-z_])(degC|celsius|degree_Celsius)(?![A-Za-z_])")
 _DEGREES_F = re.compile(r"(?<![A-Za-z_])(degF|degree_Fahrenheit)(?![A-Za-z_])")
-_NUMBER_ONLY = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*$")
+
+#: How much of the user's text a message quotes (longer text ends in an ellipsis).
+QUOTE_MAX = 80
+
+# The one grammar (ASCII only): one number in plain or scientific notation, then one unit
+# made of names joined by '/' or '*', each name with an optional '**n' or '^n' power.
+_NUMBER = r"[-+]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][-+]?[0-9]+)?"
+_TERM = r"[A-Za-z_%\u00b0\u03a9]+(?:(?:\*\*|\^)-?[0-9]+)?"
+_QUANTITY = re.compile(
+    rf"[ \t]*({_NUMBER})[ \t]*({_TERM}(?:[ \t]*[/*][ \t]*{_TERM})*)[ \t]*", re.ASCII
+)
+_NUMBER_ONLY = re.compile(rf"[ \t]*({_NUMBER})[ \t]*", re.ASCII)
+_NOT_FINITE = re.compile(r"[-+]?\.?(?:nan|inf(?:inity)?)\b", re.IGNORECASE)
+_SPACE = re.compile(r"[ \t]+")
+
+# Characters with a meaning, and the ASCII they stand for. Each is named by a standard:
+# U+2212 is the minus sign (Unicode Standard, ch. 6, from memory); U+00B5 MICRO SIGN and
+# U+03BC GREEK SMALL LETTER MU both write the SI prefix micro; U+2103 and U+2109 are the
+# degree Celsius and Fahrenheit signs; U+212A KELVIN SIGN and U+2126 OHM SIGN are canonically
+# the letters K and Omega (Unicode NFC).
+_MEANINGFUL = str.maketrans({
+    "\u2212": "-", "\u00b5": "u", "\u03bc": "u", "\u2103": "degC", "\u2109": "degF",
+    "\u212a": "K", "\u2126": "\u03a9",
+})
+#: Characters that look like a minus sign and are not one (Unicode category Pd, the dashes,
+#: and minus lookalikes from other blocks).
+_FALSE_MINUS = frozenset("\u058a\u05be\u1400\u1806\u2010\u2011\u2012\u2013\u2014\u2015\u2043"
+                         "\u207b\u208b\u2796\u2e17\u2e1a\u2e3a\u2e3b\u2e40\u301c\u3030\u30a0"
+                         "\ufe31\ufe32\ufe58\ufe63\uff0d\u02d7\u00ad")
+
+
+class QuantityError(ValueError):
+    """A quantity that cannot be read: ``problem`` says what is wrong, ``fix`` what to
+    write. ``about_text`` is true when the characters themselves are wrong (reading the text
+    as another kind of quantity would not help)."""
+
+    def __init__(self, problem: str, fix: str, *, about_text: bool = False) -> None:
+        self.problem, self.fix, self.about_text = problem, fix, about_text
+        super().__init__(f"{problem}; {fix}")
+
+
+def quote(text: object, limit: int = QUOTE_MAX) -> str:
+    """The user's text as a message shows it: at most ``limit`` characters, with '…'.
+
+    >>> quote("x" * 200)[-3:], len(quote("x" * 200))
+    ('xx…', 80)
+    """
+    shown = str(text)
+    return shown if len(shown) <= limit else shown[: limit - 1] + "…"
 
 
 @cache
 def _reference(kind: str) -> Any:
     return Q_(1, DIMENSIONS[kind][0]).dimensionality
-
-
-_SIMPLE = re.compile(
-    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z°%][A-Za-z_°%/*]*)\s*$"
-)
 
 
 @lru_cache(maxsize=256)
@@ -141,78 +191,267 @@ def describe_dimension(kind: str) -> str:
     return f"{label} such as '{example}'"
 
 
-def parse_quantity(text: object, kind: str) -> float:
-    """Parse ``text`` as a quantity of ``kind`` and return its magnitude in the
-    kind's canonical unit (see :data:`DIMENSIONS`).
+def _char_name(ch: str) -> str:
+    import unicodedata
 
-    Raises ``ValueError`` with a message that says what to write instead.
+    return f"U+{ord(ch):04X} {unicodedata.name(ch, 'unnamed character')}"
 
-    Examples
-    --------
-    >>> parse_quantity("12.6 V", "voltage")
-    12.6
-    >>> parse_quantity("5 degC", "temperature")
-    5.0
-    >>> parse_quantity("2 d", "duration")
-    172800.0
+
+def _text_problem(shown: str, *, digits_ok: str = "") -> QuantityError | None:
+    """The first character in ``shown`` that no quantity may hold, as an error; else None.
+
+    Checked by class, before any normalising, so that no character can change a value:
+    control and invisible characters, dashes that are not the minus sign, digits that are
+    not ASCII digits, letters that only look like Latin ones.
     """
-    unit, _example, label = DIMENSIONS[kind]
-    wanted = describe_dimension(kind)
-    if isinstance(text, bool) or text is None:
-        raise ValueError(f"expected {wanted}")
-    if isinstance(text, int | float):
-        raise ValueError(f"{text} has no unit; write {wanted}")
-    if not isinstance(text, str):
-        raise ValueError(f"expected {wanted}, got {type(text).__name__}")
-    shown = raw = text.strip()  # messages quote ``shown``, the text as the user wrote it
-    if not raw:
-        raise ValueError(f"empty; write {wanted}")
+    import unicodedata
+
+    for index, ch in enumerate(shown):
+        if ch.isascii():
+            if (ch < " " and ch != "\t") or ch == "\x7f":
+                return QuantityError(f"'{quote(shown)}' holds a control character "
+                                     f"({_char_name(ch)})", "retype the value",
+                                     about_text=True)
+            continue
+        if ch in _FALSE_MINUS:
+            fixed = "".join("-" if c in _FALSE_MINUS else c for c in shown)
+            return QuantityError(f"'{quote(shown)}' uses {_char_name(ch)}, which is not a "
+                                 "minus sign", f"write {quote(fixed)}", about_text=True)
+        category = unicodedata.category(ch)
+        if category in ("Cf", "Cc", "Cs", "Co", "Cn", "Zl", "Zp"):
+            return QuantityError(f"'{quote(shown)}' holds an invisible character "
+                                 f"({_char_name(ch)}) at position {index + 1}",
+                                 "retype the value without it", about_text=True)
+        if ch in digits_ok or ch in "\u2212\u00b5\u03bc\u2103\u2109\u212a\u2126\u00b0\u03a9":
+            continue
+        if unicodedata.digit(ch, None) is not None or unicodedata.numeric(ch, None) is not None:
+            return QuantityError(f"'{quote(shown)}' has {_char_name(ch)}, which is not one "
+                                 "of the digits 0-9", "write the number with the digits 0-9",
+                                 about_text=True)
+        if category == "Zs":
+            continue  # a space: fine between the number and its unit, refused inside either
+        return QuantityError(f"'{quote(shown)}' has {_char_name(ch)}, which is not a Latin "
+                             "letter, digit or unit sign", "write the unit in plain letters, "
+                             "e.g. 'V', 'degC', 'uA'", about_text=True)
+    return None
+
+
+def _number_problem(text: str, shown: str, example: str, wanted: str) -> QuantityError:
+    """Why ``text`` (ASCII, normalised) is not one number and a unit: the likeliest reason."""
+    numbers = re.findall(r"[0-9][0-9,.'_]*[0-9]|[0-9]", text)
+    comma = next((n for n in numbers if "," in n), None)
+    if comma is not None and re.fullmatch(r"[0-9]+,[0-9]+", comma):
+        dotted, plain = comma.replace(",", "."), comma.replace(",", "")
+        if re.fullmatch(r"[0-9]{1,3},[0-9]{3}", comma):  # a decimal comma or a separator
+            return QuantityError(f"'{quote(shown)}' has a comma in its number (a decimal "
+                                 "comma or a thousands separator)",
+                                 f"write {dotted} or {plain}, not {comma}", about_text=True)
+        return QuantityError(f"'{quote(shown)}' has a decimal comma",
+                             f"write {dotted}, not {comma}", about_text=True)
+    grouped = next((n for n in numbers if re.search(r"[0-9][_',][0-9]", n)
+                    or n.count(".") > 1), None)
+    if grouped is not None:
+        return QuantityError(f"'{quote(shown)}' groups digits (thousands separators)",
+                             f"write {_ungrouped(grouped)}: one decimal point at most, no "
+                             "separators", about_text=True)
+    if re.search(r"[0-9.][ \t]+[-+.]?[0-9]", text) or len(re.findall(
+            r"(?<![A-Za-z*^0-9.])[-+]?\.?[0-9]", text)) > 1:
+        return QuantityError(f"'{quote(shown)}' has two numbers, or a space inside a number",
+                             f"write one number and its unit, e.g. '{example}'",
+                             about_text=True)
+    return QuantityError(f"cannot read '{quote(shown)}' as a quantity", f"write {wanted}",
+                         about_text=True)
+
+
+def _ungrouped(number: str) -> str:
+    """'3_950' -> '3950'; '1.500,5' -> '1500.5' (the last of two kinds of mark as the
+    decimal marker: a suggestion in a message, never a value read)."""
+    marks = [m for m in ".," if m in number]
+    if len(marks) == 2:
+        decimal = max(marks, key=number.rfind)
+        whole, _, fraction = number.rpartition(decimal)
+        return re.sub(r"[_.,']", "", whole) + "." + fraction
+    return re.sub(r"[_.,']", "", number)
+
+
+def _normalise(shown: str, kind: str) -> str:
+    """The text in the grammar's ASCII: meaningful signs rewritten, spaces made plain."""
+    raw = shown
+    if not raw.isascii():
+        raw = raw.translate(_MEANINGFUL)
+        raw = "".join(" " if not c.isascii() and c.isspace() else c for c in raw)
     # pint reads "°" as the word "degree", so "°C" would become the undefined "degreeC"
     raw = raw.replace("°C", "degC").replace("°F", "degF")
     if kind == "temperature_difference":
         # a difference written in degrees is that many kelvin (or 5/9 K per °F), not a
         # temperature: "+8 °C" warmer is 8 K, never 281.15 K
-        raw = _DEGREES_C.sub("delta_degC", raw)
-        raw = _DEGREES_F.sub("delta_degF", raw)
-    if kind in _POWERS_WRITTEN_PLAIN:
-        raw = re.sub(r"(?<=[a-z])([23])(?![0-9])", r"**\1", raw.replace("³", "3").replace("²", "2"))
-    if _NUMBER_ONLY.match(raw):
-        raise ValueError(f"'{shown}' has no unit; write {wanted}")
-    simple = _SIMPLE.match(raw)
-    if simple:  # "<number> <unit>": convert with the unit's cached affine map
-        number, unit_text = float(simple.group(1)), simple.group(2)
-        convert = _conversion(unit_text, kind)
-        if convert is not None:
-            scale, shift = convert
-            magnitude = number * scale + shift
-            if not math.isfinite(magnitude):
-                raise ValueError(f"'{shown}' is not a finite number; write {wanted}")
-            return magnitude
+        raw = _DEGREES_F.sub("delta_degF", _DEGREES_C.sub("delta_degC", raw))
+    if kind in _POWERS_WRITTEN_PLAIN:  # "m3", "cm²": a power written after the unit's letters
+        raw = re.sub(r"(?<=[A-Za-z])([23²³])(?![0-9])",
+                     lambda m: "**" + m.group(1).translate(_SUPERSCRIPTS), raw)
+    return raw
+
+
+_SUPERSCRIPTS = str.maketrans("²³", "23")
+
+
+def _unit_problem(number: float, unit_text: str, shown: str, kind: str) -> QuantityError:
+    """Why ``unit_text`` is not a unit of ``kind``: unknown, or another dimension."""
+    _unit, _example, label = DIMENSIONS[kind]
+    wanted = describe_dimension(kind)
     try:
-        quantity = Q_(raw)
+        quantity = Q_(number, unit_text)
+        dimensionality = quantity.dimensionality
     except pint.UndefinedUnitError as error:
         name = str(getattr(error, "unit_names", "") or error).strip("'()[], ")
         hint = ""
         if name == "C":
-            hint = (" (write degrees Celsius as 'degC')" if kind.startswith("temperature")
-                    else " (write a C-rate as '0.1 It')")
-        raise ValueError(f"unknown unit '{name}' in '{shown}'{hint}; write {wanted}") from None
+            hint = _C_HINTS.get(kind, " (chargeplan reads no unit 'C': degrees Celsius are "
+                                      "'degC', a C-rate is 'It', a capacity 'Ah')")
+        return QuantityError(f"unknown unit '{quote(name)}' in '{quote(shown)}'{hint}",
+                             f"write {wanted}")
     except Exception:
-        raise ValueError(f"cannot read '{shown}' as a quantity; write {wanted}") from None
-    if not isinstance(quantity, pint.Quantity):
-        raise ValueError(f"'{shown}' has no unit; write {wanted}")
-    if quantity.dimensionality != _reference(kind):
-        raise ValueError(
-            f"'{shown}' is not {label} "
-            f"(its unit is {quantity.units:~}); write {wanted}"
-        )
-    try:
-        magnitude = float(quantity.to(unit).magnitude)
-    except Exception:
-        raise ValueError(f"cannot convert '{shown}' to {unit}; write {wanted}") from None
+        return QuantityError(f"cannot read the unit of '{quote(shown)}'", f"write {wanted}")
+    if dimensionality != _reference(kind):
+        return QuantityError(f"'{quote(shown)}' is not {label} (its unit is "
+                             f"{quote(f'{quantity.units:~}')})", f"write {wanted}")
+    return QuantityError(f"cannot convert '{quote(shown)}' to {DIMENSIONS[kind][0]}",
+                         f"write {wanted}")
+
+
+_C_HINTS = {
+    "temperature": " (write degrees Celsius as 'degC')",
+    "temperature_difference": " (write degrees Celsius as 'degC', or kelvin as 'K')",
+    "current": " (write a C-rate as '0.1 It')",
+    "c_rate": " (write a C-rate as '0.1 It')",
+    "capacity": " (C would be coulombs, which chargeplan does not read; a capacity is in "
+                "ampere-hours, 3600 C = 1 Ah)",
+}
+
+
+def parse_quantity(text: object, kind: str) -> float:
+    """Parse ``text`` as a quantity of ``kind`` and return its magnitude in the
+    kind's canonical unit (see :data:`DIMENSIONS`).
+
+    Exactly one number in plain or scientific notation (ASCII digits, one optional sign,
+    one decimal point, an optional exponent), then its unit. The minus sign U+2212, micro
+    written µ or μ and the signs ℃ and ℉ are read as what they mean; every other character
+    that could change a value (other dashes, commas, spaces or invisible characters inside
+    a number, digits that are not 0-9) is refused: raises :class:`QuantityError`, a
+    ``ValueError`` whose message says what to write instead.
+
+    Examples
+    --------
+    >>> parse_quantity("12.6 V", "voltage")
+    12.6
+    >>> parse_quantity("\u22125 degC", "temperature")
+    -5.0
+    >>> parse_quantity("2 d", "duration")
+    172800.0
+    >>> parse_quantity("1,5 Ah", "capacity")
+    Traceback (most recent call last):
+    ...
+    chargeplan.units.QuantityError: '1,5 Ah' has a decimal comma; write 1.5, not 1,5
+    """
+    if isinstance(text, str):
+        match = _QUANTITY.fullmatch(text) if text.isascii() else None
+        if match is not None and kind not in _REWRITTEN:  # the fast path: plain ASCII
+            convert = _conversion(match.group(2).replace(" ", "").replace("\t", ""), kind)
+            if convert is not None:
+                magnitude = float(match.group(1)) * convert[0] + convert[1]
+                if math.isfinite(magnitude):
+                    return magnitude
+    return _parse_slowly(text, kind)
+
+
+#: Kinds whose unit text is rewritten before reading (degrees as differences, plain powers).
+_REWRITTEN = frozenset({"temperature_difference", *_POWERS_WRITTEN_PLAIN})
+
+
+def _parse_slowly(text: object, kind: str) -> float:
+    wanted = describe_dimension(kind)
+    if isinstance(text, bool) or text is None:
+        raise QuantityError(f"expected {wanted}", f"write {wanted}")
+    if isinstance(text, int | float):
+        raise QuantityError(f"{quote(text)} has no unit", f"write {wanted}")
+    if not isinstance(text, str):
+        raise QuantityError(f"expected {wanted}, got {type(text).__name__}", f"write {wanted}")
+    shown = text.strip()  # messages quote ``shown``, the text as the user wrote it
+    if not shown:
+        raise QuantityError("empty", f"write {wanted}")
+    problem = _text_problem(shown, digits_ok="²³" if kind in _POWERS_WRITTEN_PLAIN else "")
+    if problem is not None:
+        raise problem
+    raw = _normalise(shown, kind)
+    if _NOT_FINITE.match(raw.strip()):
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", f"write {wanted}")
+    if _NUMBER_ONLY.fullmatch(raw):
+        raise QuantityError(f"'{quote(shown)}' has no unit", f"write {wanted}")
+    match = _QUANTITY.fullmatch(raw)
+    if match is None:
+        raise _number_problem(raw, shown, DIMENSIONS[kind][1], wanted)
+    number = float(match.group(1))
+    unit_text = _SPACE.sub("", match.group(2))
+    convert = _conversion(unit_text, kind)
+    if convert is None:
+        raise _unit_problem(number, unit_text, shown, kind)
+    magnitude = number * convert[0] + convert[1]
     if not math.isfinite(magnitude):
-        raise ValueError(f"'{shown}' is not a finite number; write {wanted}")
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", f"write {wanted}")
     return magnitude
+
+
+def parse_number(text: str, *, integer: bool = False) -> float:
+    """A plain number (no unit) read as strictly as a quantity's: ASCII digits, one sign,
+    one decimal point, an optional exponent (the minus sign U+2212 counts as a minus).
+
+    ``nan``, ``inf``, ``3_950``, ``1,5`` and the rest raise :class:`QuantityError`.
+    With ``integer``, only a whole number written without a point or exponent is read.
+
+    >>> parse_number("1.009e-3")
+    0.001009
+    >>> parse_number("−4")
+    -4.0
+    """
+    shown = text.strip()
+    example = "12" if integer else "3950"
+    wanted = f"write {'a whole number' if integer else 'a number'} such as {example}"
+    if not shown:
+        raise QuantityError("empty", wanted)
+    problem = _text_problem(shown)
+    if problem is not None:
+        raise problem
+    raw = shown.translate(_MEANINGFUL)
+    if _NOT_FINITE.fullmatch(raw):
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", wanted)
+    if not _NUMBER_ONLY.fullmatch(raw):
+        if re.fullmatch(r"[ \t]*[-+]?[0-9.eE]+[ \t]*[A-Za-z%].*", raw):
+            raise QuantityError(f"'{quote(shown)}' has a unit", f"write the number alone, "
+                                f"e.g. {example}")
+        raise _number_problem(raw, shown, example, f"a number such as {example}")
+    if integer and not re.fullmatch(r"[ \t]*[-+]?[0-9]+[ \t]*", raw, re.ASCII):
+        raise QuantityError(f"'{quote(shown)}' is not a whole number", wanted)
+    value = int(raw) if integer else float(raw)
+    if not math.isfinite(value):
+        raise QuantityError(f"'{quote(shown)}' is not a finite number", wanted)
+    return value
+
+
+def option_number(text: str | None, option: str, *, integer: bool = False) -> float | None:
+    """A command-line option's plain number (:func:`parse_number`), or None when not given;
+    a bad one is an InputError naming the option.
+
+    >>> option_number("12", "--adc-bits", integer=True)
+    12
+    """
+    if text is None:
+        return None
+    from chargeplan.errors import InputError
+
+    try:
+        return parse_number(text, integer=integer)
+    except QuantityError as error:
+        raise InputError(error.problem, field=option, fix=error.fix) from None
 
 
 def option_quantity(text: str | None, kind: str, option: str) -> float | None:
@@ -223,6 +462,5 @@ def option_quantity(text: str | None, kind: str, option: str) -> float | None:
 
     try:
         return parse_quantity(text, kind)
-    except ValueError as error:
-        problem, _, fix = str(error).partition("; ")
-        raise InputError(problem, field=option, fix=fix or None) from None
+    except QuantityError as error:
+        raise InputError(error.problem, field=option, fix=error.fix) from None

@@ -181,9 +181,9 @@ def test_duplicate_battery_ids_are_refused(tmp_path):
     path = tmp_path / "bench.yaml"
     path.write_text("room: {airflow: 5 m3/h}\nchannels: [{name: A, max_voltage: 16 V, "
                     "max_current: 4 A}]\nbatteries:\n"
-                    "  - {id: x, chemistry: agm, nominal_voltage: 12 V, capacity: 9 Ah, "
+                    "  - {id: x, chemistry: agm, nominal_voltage: 12 V, capacity: 24 Ah, "
                     "state_of_charge: 50 %, temperature: 20 degC}\n"
-                    "  - {id: x, chemistry: flooded, nominal_voltage: 12 V, capacity: 9 Ah, "
+                    "  - {id: x, chemistry: flooded, nominal_voltage: 12 V, capacity: 24 Ah, "
                     "state_of_charge: 50 %, temperature: 20 degC}\n")
     result = runner.invoke(app, ["bench", str(path)])
     assert result.exit_code == 2 and "share an id" in result.stderr

@@ -82,14 +82,14 @@ def test_refusal_exits_1(write_yaml):
 @pytest.mark.parametrize(
     ("change", "fragments"),
     [
-        ({"battery": {"capacity": "9 V"}}, ["battery.capacity", "is not a capacity", "9 Ah"]),
+        ({"battery": {"capacity": "24 V"}}, ["battery.capacity", "is not a capacity", "24 Ah"]),
         ({"battery": {"capacity": "9"}}, ["battery.capacity", "has no unit"]),
         ({"battery": {"chemistry": "nicad"}}, ["battery.chemistry", "unknown chemistry",
                                               "flooded, agm"]),
         ({"battery": {"capacity": "nan Ah"}}, ["battery.capacity", "finite"]),
         ({"battery": {"capacity": "-5 Ah"}}, ["battery.capacity", "below"]),
         ({"battery": {"cells_in_series": 4}}, ["battery.cells_in_series", "8 V nominal"]),
-        ({"battery": {"capacty": "9 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
+        ({"battery": {"capacty": "24 Ah"}}, ["battery.capacty", "did you mean 'capacity'"]),
         ({"battery": {"overrides": {"max_charge_current": "0.2 C"}}},
          ["max_charge_current", "0.1 It"]),
         ({"conditions": {"battery_temperature": "20 C"}}, ["battery_temperature", "degC"]),
@@ -294,16 +294,18 @@ def test_state_bad_input_exits_2(args, fragment):
     _one_line_error(result, fragment)
 
 
-def test_runtime_with_a_lamp(write_yaml):
-    path = write_yaml(battery(battery={"chemistry": "flooded", "capacity": "9 Ah",
+def test_runtime_with_the_launch_cabin_lights(write_yaml):
+    # the ride-on mower's 24 Ah flooded battery (the workshop demo) under 60 W of cabin
+    # lights: P = U I, 60 W / 12 V nominal = 5.00 A
+    path = write_yaml(battery(battery={"chemistry": "flooded", "capacity": "24 Ah",
                                        "capacity_hours": 20},
                               state={"state_of_charge": "100 %"}))
-    result = run("runtime", str(path), "--load", "100W")
+    result = run("runtime", str(path), "--load", "60W")
     assert result.exit_code == 0
-    assert "8.33 A" in result.stdout and "Peukert" in result.stdout
+    assert "5.00 A" in result.stdout and "Peukert" in result.stdout
     bad = run("runtime", str(path), "--load", "12 V")
     assert bad.exit_code == 2
-    _one_line_error(bad, "--load", "100 W")
+    _one_line_error(bad, "--load", "60 W")
 
 
 @pytest.mark.parametrize(

@@ -21,7 +21,8 @@ __all__ = ["RULES", "Phase", "Rule", "RuleSet", "rule"]
 
 
 class Phase(IntEnum):
-    """The order rules run in (DESIGN.md): derive → set → compensate → fit → exclude → interlock."""
+    """The order rules run in (DEVELOPERS.md, "Adding a rule"): derive → set → compensate → fit →
+    exclude → interlock."""
 
     DERIVE = 1
     SET = 2

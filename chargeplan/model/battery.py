@@ -17,6 +17,7 @@ from chargeplan.model.fields import (
     CurrentOrRate,
     InputModel,
     Text,
+    number,
     quantity,
 )
 
@@ -104,19 +105,15 @@ class State(InputModel):
     state_of_charge_pct: quantity("fraction", ge=0, le=100) | None = Field(
         default=None, alias="state_of_charge"
     )
-    specific_gravity: float | None = Field(
-        default=None,
-        ge=1.000,
-        le=1.350,
+    specific_gravity: number(
+        ge=1.000, le=1.350,
         description="hydrometer reading of the lowest cell, as read (flooded only); corrected "
         "for the battery temperature by the planner",
-    )
-    specific_gravity_spread: float | None = Field(
-        default=None,
-        ge=0,
-        le=0.300,
+    ) | None = None
+    specific_gravity_spread: number(
+        ge=0, le=0.300,
         description="highest minus lowest cell specific gravity (flooded only)",
-    )
+    ) | None = None
     since_last_charge_s: quantity("duration", ge=0, le=20 * 365 * 86_400) | None = Field(
         default=None, alias="since_last_charge", description="how long since its last full charge"
     )

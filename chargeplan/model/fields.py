@@ -17,7 +17,14 @@ from pydantic import BaseModel as _BaseModel
 from pydantic import ConfigDict
 from pydantic_core import core_schema
 
-from chargeplan.units import DIMENSIONS, describe_dimension, parse_quantity
+from chargeplan.units import (
+    DIMENSIONS,
+    QuantityError,
+    describe_dimension,
+    parse_number,
+    parse_quantity,
+    quote,
+)
 
 __all__ = [
     "CellOrPackVoltage",
@@ -27,10 +34,12 @@ __all__ = [
     "Parsed",
     "Text",
     "VoltageSpec",
+    "number",
     "quantity",
 ]
 
-_NUMBER_WITH_UNIT = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*\S.*$"
+# one number (ASCII digits; the minus sign U+2212 too), then a unit (chargeplan.units)
+_NUMBER_WITH_UNIT = r"^\s*[-+\u2212]?([0-9]+(\.[0-9]*)?|\.[0-9]+)([eE][-+]?[0-9]+)?\s*[^\s0-9.,].*$"
 
 
 class InputModel(_BaseModel):
@@ -92,7 +101,7 @@ def _reader(kind: str, low: float | None, high: float | None) -> Callable[[objec
     def read(raw: object) -> float:
         value = parse_quantity(raw, kind)
         if not math.isfinite(value):  # parse_quantity refuses these too; a NaN passes < and >
-            raise ValueError(f"'{raw}' is not a finite number")
+            raise ValueError(f"'{quote(raw)}' is not a finite number")
         if low is not None and value < low:
             raise ValueError(f"{_shown(value, unit)} is below the least sensible "
                              f"{_shown(low, unit)}")
@@ -116,6 +125,49 @@ def quantity(
     ``ge``/``le`` bound the value in the kind's canonical unit.
     """
     return Annotated[float, Parsed(_reader(kind, ge, le), _schema(kind, description))]
+
+
+def _number_reader(whole: bool, low: float | None, high: float | None) -> Callable[[object], float]:
+    """A plain number: a YAML or JSON number, or text read by the one reader (a CSV cell)."""
+
+    def read(raw: object) -> float:
+        if isinstance(raw, bool):
+            raise QuantityError(f"{raw} is not a number", "write a number such as 6")
+        if isinstance(raw, int | float) and not isinstance(raw, bool):
+            value = raw
+            if whole and not float(raw).is_integer():
+                raise QuantityError(f"{raw:g} is not a whole number",
+                                    "write a whole number such as 6")
+            if not math.isfinite(value):
+                raise QuantityError(f"{raw} is not a finite number", "write a finite number")
+        elif isinstance(raw, str):
+            value = parse_number(raw, integer=whole)
+        else:
+            raise QuantityError(f"expected a number, got {type(raw).__name__}",
+                                "write a number such as 6")
+        if low is not None and value < low:
+            raise QuantityError(f"{value:g} is below the least sensible {low:g}",
+                                f"use a value of at least {low:g}")
+        if high is not None and value > high:
+            raise QuantityError(f"{value:g} is above the largest sensible {high:g}",
+                                f"use a value of at most {high:g}")
+        return int(value) if whole else float(value)
+
+    return read
+
+
+def number(*, ge: float | None = None, le: float | None = None, whole: bool = False,
+           description: str | None = None) -> Any:
+    """An annotated plain number (no unit): a YAML or JSON number, or text as strict as a
+    quantity's (a CSV cell): no '3_950', '1,5', 'nan' or lookalike digits."""
+    schema: dict[str, Any] = {"type": "integer" if whole else "number"}
+    if ge is not None:
+        schema["minimum"] = ge
+    if le is not None:
+        schema["maximum"] = le
+    if description:
+        schema["description"] = description
+    return Annotated[int if whole else float, Parsed(_number_reader(whole, ge, le), schema)]
 
 
 TEXT_MAX = 200
@@ -160,24 +212,25 @@ def _current_or_rate(raw: object) -> CurrentSpec:
     try:
         value = parse_quantity(raw, "current")
         result = CurrentSpec(amperes=value)
-    except ValueError as as_current:
+    except QuantityError as as_current:
+        if as_current.about_text:  # the characters are wrong: a C-rate would not read either
+            raise
         try:
             result = CurrentSpec(c_rate=parse_quantity(raw, "c_rate"))
-        except ValueError:
-            raise ValueError(
-                f"{str(as_current).split('; write')[0]}; write a current such as '2.5 A' "
-                "or a C-rate such as '0.1 It'"
-            ) from None
+        except QuantityError:
+            raise QuantityError(as_current.problem, "write a current such as '2.5 A' or a "
+                                "C-rate such as '0.1 It'") from None
     magnitude = result.amperes if result.amperes is not None else result.c_rate
     assert magnitude is not None
     if not magnitude > 0:
-        raise ValueError(f"'{raw}' must be above zero")
+        raise ValueError(f"'{quote(raw)}' must be above zero")
     if result.amperes is not None and result.amperes < 0.001:
-        raise ValueError(f"'{raw}' is below 1 mA, the smallest current a setpoint file carries")
+        raise ValueError(f"'{quote(raw)}' is below 1 mA, the smallest current a setpoint "
+                         "file carries")
     if result.amperes is not None and result.amperes > 10_000:
-        raise ValueError(f"'{raw}' is above the largest sensible 10000 A")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 10000 A")
     if result.c_rate is not None and result.c_rate > 20:
-        raise ValueError(f"'{raw}' is above the largest sensible 20 It")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 20 It")
     return result
 
 
@@ -215,18 +268,18 @@ def _pack_or_cell(raw: object) -> VoltageSpec:
         return raw
     try:
         result = VoltageSpec(parse_quantity(raw, "voltage"), per_cell=False)
-    except ValueError as as_pack:
+    except QuantityError as as_pack:
+        if as_pack.about_text:  # the characters are wrong: a per-cell value would not read
+            raise
         try:
             result = VoltageSpec(parse_quantity(raw, "cell_voltage"), per_cell=True)
-        except ValueError:
-            raise ValueError(
-                f"{str(as_pack).split('; write')[0]}; write a battery voltage such as "
-                "'14.7 V' or a voltage per cell such as '2.45 V/cell'"
-            ) from None
+        except QuantityError:
+            raise QuantityError(as_pack.problem, "write a battery voltage such as '14.7 V' "
+                                "or a voltage per cell such as '2.45 V/cell'") from None
     if not (result.volts > 0 and math.isfinite(result.volts)):
-        raise ValueError(f"'{raw}' must be above zero")
+        raise ValueError(f"'{quote(raw)}' must be above zero")
     if result.volts > 1000:
-        raise ValueError(f"'{raw}' is above the largest sensible 1000 V")
+        raise ValueError(f"'{quote(raw)}' is above the largest sensible 1000 V")
     return result
 
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pydantic import Field, model_validator
 
-from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.fields import InputModel, Text, number, quantity
 
 
 class BatteryRow(InputModel):
@@ -18,7 +18,7 @@ class BatteryRow(InputModel):
     chemistry: Text
     nominal_voltage_v: quantity("voltage", ge=1, le=1000) | None = Field(
         default=None, alias="nominal_voltage")
-    cells_in_series: int | None = Field(default=None, ge=1, le=400)
+    cells_in_series: number(whole=True, ge=1, le=400) | None = None
     capacity_ah: quantity("capacity", ge=0.05, le=100_000) = Field(alias="capacity")
     state_of_charge_pct: quantity("fraction", ge=0, le=100) | None = Field(
         default=None, alias="state_of_charge")

@@ -157,7 +157,7 @@ def runtime(
     battery_file: BatteryFile, load: str, *, profiles: ProfileSet | None = None,
     file: str | None = None,
 ) -> Runtime:
-    """How long ``load`` ('8.3 A' or '100 W') takes to flatten the battery from its present
+    """How long ``load`` ('5 A' or '60 W') takes to flatten the battery from its present
     state, by Peukert's law (lead-acid) or near its rated capacity (lithium)."""
     from chargeplan.engine.planner import derive_state
     from chargeplan.physics.discharge import (
@@ -175,15 +175,15 @@ def runtime(
             power = parse_quantity(load, "power")
         except ValueError:
             raise InputError(f"'{load}' is neither a current nor a power", field="--load",
-                             fix="write a current such as '8.3 A' or a power such as "
-                                 "'100 W'") from None
+                             fix="write a current such as '5 A' or a power such as "
+                                 "'60 W'") from None
         current = power / ctx.nominal_voltage_v
         notes.append(f"{num(power, 1)} W / {volts(ctx.nominal_voltage_v)} nominal = "
                      f"{num(current, 2)} A (the current rises as the voltage sags)")
     if not LOAD_RANGE_A[0] <= current <= LOAD_RANGE_A[1]:
         raise InputError(f"{current:.4g} A is outside {LOAD_RANGE_A[0]:g} to "
                          f"{LOAD_RANGE_A[1]:g} A", field="--load",
-                         fix="give the load's current or power, e.g. '8.3 A' or '100 W'")
+                         fix="give the load's current or power, e.g. '5 A' or '60 W'")
     soc = ctx.soc_pct if ctx.soc_pct is not None else 100.0
     if ctx.soc_pct is None:
         notes.append("no state of charge or rest voltage given: starting from full")

@@ -1,9 +1,12 @@
 """Reading input files safely, and turning validation errors into one-line messages.
 
-YAML is read with ruamel.yaml's safe loader, which refuses tags that would build
-Python objects (``!!python/object`` and friends). JSON is read with the standard
-library, refusing ``NaN`` and ``Infinity``. Every failure is an
-:class:`~chargeplan.errors.InputError` naming the file, the field and the fix.
+Every user file is read through :func:`read_input` (a regular file only, opened without
+blocking, its size capped). YAML is first walked event by event (depth and expanded size
+capped, before anything is built), then read with ruamel.yaml's safe loader, which refuses
+tags that would build Python objects (``!!python/object`` and friends). JSON is read with the
+standard library, refusing ``NaN``, ``Infinity``, duplicate keys and half surrogate pairs.
+Every failure is an :class:`~chargeplan.errors.InputError` naming the file, the field and the
+fix.
 """
 
 from __future__ import annotations
@@ -13,6 +16,7 @@ import difflib
 import errno
 import json
 import os
+import re
 import stat
 from pathlib import Path
 from typing import Any, TypeVar
@@ -21,8 +25,8 @@ from pydantic import BaseModel, ValidationError
 
 from chargeplan.errors import InputError
 
-__all__ = ["MAX_INPUT_BYTES", "MAX_YAML_DEPTH", "MAX_YAML_NODES", "input_error", "read_input",
-           "read_mapping", "validate"]
+__all__ = ["MAX_INPUT_BYTES", "MAX_YAML_DEPTH", "MAX_YAML_NODES", "input_error", "not_a_file",
+           "read_input", "read_mapping", "validate"]
 
 M = TypeVar("M", bound=BaseModel)
 
@@ -57,8 +61,9 @@ _NOT_A_FILE = (
 )
 
 
-def _not_a_file(mode: int) -> str:
-    """What a file of this mode is, when it is not a regular file ("" when it is one)."""
+def not_a_file(mode: int) -> str:
+    """What a file of this ``st_mode`` is when it is not a regular file ("a FIFO (named pipe)",
+    "a device", ...), or "" when it is one."""
     if stat.S_ISREG(mode):
         return ""
     return next((name for test, name in _NOT_A_FILE if test(mode)), "not a regular file")
@@ -69,7 +74,7 @@ def _cannot_open(error: OSError, shown: str, what: str) -> InputError:
         return InputError("no such file", file=shown, fix="check the path")
     if error.errno == errno.ENXIO:  # a socket (or a device without its driver): never opened
         with contextlib.suppress(OSError):
-            kind = _not_a_file(os.stat(shown).st_mode)  # only to name it; nothing is read
+            kind = not_a_file(os.stat(shown).st_mode)  # only to name it; nothing is read
             if kind:
                 return InputError(f"is {kind}, not a file", file=shown, fix=f"give the {what} file")
     return InputError(f"cannot read it ({error.strerror})", file=shown,
@@ -94,7 +99,7 @@ def read_input(path: str | Path, *, what: str = "input", limit: int = MAX_INPUT_
         raise _cannot_open(error, shown, what) from None
     try:
         info = os.fstat(fd)
-        kind = _not_a_file(info.st_mode)
+        kind = not_a_file(info.st_mode)
         if kind:
             raise InputError(f"is {kind}, not a file", file=shown, fix=f"give the {what} file")
         if info.st_size > limit:
@@ -157,11 +162,21 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     return data
 
 
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F][0-9a-fA-F]{2}")
+
+
 def parse_json(text: str, shown: str) -> Any:
     """Strict JSON: a duplicate key, NaN or Infinity is refused, with the line and column."""
     try:
-        return json.loads(text, parse_constant=_reject_constant,
+        data = json.loads(text, parse_constant=_reject_constant,
                           object_pairs_hook=_no_duplicate_keys)
+        if _SURROGATE_ESCAPE.search(text):  # a pair is one character; half of one is no text
+            json.dumps(data, ensure_ascii=False).encode("utf-8")
+        return data
+    except UnicodeEncodeError:
+        raise InputError("holds a \\u escape for half of a UTF-16 surrogate pair, which is "
+                         "not a character", file=shown,
+                         fix="write the character itself, or both halves of the pair") from None
     except json.JSONDecodeError as error:
         raise InputError(
             f"line {error.lineno}, column {error.colno}: not valid JSON ({error.msg})",

@@ -29,6 +29,7 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 
 from chargeplan.errors import InputError
+from chargeplan.loading import not_a_file
 
 __all__ = ["MANIFEST", "write_all", "write_atomic"]
 
@@ -85,6 +86,11 @@ def write_atomic(path: str | Path, data: str | bytes, *, force: bool = False) ->
     if target.is_symlink():
         raise InputError("is a symbolic link; chargeplan does not write through links",
                          file=shown, fix="remove the link or choose another name")
+    with contextlib.suppress(FileNotFoundError):
+        kind = not_a_file(os.lstat(target).st_mode)
+        if kind:  # renaming over it would replace a device or a FIFO with a plain file
+            raise InputError(f"is {kind}, not a file; chargeplan replaces only files",
+                             file=shown, fix="give the name of a file to write")
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
         raise InputError("its folder does not exist", file=shown, fix="create the folder first")

@@ -387,3 +387,141 @@ def test_a_signal_at_any_moment_leaves_one_whole_folder(tmp_path, signum):
             seen.add("old")
         _no_leftovers(tmp_path)
     assert "old" in seen, seen  # the early signals caught the write before its swap
+
+
+# Output cannot be turned against its reader: CSV cells guarded against spreadsheet formulas
+# (OWASP "CSV Injection"), user text in Markdown shown as written (checked with markdown-it-py,
+# a CommonMark renderer, with raw HTML switched on as most Markdown viewers have it).
+
+HOSTILE = ['=HYPERLINK("http://example.invalid/x","open me")', "+SUM(1+1)", "@cmd",
+           "-2+3+cmd|' /C calc'!A0", "\tTAB", "=1+1"]
+
+
+def _write_inventory(path: Path, ids: list[str], owners: list[str]) -> None:
+    import csv
+
+    with path.open("w", newline="") as handle:
+        out = csv.writer(handle)
+        out.writerow(["id", "owner", "chemistry", "nominal_voltage", "capacity",
+                      "state_of_charge", "bay"])
+        for i, (battery, owner) in enumerate(zip(ids, owners, strict=True)):
+            out.writerow([battery, owner, "agm", "12 V", f"{40 + i} Ah", "85 %", "shed"])
+
+
+def test_formula_like_ids_are_guarded_in_the_csv_and_read_back_as_they_are(tmp_path):
+    from typer.testing import CliRunner
+
+    from chargeplan.cli import app
+    from chargeplan.csvfile import csv_reader, csv_rows
+
+    owners = [*HOSTILE[1:], "-5.5"]
+    inventory = tmp_path / "inventory.csv"
+    _write_inventory(inventory, HOSTILE, owners)
+    out = tmp_path / "out"
+    result = CliRunner().invoke(app, ["storage", str(CORPUS / "storage" / "good-site.yaml"),
+                                      "--inventory", str(inventory), "-o", str(out)])
+    assert result.exit_code == 0, result.stderr
+    raw = (out / "schedule.csv").read_text()
+    assert "'=HYPERLINK(" in raw and ",'+SUM(1+1)," in raw and "'@cmd" in raw
+    assert "'-2+3+cmd|" in raw and ",-5.5," in raw  # a plain number stays a number
+    shown, reader = csv_reader(out / "schedule.csv")
+    errors: list[str] = []
+    rows = [data for _, data in csv_rows(reader, shown, errors)]
+    assert not errors
+    first_round = [r for r in rows if r["battery"] != "C-1"][: len(HOSTILE)]  # C-1: the site's
+    assert [r["battery"] for r in first_round] == [h.strip() for h in HOSTILE]
+    assert [r["owner"] for r in first_round] == [o.strip() for o in owners]
+
+
+def test_simulate_csv_goes_through_the_guard(tmp_path):
+    from chargeplan.simulation import simulate_file
+
+    text = simulate_file(CORPUS / "battery" / "good-battery.yaml").csv()
+    assert text.splitlines()[0] == "time_s,stage,voltage_V,current_A,state_of_charge_pct"
+    assert not any(line.startswith("'") for line in text.splitlines())  # numbers stay numbers
+
+
+def _html_of(markdown: str) -> str:
+    from markdown_it import MarkdownIt
+
+    return MarkdownIt("commonmark", {"html": True}).enable("table").render(markdown)
+
+
+SCRIPT = "<script>alert(1)</script>"
+IMAGE = '<img src=x onerror="alert(2)">'
+LINK = "[open](javascript:alert(3))"
+
+
+def _assert_inert(markdown: str, text: str) -> None:
+    html = _html_of(markdown)
+    assert "<script" not in html and "<img" not in html, html
+    assert 'href="javascript' not in html, html
+    assert text in html, html  # shown to the reader, as text
+
+
+def test_plan_markdown_shows_html_in_a_name_as_text(tmp_path):
+    from ruamel.yaml import YAML
+
+    from chargeplan.api import plan_file
+    from chargeplan.render.document import render_markdown
+
+    data = YAML(typ="safe").load((CORPUS / "battery" / "good-battery.yaml").read_text())
+    data["battery"]["name"] = f"{SCRIPT} | {IMAGE} {LINK}"
+    path = tmp_path / "b.json"
+    import json
+
+    path.write_text(json.dumps(data))
+    markdown = render_markdown(plan_file(path), explain=True)
+    _assert_inert(markdown, "&lt;script&gt;alert(1)&lt;/script&gt; | &lt;img")
+
+
+def test_bench_and_storage_markdown_show_html_as_text(tmp_path):
+    from typer.testing import CliRunner
+
+    from chargeplan.cli import app
+
+    site = (CORPUS / "storage" / "good-site.yaml").read_text()
+    site = site.replace("name: Corpus shed", f"name: '{SCRIPT} {LINK}'")
+    site = site.replace("id: C-1", f"id: '{IMAGE} | x'")
+    (tmp_path / "site.yaml").write_text(site)
+    out = tmp_path / "storage"
+    result = CliRunner().invoke(app, ["storage", str(tmp_path / "site.yaml"), "-o", str(out)])
+    assert result.exit_code == 0, result.stderr
+    _assert_inert((out / "procedure.md").read_text(), "&lt;script&gt;")
+    bench = (CORPUS / "bench" / "good-bench.yaml").read_text()
+    bench = bench.replace("{name: A,", "{name: '```\n  ``` <script>alert(1)</script> |',")
+    bench = bench.replace("id: mower-3", f"id: '{IMAGE} {LINK}'")
+    (tmp_path / "bench.yaml").write_text(bench)
+    out = tmp_path / "bench"
+    result = CliRunner().invoke(app, ["bench", str(tmp_path / "bench.yaml"), "-o", str(out)])
+    assert result.exit_code == 0, result.stderr
+    _assert_inert((out / "bench.md").read_text(), "&lt;img")
+
+
+def test_md_text_shows_any_text_as_written():
+    """Whatever the text, CommonMark renders md_text of it as exactly that text."""
+    import html
+
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    from chargeplan.render.markdown import md_text
+
+    alphabet = st.sampled_from([*"ab1 <>&\"'|\\`*_[]()!#~=+-.:/;{}", "&amp;", "&#60;"])
+
+    @settings(max_examples=300, deadline=None)
+    @given(st.lists(alphabet, max_size=30).map("".join))
+    def check(text: str) -> None:
+        rendered = _html_of(f"x {md_text(text)} x")
+        inner = rendered.strip().removeprefix("<p>").removesuffix("</p>")
+        assert " ".join(html.unescape(inner).split()) == " ".join(f"x {text} x".split()), rendered
+
+    check()
+
+
+def test_md_code_block_cannot_be_closed_early():
+    from chargeplan.render.markdown import md_code_block
+
+    text = "a ```\n  ```\n<b>bold</b> ````"
+    html = _html_of(md_code_block(text) + "\n\nafter")
+    assert html.count("<pre>") == 1 and "&lt;b&gt;bold" in html and "<p>after</p>" in html

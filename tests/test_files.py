@@ -525,3 +525,12 @@ def test_md_code_block_cannot_be_closed_early():
     text = "a ```\n  ```\n<b>bold</b> ````"
     html = _html_of(md_code_block(text) + "\n\nafter")
     assert html.count("<pre>") == 1 and "&lt;b&gt;bold" in html and "<p>after</p>" in html
+
+
+def test_missing_parents_are_made_and_a_file_in_the_path_is_refused(tmp_path):
+    out = tmp_path / "reports" / "2026" / "winter"
+    writer.write_all(out, NEW)
+    assert _contents(out) == _expected(NEW)
+    (tmp_path / "plain").write_text("a file")
+    with pytest.raises(InputError, match="a part of its path is a file"):
+        writer.write_all(tmp_path / "plain" / "out", NEW)

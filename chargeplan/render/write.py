@@ -188,9 +188,14 @@ def write_all(folder: str | Path, files: dict[str, str | bytes], *, force: bool 
     if out.is_symlink() or (out.exists() and not out.is_dir()):
         raise InputError("is not a folder", file=shown, fix="give a folder to write into")
     parent = out.parent if str(out.parent) else Path(".")
-    if not parent.is_dir():
-        raise InputError("its parent folder does not exist", file=shown,
-                         fix="create the parent folder first")
+    try:
+        os.makedirs(parent, _FOLDER_MODE, exist_ok=True)  # as before: missing parents are made
+    except (FileExistsError, NotADirectoryError):
+        raise InputError("a part of its path is a file, not a folder", file=shown,
+                         fix="give a folder path") from None
+    except OSError as error:
+        raise InputError(f"cannot create its folder ({error.strerror})", file=shown,
+                         fix="check the path and its permissions") from None
     try:
         for line in _recover(out):
             say(line)

@@ -534,3 +534,11 @@ def test_missing_parents_are_made_and_a_file_in_the_path_is_refused(tmp_path):
     (tmp_path / "plain").write_text("a file")
     with pytest.raises(InputError, match="a part of its path is a file"):
         writer.write_all(tmp_path / "plain" / "out", NEW)
+
+
+def test_a_fifo_in_place_of_the_list_is_refused_not_read(tmp_path):
+    out = _old_folder(tmp_path)
+    (out / writer.MANIFEST).unlink()
+    os.mkfifo(out / writer.MANIFEST)
+    with pytest.raises(InputError, match=r"\.chargeplan-files: was not written by chargeplan"):
+        writer.write_all(out, NEW, force=True)

@@ -228,8 +228,14 @@ def _owned_entries(out: Path, files: dict[str, str | bytes]) -> list[str]:
     names = sorted(os.listdir(out))
     owned = set(files)
     if MANIFEST in names:
-        with contextlib.suppress(OSError, UnicodeDecodeError):
-            owned |= set((out / MANIFEST).read_text(encoding="utf-8").splitlines())
+        from chargeplan.loading import read_input
+
+        try:  # a regular file of the tool's making (a FIFO of that name is refused, not read)
+            listed = read_input(out / MANIFEST, what="output folder's list", limit=1 << 20)
+            owned |= set(listed.decode("utf-8").splitlines())
+        except (InputError, UnicodeDecodeError):
+            raise InputError("was not written by chargeplan", file=str(out / MANIFEST),
+                             fix="give a new or empty folder") from None
     for name in names:
         entry = out / name
         if name == MANIFEST:

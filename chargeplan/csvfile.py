@@ -20,8 +20,8 @@ from typing import Any
 
 from chargeplan.errors import InputError
 
-__all__ = ["InputErrors", "csv_cell", "csv_reader", "csv_row", "csv_rows", "csv_unguard",
-           "read_rows"]
+__all__ = ["MAX_CELL_CHARS", "MAX_CSV_BYTES", "InputErrors", "csv_cell", "csv_reader", "csv_row",
+           "csv_rows", "csv_unguard", "read_rows"]
 
 #: Characters that make a spreadsheet read a cell as a formula (OWASP "CSV Injection").
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -71,25 +71,79 @@ class InputErrors(InputError):
         super().__init__(f"{len(lines)} bad rows", fix="mend each row listed")
 
 
+#: The largest CSV read, in bytes: an inventory of a million batteries is about 80 MB.
+MAX_CSV_BYTES = 256 * 1024 * 1024
+#: The longest cell read, in characters: ids, owners and quantities are a few dozen.
+MAX_CELL_CHARS = 4096
+
+
+def _line_of(text: str, index: int) -> int:
+    return text.count("\n", 0, index) + 1
+
+
 def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
     """A CSV file (UTF-8, with or without a byte-order mark, any line ends) as a reader whose
-    ``line_num`` is the physical line."""
+    ``line_num`` is the physical line.
+
+    The file is read through :func:`chargeplan.loading.read_input` (a regular file, at most
+    MAX_CSV_BYTES); NUL bytes, a header naming a column twice and an over-long header cell
+    are refused with their line.
+    """
     import io
 
+    from chargeplan.loading import read_input
+
     shown = str(path)
+    raw = read_input(path, what="CSV", limit=MAX_CSV_BYTES)
     try:
-        text = Path(path).read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise InputError("no such file", file=shown, fix="check the path") from None
+        text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
-    return shown, csv.DictReader(io.StringIO(text, newline=""))
+    nul = text.find("\x00")
+    if nul >= 0:
+        raise InputError(f"line {_line_of(text, nul)}: holds a NUL byte", file=shown,
+                         fix="save the file as plain CSV text (a spreadsheet's 'CSV UTF-8')")
+    reader = csv.DictReader(io.StringIO(text, newline=""))
+    try:
+        header = reader.fieldnames
+    except csv.Error as error:
+        raise _csv_error(error, shown, reader.reader.line_num) from None
+    names = [csv_unguard(name.strip()) for name in header or []]
+    for name in names:
+        if len(name) > MAX_CELL_CHARS:
+            raise InputError(f"line 1: a header cell is {len(name):,} characters long",
+                             file=shown, fix="write the column names of the header row")
+    twice = next((name for i, name in enumerate(names) if name in names[:i]), None)
+    if twice is not None:
+        raise InputError(f"line 1: the column '{twice[:80]}' is named twice in the header",
+                         file=shown,
+                         fix="keep one column of each name: which one is meant is not clear")
+    return shown, reader
+
+
+def _csv_error(error: csv.Error, shown: str, line: int) -> InputError:
+    problem = str(error)
+    if "field larger than field limit" in problem:
+        return InputError(f"line {line}: a cell is longer than {MAX_CELL_CHARS:,} characters",
+                          file=shown, fix="check the row: no cell of this file is that long")
+    return InputError(f"line {line}: not valid CSV ({problem})", file=shown,
+                      fix="check the row for a stray quote")
 
 
 def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, dict[str, str]]]:
-    """Each row's line and non-empty cells; a stray quote or an extra cell is an error."""
+    """Each row's line and non-empty cells; a stray quote, an extra cell or an over-long cell
+    is an error (a row the csv module cannot read ends the file's reading)."""
     previous = reader.line_num
-    for raw in reader:
+    rows = iter(reader)
+    while True:
+        try:
+            raw = next(rows)
+        except StopIteration:
+            return
+        except csv.Error as error:
+            line = getattr(reader, "reader", reader).line_num  # the physical line it stopped on
+            errors.append(str(_csv_error(error, shown, line)))
+            return
         line, first, previous = reader.line_num, previous + 1, reader.line_num
         if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
             errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
@@ -98,6 +152,13 @@ def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, 
         if raw.get(None):
             errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
                           "stray comma or quote")
+            continue
+        long = next((k for k, v in raw.items() if isinstance(v, str)
+                     and len(v) > MAX_CELL_CHARS), None)
+        if long is not None:
+            errors.append(f"{shown}: line {line}: {str(long)[:80]}: the cell is "
+                          f"{len(raw[long]):,} characters long, more than {MAX_CELL_CHARS:,}; "
+                          "check the row")
             continue
         data = {csv_unguard((k or "").strip()): csv_unguard((v or "").strip())
                 for k, v in raw.items()}

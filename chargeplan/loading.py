@@ -1,15 +1,23 @@
 """Reading input files safely, and turning validation errors into one-line messages.
 
-YAML is read with ruamel.yaml's safe loader, which refuses tags that would build
-Python objects (``!!python/object`` and friends). JSON is read with the standard
-library, refusing ``NaN`` and ``Infinity``. Every failure is an
-:class:`~chargeplan.errors.InputError` naming the file, the field and the fix.
+Every user file is read through :func:`read_input` (a regular file only, opened without
+blocking, its size capped). YAML is first walked event by event (depth and expanded size
+capped, before anything is built), then read with ruamel.yaml's safe loader, which refuses
+tags that would build Python objects (``!!python/object`` and friends). JSON is read with the
+standard library, refusing ``NaN``, ``Infinity``, duplicate keys and half surrogate pairs.
+Every failure is an :class:`~chargeplan.errors.InputError` naming the file, the field and the
+fix.
 """
 
 from __future__ import annotations
 
+import contextlib
 import difflib
+import errno
 import json
+import os
+import re
+import stat
 from pathlib import Path
 from typing import Any, TypeVar
 
@@ -17,12 +25,18 @@ from pydantic import BaseModel, ValidationError
 
 from chargeplan.errors import InputError
 
-__all__ = ["MAX_INPUT_BYTES", "input_error", "read_mapping", "validate"]
+__all__ = ["MAX_INPUT_BYTES", "MAX_YAML_DEPTH", "MAX_YAML_NODES", "input_error", "not_a_file",
+           "read_input", "read_mapping", "validate"]
 
 M = TypeVar("M", bound=BaseModel)
 
 #: The largest input file read, in bytes. Battery and profile files are a few kB.
 MAX_INPUT_BYTES = 5 * 1024 * 1024
+#: The deepest nesting of lists and mappings a YAML file may hold (input files need about 5).
+MAX_YAML_DEPTH = 64
+#: The most values (scalars, lists, mappings) a YAML file may stand for once every alias and
+#: merge key is expanded: "billion laughs" files stand for billions in a few hundred bytes.
+MAX_YAML_NODES = 1_000_000
 
 
 def _reject_constant(name: str) -> Any:
@@ -38,31 +52,90 @@ def _no_duplicate_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     return result
 
 
+_NOT_A_FILE = (
+    (stat.S_ISDIR, "a folder"),
+    (stat.S_ISFIFO, "a FIFO (named pipe)"),
+    (stat.S_ISCHR, "a device"),
+    (stat.S_ISBLK, "a device"),
+    (stat.S_ISSOCK, "a socket"),
+)
+
+
+def not_a_file(mode: int) -> str:
+    """What a file of this ``st_mode`` is when it is not a regular file ("a FIFO (named pipe)",
+    "a device", ...), or "" when it is one."""
+    if stat.S_ISREG(mode):
+        return ""
+    return next((name for test, name in _NOT_A_FILE if test(mode)), "not a regular file")
+
+
+def _cannot_open(error: OSError, shown: str, what: str) -> InputError:
+    if isinstance(error, FileNotFoundError):
+        return InputError("no such file", file=shown, fix="check the path")
+    if error.errno == errno.ENXIO:  # a socket (or a device without its driver): never opened
+        with contextlib.suppress(OSError):
+            kind = not_a_file(os.stat(shown).st_mode)  # only to name it; nothing is read
+            if kind:
+                return InputError(f"is {kind}, not a file", file=shown, fix=f"give the {what} file")
+    return InputError(f"cannot read it ({error.strerror})", file=shown,
+                      fix="check the path and its permissions")
+
+
+def read_input(path: str | Path, *, what: str = "input", limit: int = MAX_INPUT_BYTES) -> bytes:
+    """The bytes of an input file: every file chargeplan reads from a user comes through here.
+
+    The file is opened without blocking (``O_NONBLOCK``, so a FIFO with no writer opens at
+    once, and ``O_NOCTTY``) and its descriptor, not its path, is checked: anything but a
+    regular file (a FIFO, a device, a socket, a folder) is refused, so nothing can swap the
+    file between the check and the read. The size is capped from ``fstat`` before reading,
+    and the read itself stops at ``limit + 1`` bytes, so a file that grows (or lies about its
+    size) cannot exhaust memory.
+    """
+    shown = str(path)
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
+    try:
+        fd = os.open(path, flags | getattr(os, "O_CLOEXEC", 0))
+    except OSError as error:
+        raise _cannot_open(error, shown, what) from None
+    try:
+        info = os.fstat(fd)
+        kind = not_a_file(info.st_mode)
+        if kind:
+            raise InputError(f"is {kind}, not a file", file=shown, fix=f"give the {what} file")
+        if info.st_size > limit:
+            raise _too_large(f"{info.st_size / 1e6:.1f} MB", limit, shown, what)
+        chunks: list[bytes] = []
+        left = limit + 1
+        while left > 0:
+            chunk = os.read(fd, min(left, 1 << 20))
+            if not chunk:
+                break
+            chunks.append(chunk)
+            left -= len(chunk)
+        if left <= 0:  # it grew while being read
+            raise _too_large(f"more than {limit / 1e6:.1f} MB", limit, shown, what)
+        return b"".join(chunks)
+    except OSError as error:
+        raise InputError(f"cannot read it ({error.strerror})", file=shown,
+                         fix="check the path and its permissions") from None
+    finally:
+        os.close(fd)
+
+
+def _too_large(size: str, limit: int, shown: str, what: str) -> InputError:
+    return InputError(
+        f"is {size}, larger than any {what} file should be "
+        f"({limit / (1024 * 1024):g} MB at most)",
+        file=shown,
+        fix=f"check that this is the {what} file",
+    )
+
+
 def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     """Read a YAML or JSON file whose top level is a mapping."""
     path = Path(path)
     shown = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise InputError("no such file", file=shown, fix="check the path") from None
-    except OSError as error:
-        raise InputError(f"cannot read it ({error.strerror})", file=shown,
-                         fix="check the path and its permissions") from None
-    if path.is_dir():
-        raise InputError("is a folder, not a file", file=shown, fix=f"give the {what} file")
-    if size > MAX_INPUT_BYTES:
-        raise InputError(
-            f"is {size / 1e6:.1f} MB, larger than any {what} file should be "
-            f"({MAX_INPUT_BYTES // (1024 * 1024)} MB at most)",
-            file=shown,
-            fix=f"check that this is the {what} file",
-        )
-    try:
-        raw = path.read_bytes()
-    except OSError as error:
-        raise InputError(f"cannot read it ({error.strerror})", file=shown,
-                         fix="check the path and its permissions") from None
+    raw = read_input(path, what=what)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
@@ -89,11 +162,21 @@ def read_mapping(path: str | Path, *, what: str = "input") -> dict[str, Any]:
     return data
 
 
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F][0-9a-fA-F]{2}")
+
+
 def parse_json(text: str, shown: str) -> Any:
     """Strict JSON: a duplicate key, NaN or Infinity is refused, with the line and column."""
     try:
-        return json.loads(text, parse_constant=_reject_constant,
+        data = json.loads(text, parse_constant=_reject_constant,
                           object_pairs_hook=_no_duplicate_keys)
+        if _SURROGATE_ESCAPE.search(text):  # a pair is one character; half of one is no text
+            json.dumps(data, ensure_ascii=False).encode("utf-8")
+        return data
+    except UnicodeEncodeError:
+        raise InputError("holds a \\u escape for half of a UTF-16 surrogate pair, which is "
+                         "not a character", file=shown,
+                         fix="write the character itself, or both halves of the pair") from None
     except json.JSONDecodeError as error:
         raise InputError(
             f"line {error.lineno}, column {error.colno}: not valid JSON ({error.msg})",
@@ -139,6 +222,90 @@ def _resolver() -> type:
     return Resolver
 
 
+def _refuse_yaml(event: Any, shown: str, problem: str, fix: str) -> InputError:
+    mark = getattr(event, "start_mark", None)
+    where = f"line {mark.line + 1}: " if mark is not None else ""
+    return InputError(f"{where}{problem}", file=shown, fix=fix)
+
+
+def _events(text: str) -> Any:
+    """The parser's events one by one (ruamel's C parser where installed: it keeps its own
+    stack, so no depth of input exhausts the interpreter's)."""
+    try:
+        from ruamel.yaml import CParser
+    except ImportError:  # the pure-Python parser, also iterative
+        from ruamel.yaml import YAML
+
+        yield from YAML(typ="safe", pure=True).parse(text)
+        return
+    parser = CParser(text)
+    try:
+        get = parser.get_event
+        while True:
+            event = get()
+            yield event
+            if event.__class__.__name__ == "StreamEndEvent":
+                return
+    finally:
+        parser.dispose()
+
+
+def _check_events(text: str, shown: str) -> None:
+    """Walk the parser's events, before anything is composed or built, and refuse a file
+    nested deeper than MAX_YAML_DEPTH or standing for more than MAX_YAML_NODES values.
+
+    An alias counts as the whole of what its anchor stands for (its values and its height),
+    so a merge key's alias counts too, and the count is never below what any loader builds.
+    """
+    from ruamel.yaml import events
+
+    opening = (events.SequenceStartEvent, events.MappingStartEvent)
+    closing = (events.SequenceEndEvent, events.MappingEndEvent)
+    alias, scalar = events.AliasEvent, events.ScalarEvent
+    anchors: dict[str, tuple[int, int]] = {}  # anchor: (values, height)
+    stack: list[list[Any]] = []  # each open collection: [values, height of its content, anchor]
+    total = 0
+    for event in _events(text):
+        kind = type(event)
+        if kind is scalar:
+            size, height = 1, 0
+            if event.anchor:
+                anchors[event.anchor] = (1, 0)
+        elif kind in opening:
+            stack.append([1, 0, event.anchor])
+            total += 1
+            if len(stack) > MAX_YAML_DEPTH:
+                raise _too_deep(event, shown)
+            continue
+        elif kind in closing:
+            size, height, anchor = stack.pop()
+            height += 1
+            total -= size  # counted already, value by value
+            if anchor:
+                anchors[anchor] = (size, height)
+        elif kind is alias:
+            size, height = anchors.get(event.anchor, (1, 0))  # an unknown one: the loader says
+        else:
+            continue
+        total += size
+        if stack:
+            parent = stack[-1]
+            parent[0] += size
+            if height > parent[1]:
+                parent[1] = height
+        if len(stack) + height > MAX_YAML_DEPTH:
+            raise _too_deep(event, shown)
+        if total > MAX_YAML_NODES:
+            raise _refuse_yaml(event, shown, f"stands for more than {MAX_YAML_NODES:,} values "
+                               "once its aliases (*) and merge keys (<<) are expanded",
+                               "write the values out, without aliases that multiply")
+
+
+def _too_deep(event: Any, shown: str) -> InputError:
+    return _refuse_yaml(event, shown, f"is nested more than {MAX_YAML_DEPTH} deep",
+                        "flatten the file: input files need only a few levels")
+
+
 def _parse_yaml(text: str, shown: str) -> Any:
     from ruamel.yaml import YAML
     from ruamel.yaml.error import MarkedYAMLError, YAMLError
@@ -146,6 +313,7 @@ def _parse_yaml(text: str, shown: str) -> Any:
     yaml = YAML(typ="safe")  # the C parser where installed; never builds objects
     yaml.Resolver = _resolver()
     try:
+        _check_events(text, shown)
         return yaml.load(text)
     except MarkedYAMLError as error:
         mark = error.problem_mark or error.context_mark

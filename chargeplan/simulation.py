@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from chargeplan.csvfile import csv_row
 from chargeplan.fmt import amps, duration, num
 from chargeplan.plan import ChargePlan
 from chargeplan.profiles import ProfileSet
@@ -54,12 +55,12 @@ class SimulationRun:
     def csv(self) -> str:
         out = io.StringIO()
         writer = csv.writer(out, lineterminator="\n")
-        writer.writerow(CSV_COLUMNS)
+        csv_row(writer, CSV_COLUMNS)
         kinds = [stage.kind.value for stage in self.plan.stages]
         s = self.series
         for t, k, v, i, soc in zip(s["time_s"], s["stage"], s["voltage_v"], s["current_a"],
                                    s["soc"], strict=True):
-            writer.writerow((f"{t:.0f}", kinds[int(k)], f"{v:.4f}", f"{i:.4f}",
+            csv_row(writer, (f"{t:.0f}", kinds[int(k)], f"{v:.4f}", f"{i:.4f}",
                              f"{soc * 100:.3f}"))
         return out.getvalue()
 

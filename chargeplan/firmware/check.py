@@ -789,19 +789,10 @@ def read_setpoint_file(path: str | Path) -> tuple[dict[str, Any], str, list[Viol
     """The document in a JSON file or an image, its kind, and integrity violations found
     while reading (digest or CRC). A file that is neither is an InputError."""
     from chargeplan.firmware import image
-    from chargeplan.loading import MAX_INPUT_BYTES, parse_json
+    from chargeplan.loading import parse_json, read_input
 
     shown = str(path)
-    try:
-        raw = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise InputError("no such file", file=shown, fix="check the path") from None
-    except OSError as error:
-        raise InputError(f"cannot read it ({error.strerror})", file=shown,
-                         fix="check the path and its permissions") from None
-    if len(raw) > MAX_INPUT_BYTES:
-        raise InputError("is larger than any setpoint file", file=shown,
-                         fix="give the setpoint JSON or image")
+    raw = read_input(path, what="setpoint JSON or image")
     if raw.startswith(image.MAGIC):
         try:
             return image.decode(raw), "image", []

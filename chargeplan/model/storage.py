@@ -95,6 +95,10 @@ class Site(InputModel):
         if self.duration_s is not None and self.duration_s % DAY_S:
             raise ValueError(f"duration is {self.duration_s / 3600:g} h, not a whole number of "
                              "days; give it in days, e.g. '180 d'")
+        # the calendar needs the day after the last one: dates end at 9999-12-31
+        if self.days > (dt.date.max - self.start).days:
+            raise ValueError("the season runs to the end of the year 9999, past the last date "
+                             "there is; check the start date and the season's length")
         return self
 
     @property

@@ -60,7 +60,10 @@ def _environment(html: bool) -> Any:
         trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
         undefined=StrictUndefined,
     )
-    env.filters["md"] = lambda text: str(text).replace("|", "\\|").replace("\n", " ")
+    if not html:
+        from chargeplan.render.markdown import register
+
+        register(env)  # md_text: user text in Markdown shown as written, never run
     return env
 
 

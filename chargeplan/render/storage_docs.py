@@ -372,9 +372,14 @@ def bench_batteries(plan: StoragePlan) -> dict[str, str]:
 def _environment(html: bool) -> Any:
     from jinja2 import Environment, PackageLoader, StrictUndefined
 
-    return Environment(loader=PackageLoader("chargeplan", "render/templates"), autoescape=html,
-                       trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
-                       undefined=StrictUndefined)
+    env = Environment(loader=PackageLoader("chargeplan", "render/templates"), autoescape=html,
+                      trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
+                      undefined=StrictUndefined)
+    if not html:
+        from chargeplan.render.markdown import register
+
+        register(env)  # md_text: user text in Markdown shown as written, never run
+    return env
 
 
 def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None,

@@ -186,9 +186,11 @@ def _unscheduled(plan: BenchPlan) -> list[tuple[str, str]]:
 
 
 def _md(text: object) -> str:
-    """User and engine text made safe inside a Markdown table cell or line."""
-    value = str(text).replace("\\", "\\\\").replace("\n", " ")
-    return re.sub(r"([|*_`<>\[\]#])", r"\\\1", value)
+    """User and engine text made safe inside a Markdown table cell or line (one escaping
+    for every Markdown document: chargeplan.render.markdown.md_text)."""
+    from chargeplan.render.markdown import md_text
+
+    return md_text(text)
 
 
 @lru_cache(maxsize=2)

@@ -114,6 +114,8 @@ _POWERS_WRITTEN_PLAIN = frozenset({"airflow", "area", "volume"})
 _DEGREES_C = re.compile(r"(?<![A-Za-z_])(degC|celsius|degree_Celsius)(?![A-Za-z_])")
 _DEGREES_F = re.compile(r"(?<![A-Za-z_])(degF|degree_Fahrenheit)(?![A-Za-z_])")
 
+#: The longest quantity text read (a quantity is a few characters; longer text is refused).
+TEXT_MAX = 100
 #: How much of the user's text a message quotes (longer text ends in an ellipsis).
 QUOTE_MAX = 80
 
@@ -287,9 +289,15 @@ def _normalise(shown: str, kind: str) -> str:
         # temperature: "+8 °C" warmer is 8 K, never 281.15 K
         raw = _DEGREES_F.sub("delta_degF", _DEGREES_C.sub("delta_degC", raw))
     if kind in _POWERS_WRITTEN_PLAIN:  # "m3", "cm²": a power written after the unit's letters
-        raw = re.sub(r"(?<=[A-Za-z])([23²³])(?![0-9])",
-                     lambda m: "**" + m.group(1).translate(_SUPERSCRIPTS), raw)
+        lead = _LEADING_NUMBER.match(raw)  # (never inside the number: "3e2 cm2")
+        start = lead.end() if lead else 0
+        raw = raw[:start] + re.sub(r"(?<=[A-Za-z])([23²³])(?![0-9])",
+                                   lambda m: "**" + m.group(1).translate(_SUPERSCRIPTS),
+                                   raw[start:])
     return raw
+
+
+_LEADING_NUMBER = re.compile(rf"[ \t]*{_NUMBER}", re.ASCII)
 
 
 _SUPERSCRIPTS = str.maketrans("²³", "23")
@@ -354,7 +362,7 @@ def parse_quantity(text: object, kind: str) -> float:
     chargeplan.units.QuantityError: '1,5 Ah' has a decimal comma; write 1.5, not 1,5
     """
     if isinstance(text, str):
-        match = _QUANTITY.fullmatch(text) if text.isascii() else None
+        match = _QUANTITY.fullmatch(text) if len(text) <= TEXT_MAX and text.isascii() else None
         if match is not None and kind not in _REWRITTEN:  # the fast path: plain ASCII
             convert = _conversion(match.group(2).replace(" ", "").replace("\t", ""), kind)
             if convert is not None:
@@ -379,6 +387,9 @@ def _parse_slowly(text: object, kind: str) -> float:
     shown = text.strip()  # messages quote ``shown``, the text as the user wrote it
     if not shown:
         raise QuantityError("empty", f"write {wanted}")
+    if len(shown) > TEXT_MAX:
+        raise QuantityError(f"'{quote(shown)}' is {len(shown)} characters long, more than any "
+                            "quantity", f"write {wanted}", about_text=True)
     problem = _text_problem(shown, digits_ok="²³" if kind in _POWERS_WRITTEN_PLAIN else "")
     if problem is not None:
         raise problem
@@ -418,6 +429,9 @@ def parse_number(text: str, *, integer: bool = False) -> float:
     wanted = f"write {'a whole number' if integer else 'a number'} such as {example}"
     if not shown:
         raise QuantityError("empty", wanted)
+    if len(shown) > TEXT_MAX:
+        raise QuantityError(f"'{quote(shown)}' is {len(shown)} characters long, more than any "
+                            "number", wanted)
     problem = _text_problem(shown)
     if problem is not None:
         raise problem

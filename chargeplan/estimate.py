@@ -14,7 +14,7 @@ import math
 import numpy as np
 
 from chargeplan.engine.rules.interlock import BULK_TIMER_FLOOR_S
-from chargeplan.fmt import duration
+from chargeplan.fmt import amps, celsius, duration, num
 from chargeplan.model.battery import BatteryFile
 from chargeplan.model.profile import Profile
 from chargeplan.physics.charge import (
@@ -54,7 +54,7 @@ def arrays_for(
     grids: list[np.ndarray] = []
     cols = {name: np.zeros(n) for name in (
         "capacity_ah", "cells", "table_index", "ohmic_ohm_ah", "acceptance_ohm_ah",
-        "resistance_doubling_k", "coulombic_efficiency",
+        "acceptance_exponent", "resistance_doubling_k", "coulombic_efficiency",
         "gas_a_per_ah", "gas_voltage_v", "gas_slope_v", "gas_doubling_k", "temperature_c",
         "soc_start")}
     present = np.zeros((n, width), dtype=bool)
@@ -63,6 +63,7 @@ def arrays_for(
     exit_v = np.full((n, width), np.nan)
     exit_i = np.full((n, width), np.nan)
     exit_t = np.full((n, width), np.inf)
+    exit_q = np.full((n, width), np.inf)
     stop = np.zeros((n, width), dtype=bool)
     for row, plan in enumerate(plans):
         b = plan.battery
@@ -76,6 +77,8 @@ def arrays_for(
         cols["table_index"][row] = tables[profile.id]
         cols["ohmic_ohm_ah"][row] = ph.ohmic_resistance.value
         cols["acceptance_ohm_ah"][row] = ph.acceptance_resistance.value
+        cols["acceptance_exponent"][row] = (np.nan if ph.acceptance_exponent is None
+                                            else ph.acceptance_exponent.value)
         cols["resistance_doubling_k"][row] = ph.resistance_doubling.value
         cols["coulombic_efficiency"][row] = ph.coulombic_efficiency.value
         if ph.gassing is not None:
@@ -101,8 +104,10 @@ def arrays_for(
                     exit_v[row, col] = e.value / n_cells
                 elif e.kind == ExitKind.CURRENT_BELOW:
                     exit_i[row, col] = e.value
-                elif e.kind == ExitKind.DURATION:  # the fault guards are not modelled
+                elif e.kind == ExitKind.DURATION:
                     exit_t[row, col] = min(exit_t[row, col], e.value)
+                elif e.kind == ExitKind.CHARGE_ABOVE:  # the other guards watch what the
+                    exit_q[row, col] = min(exit_q[row, col], e.value)  # model cannot go wrong
                 stop[row, col] |= e.then == "stop"
     params = CellParameters(
         capacity_ah=cols["capacity_ah"],
@@ -111,6 +116,7 @@ def arrays_for(
         tables=np.vstack(grids),
         ohmic_ohm_ah=cols["ohmic_ohm_ah"],
         acceptance_ohm_ah=cols["acceptance_ohm_ah"],
+        acceptance_exponent=cols["acceptance_exponent"],
         resistance_doubling_k=cols["resistance_doubling_k"],
         coulombic_efficiency=cols["coulombic_efficiency"],
         gas_a_per_ah=cols["gas_a_per_ah"],
@@ -120,7 +126,7 @@ def arrays_for(
         temperature_c=cols["temperature_c"],
         soc_start=cols["soc_start"],
     )
-    return params, StageArrays(present, volt, amps, exit_v, exit_i, exit_t, stop)
+    return params, StageArrays(present, volt, amps, exit_v, exit_i, exit_t, stop, exit_q)
 
 
 def _cautious_bulk_s(plan: ChargePlan, stage: Stage, profile: Profile) -> float:
@@ -134,6 +140,26 @@ def _cautious_bulk_s(plan: ChargePlan, stage: Stage, profile: Profile) -> float:
     missing = max(CAUTIOUS_KNEE_PCT - soc, 0.0) / 100.0
     factor = profile.charge.charge_factor.value
     return missing * plan.battery.capacity_ah * factor / stage.current_a * 3600.0
+
+
+def _levelling_off(plan: ChargePlan, stage: Stage, estimated_s: float) -> None:
+    """Warn when absorption is expected to end on its time limit with the current still
+    above its tail: at constant voltage the current has stopped falling."""
+    assert stage.estimate is not None
+    tails = [e.value for e in stage.exits if e.kind == ExitKind.CURRENT_BELOW]
+    limits = [e.value for e in stage.exits if e.kind == ExitKind.DURATION]
+    if plan.battery.family != "lead_acid" or not tails or not limits:
+        return
+    if estimated_s < min(limits) - 1.0 or stage.estimate.end_current_a < min(tails):
+        return
+    plan.findings.append(Finding(
+        Severity.WARNING, "CP610",
+        f"the model expects the absorption current to level off near "
+        f"{amps(stage.estimate.end_current_a)}, above its {amps(min(tails))} tail, at "
+        f"{celsius(plan.battery.temperature_c)}: the stage ends on its "
+        f"{duration(min(limits))} limit, not full by current; a current that stops falling "
+        "at constant voltage is the first sign of thermal runaway, so watch the battery's "
+        "temperature, check the compensation probe, and charge it cooler"))
 
 
 def estimate_plans(
@@ -202,6 +228,18 @@ def estimate_plans(
                     "gas); charge the battery cooler or check the setpoints"))
                 faulted = True
                 continue
+            if result.charge_capped[row, col]:
+                cap_ah = min(e.value for e in stage.exits if e.kind == ExitKind.CHARGE_ABOVE)
+                plan.findings.append(Finding(
+                    Severity.WARNING, "CP610",
+                    f"the model expects the charge to pass its {num(cap_ah, 1)} Ah cap during "
+                    f"the {stage.kind.label} stage: the charger would stop with a fault (much "
+                    "of the current is going to gas and heat); check the battery's state, its "
+                    "temperature and the setpoints"))
+                faulted = True
+                continue
+            if stage.kind == StageKind.ABSORPTION and not hold:
+                _levelling_off(plan, stage, estimated)
             if stage.kind != StageKind.BULK or stage.timer_s is None or hold:
                 continue
             cautious = _cautious_bulk_s(plan, stage, profile)

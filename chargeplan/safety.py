@@ -38,9 +38,26 @@ class Ceiling:
     charge_temperature_max_c: float
     never: frozenset[str]  # stages it never gets
     source: str
+    #: lead-acid: the largest Ah cap a charge may carry, in multiples of C (None: lithium,
+    #: which needs none); see :data:`CHARGE_CAP_SOURCE`
+    charge_cap_c: float | None = None
 
 
 _LITHIUM_NEVER = frozenset({"equalization", "desulfation"})
+
+#: Why a lead-acid charge's Ah cap is at most 1.65 C (flooded) or 1.49 C (VRLA).
+CHARGE_CAP_SOURCE = (
+    "common practice (reasoning): a flooded battery returns 1.10-1.30 Ah per Ah taken out, a "
+    "VRLA one 1.02-1.15 (general lead-acid references); a charge of a flat battery, plus "
+    "10 % for an uncertain reading, never needs more than 1.5 x 1.1 = 1.65 C (flooded) or "
+    "1.35 x 1.1 = 1.49 C (VRLA) before its cap must stop it")
+#: The largest temperature rise (K) a lead-acid charge stage may run through before it
+#: faults (common practice: a charge warms a battery a few kelvin; 10 K means heat).
+TEMPERATURE_RISE_MAX_K = 10.0
+#: The largest current rise at constant voltage (in It) before absorption faults (common
+#: practice; BU-403: a healthy battery's current falls at constant voltage, so a rise of a
+#: few per cent of C is thermal runaway).
+CURRENT_RISE_MAX_IT = 0.05
 
 #: Published ceilings per built-in chemistry, each with its source.
 CEILINGS: dict[str, Ceiling] = {
@@ -48,15 +65,16 @@ CEILINGS: dict[str, Ceiling] = {
         2.67, 0.30, -20.0, 50.0, frozenset(),
         "2.67 V/cell: the highest equalization voltage across sources (Battery University, "
         "equalizing charge, 2.45-2.67 V/cell); 0.30 It: BU-403 Charging Lead Acid, 0.10-0.30 C; "
-        "-20 to 50 degC: BU-410 Table 1"),
+        "-20 to 50 degC: BU-410 Table 1", charge_cap_c=1.65),
     "agm": Ceiling(
         2.55, 0.50, -20.0, 50.0, frozenset(),
         "from memory: VRLA maker limits with cold compensation reach about 2.50-2.55 V/cell, "
-        "makers allow 0.3-0.5 C; -20 to 50 degC: BU-410 Table 1"),
+        "makers allow 0.3-0.5 C; -20 to 50 degC: BU-410 Table 1", charge_cap_c=1.49),
     "gel": Ceiling(
         2.50, 0.30, -20.0, 50.0, _LITHIUM_NEVER,
         "from memory: gel maker limits stay below about 2.5 V/cell and 0.3 C; -20 to 50 degC: "
-        "BU-410 Table 1; common practice: gel is never equalized or desulfated"),
+        "BU-410 Table 1; common practice: gel is never equalized or desulfated",
+        charge_cap_c=1.49),
     "lifepo4": Ceiling(
         3.65, 1.0, 0.0, 45.0, _LITHIUM_NEVER,
         "cell handling guidelines (common practice): LFP absolute maximum 3.65 V/cell, at most "
@@ -268,11 +286,44 @@ def _published_ceilings(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
                f"{ceiling.charge_temperature_max_c:g} °C for {b.chemistry}")
 
 
+def _lead_acid_guards(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
+    """Every lead-acid bulk and absorption stage faults on an Ah cap (at most the published
+    :data:`CHARGE_CAP_SOURCE` multiple of C) and on a temperature rise; absorption also on a
+    current that rises at constant voltage (thermal runaway)."""
+    ceiling = CEILINGS.get(plan.battery.chemistry)
+    if _lithium(plan, env) or ceiling is None or ceiling.charge_cap_c is None:
+        return
+    capacity = plan.battery.capacity_ah
+    for index, stage in enumerate(plan.stages):
+        if stage.kind.value not in ("bulk", "absorption"):
+            continue
+        name = _name(index, stage)
+        guards = {e.kind.value: e.value for e in stage.exits if e.then == "fault"}
+        cap = guards.get("charge_above")
+        if cap is None:
+            yield f"{name} lacks its charge_above guard (fault)"
+        elif cap > ceiling.charge_cap_c * capacity + _EPS:
+            yield (f"{name} Ah cap {cap:.3f} Ah is above {ceiling.charge_cap_c} x "
+                   f"{capacity:g} Ah")
+        rise = guards.get("temperature_rise")
+        if rise is None:
+            yield f"{name} lacks its temperature_rise guard (fault)"
+        elif rise > TEMPERATURE_RISE_MAX_K + _EPS:
+            yield f"{name} temperature rise {rise:g} K is above {TEMPERATURE_RISE_MAX_K:g} K"
+        if stage.kind.value == "absorption":
+            rising = guards.get("current_rising")
+            if rising is None:
+                yield f"{name} lacks its current_rising guard (fault)"
+            elif rising > CURRENT_RISE_MAX_IT * capacity + _EPS:
+                yield (f"{name} current rise {rising:.4f} A is above {CURRENT_RISE_MAX_IT} "
+                       "It")
+
+
 #: The checks, in order; each takes the plan and the envelope and yields what it finds.
 CHECKS: tuple[Check, ...] = (
     _identity, _stage_kinds, _stage_numbers, _stage_envelope, _holds_below_charge,
     _temperature_interlocks, _electrical_interlocks, _lithium_stops, _cool_zone, _warm_zone,
-    _overcharge_stages, _published_ceilings,
+    _overcharge_stages, _published_ceilings, _lead_acid_guards,
 )
 
 

@@ -61,9 +61,9 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     InputError naming the field (exit 2), never an overflowed constant."""
     from chargeplan.firmware.faults import FAULTS, VOLTAGE_TRIP_FILTER_MS
     from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
-    from chargeplan.firmware.image import CHEMISTRY_CODES, require_layout_exits
+    from chargeplan.firmware.image import CHEMISTRY_CODES, GUARDS, require_known_exits
 
-    require_layout_exits(doc, "C header")
+    require_known_exits(doc, "C header")
     require_fit(doc, fix=PLAN_FIX)
     stages = []
     # the document's stages are the plan's after its pre-charge (a block of its own)
@@ -76,6 +76,7 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
             "voltage_exit": _exit(encoded, "voltage_reached", "voltage_mV"),
             "current_exit": _exit(encoded, "current_below", "current_mA"),
             "duration_exit": _exit(encoded, "duration", "duration_s"),
+            "guards": [_exit(encoded, condition, key)[0] for condition, key in GUARDS],
         })
     return str(_template().render(doc=doc, plan=plan, stages=stages, kinds=_KIND_MACROS,
                                   chemistries=CHEMISTRY_CODES, faults=FAULTS,

@@ -135,22 +135,30 @@ def _stage_block(stage: dict[str, Any]) -> bytes:
                        *slots, *guards)
 
 
-#: The exits the C header has a place for (image format 2 carries the guards too).
-LAYOUT_EXITS = frozenset({"voltage_reached", "current_below", "duration"})
+#: Every exit a stage's fixed layout (the image and the C header) has a place for.
+LAYOUT_EXITS = frozenset(condition for condition, _ in (*_EXITS, *_GUARDS))
+#: The fault guards' (condition, key) pairs, in slot order.
+GUARDS = _GUARDS
 
 
-def require_layout_exits(doc: dict[str, Any], what: str) -> None:
-    """Refuse a document whose stages carry fault guards the fixed layout cannot hold: a
-    firmware file that silently lost a stage's Ah cap or temperature stop is never written."""
+def require_known_exits(doc: dict[str, Any], what: str) -> None:
+    """Refuse a document whose stage carries an exit the fixed layout has no place for, or
+    one exit twice: a firmware file never silently loses an Ah cap or a temperature stop."""
     from chargeplan.errors import InputError
 
     for index, stage in enumerate(doc["stages"], 1):
-        extra = sorted({e["condition"] for e in stage["exits"]} - LAYOUT_EXITS)
-        if extra:
+        conditions = [e["condition"] for e in stage["exits"]]
+        extra = sorted(set(conditions) - LAYOUT_EXITS)
+        twice = sorted({c for c in conditions if conditions.count(c) > 1})
+        if extra or twice:
+            problem = (f"exits the {what} has no place for ({', '.join(extra)})" if extra
+                       else f"the exit {', '.join(twice)} twice")
             raise InputError(
-                f"stage {index} ({stage['kind']}) carries fault guards ({', '.join(extra)}) "
-                f"that the {what} has no place for", field="--format",
-                fix="write the JSON setpoint document (-f json), which carries them")
+                f"stage {index} ({stage['kind']}) carries {problem}",
+                field=f"stages[{index - 1}].exits",
+                fix="give each stage at most one exit of each kind (voltage_reached, "
+                    "current_below, duration, charge_above, current_rising, "
+                    "temperature_rise)")
 
 
 def encode(doc: dict[str, Any]) -> bytes:
@@ -160,6 +168,7 @@ def encode(doc: dict[str, Any]) -> bytes:
     """
     from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
 
+    require_known_exits(doc, "image")
     require_fit(doc, fix=PLAN_FIX)
     lock = doc["interlocks"]
     cool, warm = lock["cool_zone"], lock["warm_zone"]

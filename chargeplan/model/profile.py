@@ -86,6 +86,7 @@ TempDifference = _sourced(
     "SourcedTemperatureDifference", quantity("temperature_difference", ge=1, le=100), "K"
 )
 Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=1.0, le=3.0)], "")
+Power = _sourced("SourcedPower", Annotated[float, Field(gt=0.0, le=3.0)], "")
 Efficiency = _sourced("SourcedEfficiency", Annotated[float, Field(gt=0.5, le=1.0)], "")
 Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0)], "")
 Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")
@@ -254,6 +255,8 @@ class Physics(InputModel):
 
     ohmic_resistance: ResistanceCapacity  # type: ignore[valid-type]
     acceptance_resistance: ResistanceCapacity  # type: ignore[valid-type]
+    #: lead-acid: the acceptance conductance is (1 - soc)**p / R_acc; absent: Shepherd's form
+    acceptance_exponent: Power | None = None  # type: ignore[valid-type]
     resistance_doubling: TempDifference  # type: ignore[valid-type]
     coulombic_efficiency: Efficiency  # type: ignore[valid-type]
     peukert_exponent: Exponent  # type: ignore[valid-type]
@@ -270,6 +273,18 @@ class StorageLoss(InputModel):
     reference: Temp  # type: ignore[valid-type]
     doubling: TempDifference  # type: ignore[valid-type]
     top_up_below: Percent  # type: ignore[valid-type]
+
+
+class Termination(InputModel):
+    """Lead-acid: how a charge ends full in the cold, and the guards that stop one going
+    wrong (see engine/rules/termination.py). A user profile may only tighten these."""
+
+    tail_doubling: TempDifference  # type: ignore[valid-type]  # tail halves per K cooler
+    tail_current_min: CRate  # type: ignore[valid-type]  # the cold tail's floor
+    absorption_time_cold_max: Duration  # type: ignore[valid-type]  # stretched limit's ceiling
+    charge_cap: Factor  # type: ignore[valid-type]  # x (missing + 10 % of C); x C in a program
+    current_rise: CRate  # type: ignore[valid-type]  # at constant voltage, above the lowest
+    temperature_rise: TempDifference  # type: ignore[valid-type]  # above the stage's start
 
 
 class Envelope(InputModel):
@@ -299,6 +314,7 @@ class Profile(InputModel):
     rest_voltage: RestVoltage
     physics: Physics
     storage: StorageLoss
+    termination: Termination | None = None
     envelope: Envelope
     cautions: list[str] = Field(default_factory=list)
 
@@ -327,6 +343,9 @@ class Profile(InputModel):
             if t.compensation is not None:
                 raise ValueError("lithium voltages are not temperature compensated; "
                                  "remove temperature.compensation")
+            if self.termination is not None:
+                raise ValueError("termination is for lead-acid (lithium ends on its tail "
+                                 "current and its own protection); remove termination")
             for stage in ("equalization", "desulfation"):
                 if getattr(self, stage).possible:
                     raise ValueError(f"{stage} is never allowed for lithium; set allowed: "
@@ -339,6 +358,11 @@ class Profile(InputModel):
                              "battery at a cooler, higher voltage")
         elif self.physics.gassing is None:
             raise ValueError("lead-acid profiles need physics.gassing")
+        elif self.termination is None:
+            raise ValueError("lead-acid profiles need termination (the cold tail current, the "
+                             "Ah cap and the current- and temperature-rise guards)")
+        elif self.physics.acceptance_exponent is None:
+            raise ValueError("lead-acid profiles need physics.acceptance_exponent")
         return self
 
     def sourced_values(self) -> list[tuple[str, str, str]]:

@@ -1,25 +1,36 @@
 """An equivalent-circuit charge simulation of many batteries at once.
 
 Per cell, the battery is an open-circuit voltage that follows its state of charge
-(the profile's rested table), an ohmic resistance that rises in the cold, and a
-polarization resistance of Shepherd's form that rises as the cell fills,
-``R_acc * (soc + 0.05) / (1 - soc)`` (C. M. Shepherd, J. Electrochem. Soc. 112, 1965;
-the 0.05 keeps it finite when empty). Lead-acid adds a gassing side reaction that carries
-current without storing charge: exponential in voltage between the two published
-points of IEC 62485-2 (float and boost gas currents of a full battery), doubling per
-10 K. So lead-acid losses rise toward full and lithium's stay near 1 %::
+(the profile's rested table), an ohmic resistance, and an acceptance (polarization)
+conductance that falls as the cell fills. Both resistances follow temperature, doubling
+per the profile's ``resistance_doubling`` kelvin of cooling. The acceptance takes one of
+two forms:
+
+- lithium, Shepherd's form ``g = (1 - soc) / (R_acc * (soc + 0.05))`` (C. M. Shepherd,
+  J. Electrochem. Soc. 112, 1965; the 0.05 keeps it finite when empty);
+- lead-acid, a power of the charge still missing, ``g = (1 - soc)**p / R_acc``, whose two
+  parameters are calibrated to BU-403 (at 0.1 It the constant-current stage ends near
+  70 % charged, and at the topping voltage the current falls to a few per cent of C as the
+  battery becomes full).
+
+Lead-acid adds a side reaction (gassing, and in VRLA the oxygen cycle) that carries
+current without storing charge: exponential in voltage through IEC 62485-2 Table 1's two
+typical currents of a full battery (float and boost), doubling per 10 K. Its ``Igas``
+figures, which carry a safety factor of 5, stay with ventilation. The main reaction's
+coulombic efficiency sets the rest of the charge factor::
 
     V_terminal = x + I * R_ohm
-    I          = (x - OCV(soc)) * (1 - soc) / (R_acc * (soc + 0.05))  +  G * exp((x - V_g) / b)
+    I          = (x - OCV(soc)) * g(soc)  +  G * exp((x - V_g) / b)
     d soc / dt = eta * I_main / capacity
 
 Each battery runs its own stages: the charger is a current-limited voltage source
 (``I = min(I_set, I_cv)``), so constant current turns into constant voltage by
-itself, and a stage ends on its own exits (voltage reached, current below, duration).
-Float and a lead-acid storage hold have no exit; they are run for a day to give
-their standing current. All batteries step together as numpy arrays, each with its
-own time step (1 % of capacity per step, less near full); a finished battery stops contributing.
-One battery is the case N = 1.
+itself, and a stage ends on its own exits (voltage reached, current below, duration, and
+the charge-above guard, which counts every Ah put in since the charge began and stops the
+charge with a fault). Float and a lead-acid storage hold have no exit; they are run for a
+day to give their standing current. All batteries step together as numpy arrays, each with
+its own time step (1 % of capacity per step, less near full); a finished battery stops
+contributing. One battery is the case N = 1.
 """
 
 from __future__ import annotations
@@ -78,6 +89,8 @@ class CellParameters:
     gas_doubling_k: np.ndarray
     temperature_c: np.ndarray
     soc_start: np.ndarray  # a fraction, 0..1 (the plan's state_of_charge_pct / 100)
+    acceptance_exponent: np.ndarray | None = None  # lead-acid's power of (1 - soc);
+    #                                                 nan or None: Shepherd's form
 
 
 @dataclass
@@ -91,6 +104,8 @@ class StageArrays:
     exit_current_a: np.ndarray  # nan: no such exit
     exit_duration_s: np.ndarray  # inf: no such exit
     stop_after: np.ndarray  # bool: charging stops when this stage ends
+    exit_charge_ah: np.ndarray | None = None  # inf or None: no charge-above guard (Ah put in
+    #                                            since the charge began; a fault)
 
 
 @dataclass
@@ -103,6 +118,7 @@ class SimulationResult:
     end_current_a: np.ndarray
     end_soc: np.ndarray  # a fraction, 0..1
     held: np.ndarray  # bool: a stage without exits, run for HOLD_WINDOW_S
+    charge_capped: np.ndarray  # bool: the stage ended on its charge-above guard (a fault)
     converged: np.ndarray  # bool per battery
     series: dict[str, np.ndarray] = field(default_factory=dict)  # N = 1 with record=True
 
@@ -117,6 +133,8 @@ def simulate_charge(
     compacted again only when batteries finish.
     """
     n, width = s.present.shape
+    if s.exit_charge_ah is None:
+        s.exit_charge_ah = np.full((n, width), np.inf)
     if record and n != 1:
         raise ValueError("record=True follows one battery; simulate it alone")
     duration = np.zeros((n, width))
@@ -126,6 +144,7 @@ def simulate_charge(
     end_soc = np.full((n, width), np.nan)
     held_all = (~np.isfinite(s.exit_duration_s) & np.isnan(s.exit_voltage_v_cell)
                 & np.isnan(s.exit_current_a) & s.present)
+    capped_all = np.zeros((n, width), dtype=bool)
     converged = s.present[:, 0].copy()
     series: dict[str, list[float]] = {"time_s": [], "stage": [], "voltage_v": [],
                                       "current_a": [], "soc": []}
@@ -136,6 +155,10 @@ def simulate_charge(
     cold = np.exp2((25.0 - temperature) / p.resistance_doubling_k[rows])
     r = p.ohmic_ohm_ah[rows] / cap * cold
     r_acc = p.acceptance_ohm_ah[rows] / cap * cold
+    power = (np.full(rows.size, np.nan) if p.acceptance_exponent is None
+             else p.acceptance_exponent[rows].astype(float))
+    shepherd = np.isnan(power)
+    power = np.where(shepherd, 1.0, power)
     eta = p.coulombic_efficiency[rows].astype(float)
     gas = cap * p.gas_a_per_ah[rows] * np.exp2((temperature - 25.0) / p.gas_doubling_k[rows])
     vg = p.gas_voltage_v[rows].astype(float)
@@ -148,15 +171,16 @@ def simulate_charge(
     t_stage = np.zeros(rows.size)
     steps = np.zeros(rows.size, dtype=np.int64)
     acc = np.zeros((3, rows.size))  # this stage's seconds, Ah, Wh
+    charged = np.zeros(rows.size)  # Ah in since the charge began
     t_clock = 0.0
 
     def stage_params(r_: np.ndarray, k_: np.ndarray) -> list[np.ndarray]:
         return [s.voltage_v_cell[r_, k_], s.current_a[r_, k_], s.exit_voltage_v_cell[r_, k_],
                 s.exit_current_a[r_, k_],
                 np.where(held_all[r_, k_], HOLD_WINDOW_S, s.exit_duration_s[r_, k_]),
-                held_all[r_, k_], s.stop_after[r_, k_]]
+                held_all[r_, k_], s.stop_after[r_, k_], s.exit_charge_ah[r_, k_]]
 
-    v_set, i_set, exit_v, exit_i, exit_t, held, stop = stage_params(rows, stage)
+    v_set, i_set, exit_v, exit_i, exit_t, held, stop, exit_q = stage_params(rows, stage)
     any_gas = bool(np.any(gas > 0))
     warm = np.zeros(rows.size, dtype=bool)  # x_last / xc_last hold this stage's last roots
     x_last = xc_last = np.zeros(rows.size)
@@ -166,7 +190,9 @@ def simulate_charge(
         low = np.minimum(position.astype(np.int64), _GRID - 2)
         frac = position - low
         e = flat[base + low] * (1.0 - frac) + flat[base + low + 1] * frac
-        g_acc = np.maximum(1.0 - soc, 1e-12) / (r_acc * (soc + SHEPHERD_OFFSET))
+        missing = np.maximum(1.0 - soc, 1e-12)
+        g_acc = np.where(shepherd, missing / (r_acc * (soc + SHEPHERD_OFFSET)),
+                         missing ** power / r_acc)
 
         # constant voltage: the internal voltage x at which the branches take what R passes
         x = (v_set / r + e * g_acc) / (1.0 / r + g_acc)
@@ -197,10 +223,12 @@ def simulate_charge(
         i_main = np.clip((x - e) * g_acc, 0.0, current)
 
         # a stage ends on the state at the start of the step, before it would move on
+        capped = charged >= exit_q - 1e-9
         ended = (
             (v_term >= exit_v - 1e-9)  # a nan limit compares False
             | (current < exit_i)
             | (t_stage >= exit_t - 1e-9)
+            | capped
         )
         # a step moves SOC_STEP of capacity, and less near full, where acceptance changes
         # fastest; a hold stage may take long steps
@@ -208,6 +236,9 @@ def simulate_charge(
         dt = np.clip(step * cap * 3600.0 / np.maximum(i_main, 1e-9), DT_MIN_S,
                      np.where(held, HOLD_DT_MAX_S, DT_MAX_S))
         dt = np.where(ended, 0.0, np.minimum(dt, np.maximum(exit_t - t_stage, 1e-6)))
+        # ... and stops where the charge-above guard would trip
+        dt = np.minimum(dt, np.maximum(exit_q - charged, 1e-9) * 3600.0
+                        / np.maximum(current, 1e-9))
 
         if record and dt[0] > 0:
             series["time_s"].append(t_clock)
@@ -220,6 +251,7 @@ def simulate_charge(
         soc = np.minimum(soc + eta * i_main * dt / (cap * 3600.0), 1.0)
         acc[0] += dt
         acc[1] += current * dt / 3600.0
+        charged += current * dt / 3600.0
         acc[2] += current * v_term * cells * dt / 3600.0
         t_stage += dt
         steps += 1
@@ -233,12 +265,13 @@ def simulate_charge(
         energy[r_done, k_done] = acc[2, done]
         end_current[r_done, k_done] = current[done]
         end_soc[r_done, k_done] = soc[done]
+        capped_all[r_done, k_done] = capped[done]
         converged[rows[stuck & ~ended]] = False
         nxt = stage + 1
         has_next = np.zeros(rows.size, dtype=bool)
         inside = nxt < width
         has_next[inside] = s.present[rows[inside], nxt[inside]]
-        finished = stuck | (ended & (stop | held | ~has_next))
+        finished = stuck | (ended & (stop | held | capped | ~has_next))
         moving = ended & ~finished
         if moving.any():
             stage[moving] = nxt[moving]
@@ -247,16 +280,17 @@ def simulate_charge(
             steps[moving] = 0
             acc[:, moving] = 0.0
             fresh = stage_params(rows[moving], stage[moving])
-            for array, value in zip((v_set, i_set, exit_v, exit_i, exit_t, held, stop), fresh,
-                                    strict=True):
+            for array, value in zip((v_set, i_set, exit_v, exit_i, exit_t, held, stop, exit_q),
+                                    fresh, strict=True):
                 array[moving] = value
         if finished.any():
             keep = ~finished
-            rows, cap, r, r_acc, eta, gas, vg, b, cells, base = (
-                v[keep] for v in (rows, cap, r, r_acc, eta, gas, vg, b, cells, base))
+            rows, cap, r, r_acc, power, shepherd, eta, gas, vg, b, cells, base, charged = (
+                v[keep] for v in (rows, cap, r, r_acc, power, shepherd, eta, gas, vg, b, cells,
+                                  base, charged))
             soc, stage, t_stage, steps = soc[keep], stage[keep], t_stage[keep], steps[keep]
-            v_set, i_set, exit_v, exit_i, exit_t, held, stop = (
-                v[keep] for v in (v_set, i_set, exit_v, exit_i, exit_t, held, stop))
+            v_set, i_set, exit_v, exit_i, exit_t, held, stop, exit_q = (
+                v[keep] for v in (v_set, i_set, exit_v, exit_i, exit_t, held, stop, exit_q))
             acc = acc[:, keep]
             warm, x_last, xc_last = warm[keep], x_last[keep], xc_last[keep]
             any_gas = bool(np.any(gas > 0))
@@ -270,7 +304,7 @@ def simulate_charge(
         series["soc"].append(float(end_soc[0][~np.isnan(end_soc[0])][-1])
                              if np.any(~np.isnan(end_soc[0])) else series["soc"][-1])
     result = SimulationResult(duration, charge, energy, end_current, end_soc, held_all,
-                              converged)
+                              capped_all, converged)
     if record:
         result.series = {key: np.asarray(values) for key, values in series.items()}
     return result

@@ -7,4 +7,5 @@ from chargeplan.engine.rules import (  # noqa: F401  (imported to register)
     fit,
     interlock,
     stages,
+    termination,
 )

@@ -153,6 +153,7 @@ def _within_builtin(profile: Profile, file: str) -> None:
             over(f"{name}.current", stage.current.value, i_max, "It")
     builtin = load_builtin(profile.chemistry)
     _zones_within(profile, builtin, file)
+    _termination_within(profile, builtin, file)
     rest, hard_rest = profile.rest_voltage, load_builtin(profile.chemistry).rest_voltage
     over("rest_voltage.highest_plausible", rest.highest_plausible.value,
          hard_rest.highest_plausible.value, "V/cell")
@@ -241,6 +242,24 @@ def _zones_within(profile: Profile, builtin: Profile, file: str) -> None:
         if abs(ref - ref_hard) > 5:
             raise bad("compensation.reference", f"{ref:g} degC is far from the built-in "
                       f"{ref_hard:g} degC", "use the datasheet's reference, 20-30 degC")
+
+
+def _termination_within(profile: Profile, builtin: Profile, file: str) -> None:
+    """A user profile may tighten the lead-acid guards, never loosen them: its Ah cap,
+    current rise, temperature rise and cold absorption ceiling are at most the built-in's."""
+    mine, hard = profile.termination, builtin.termination
+    if mine is None or hard is None:
+        return
+    for name, unit in (("charge_cap", "x"), ("current_rise", "It"),
+                       ("temperature_rise", "K"), ("absorption_time_cold_max", "s")):
+        value, limit = getattr(mine, name).value, getattr(hard, name).value
+        if value > limit + 1e-9:
+            raise InputError(
+                f"{value:g} {unit} is above the built-in {profile.chemistry} "
+                f"{limit:g} {unit}: a user profile may only tighten the guards",
+                file=file, field=f"termination.{name}",
+                fix=f"use {limit:g} {unit} or less",
+            )
 
 
 def load_profile_file(path: str | Path) -> Profile:

@@ -281,8 +281,9 @@ def test_image_carries_the_program_and_the_guards():
     from chargeplan.firmware import image
 
     doc = _doc()
-    doc["stages"][1]["exits"].append({"condition": "current_rising", "current_mA": 500,
-                                      "then": "fault"})
+    # every lead-acid charge carries its guards (rule CP610): they must survive the image
+    conditions = {e["condition"] for e in doc["stages"][1]["exits"]}
+    assert {"charge_above", "current_rising", "temperature_rise"} <= conditions
     back = image.decode(image.encode(_signed(doc)))
     for key in ("precharge", "restart", "faults", "hysteresis", "stages"):
         got = back[key] if key != "stages" else [

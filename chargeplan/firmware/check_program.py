@@ -22,6 +22,15 @@ _PROGRAM_KINDS = frozenset({"bulk", "absorption", "float", "storage_hold"})
 #: (a flat battery must be able to charge), at most twice it (lead-acid returns at most
 #: 1.10-1.30 Ah per Ah taken out, common practice: a cap above 2x caps nothing).
 _CAP_RANGE = (1.0, 2.0)
+#: A lead-acid program's guards, the loosest the checker passes (common practice, reasoning in
+#: DEVELOPERS.md "Termination"): a program knows no state, so its Ah cap is a multiple of the
+#: rated capacity, at most 1.5 C flooded and 1.35 C VRLA (the published charge factors,
+#: flooded 1.10-1.30 and VRLA 1.02-1.15, with a margin; a user profile may only tighten
+#: them); a temperature rise of at most 10 K; a current rise at constant voltage of at most
+#: 1 % of C (BU-403: a healthy battery's current falls at constant voltage).
+_LEAD_CAP_IT = {"flooded": 1.5, "agm": 1.35, "gel": 1.35}
+_RISE_MAX_DK = 100
+_CURRENT_RISE_MAX_IT = 0.01
 #: The longest a voltage or current trip may be filtered (common practice: seconds).
 _FILTER_MAX_S = 10
 #: The widest temperature resume margin (0.1 K) that still leaves a usable window.
@@ -100,6 +109,42 @@ def caps_on_rated_capacity(doc: Doc) -> Iterator[str]:
                     low * capacity <= e["charge_mAh"] <= high * capacity):
                 yield (f"P405: stage {n} Ah cap {e['charge_mAh']} mAh is outside {low:g}-"
                        f"{high:g} x the rated {capacity} mAh")
+
+
+def lead_acid_guards(doc: Doc) -> Iterator[str]:
+    """P410: every lead-acid bulk and absorption stage faults on an Ah cap and a temperature
+    rise, and absorption on a current that rises at constant voltage, each within bounds."""
+    chemistry = doc["battery"]["chemistry"]
+    cap_it = _LEAD_CAP_IT.get(chemistry)
+    if cap_it is None:
+        return
+    capacity = doc["battery"]["capacity_mAh"]
+    for n, stage in enumerate(doc["stages"], 1):
+        if stage["kind"] not in ("bulk", "absorption"):
+            continue
+        name = f"stage {n} ({stage['kind']})"
+        guards = {e["condition"]: e for e in stage["exits"] if e["then"] == "fault"}
+        cap = guards.get("charge_above")
+        if cap is None:
+            yield f"P410: {name} has no charge_above guard: a charge that goes to gas runs on"
+        elif cap["charge_mAh"] > cap_it * capacity:
+            yield (f"P410: {name} Ah cap {cap['charge_mAh']} mAh is above {cap_it:g} x the "
+                   f"rated {capacity} mAh for {chemistry}")
+        rise = guards.get("temperature_rise")
+        if rise is None:
+            yield f"P410: {name} has no temperature_rise guard"
+        elif rise["temperature_rise_dK"] > _RISE_MAX_DK:
+            yield (f"P410: {name} temperature rise {rise['temperature_rise_dK']} dK is above "
+                   f"{_RISE_MAX_DK} dK (10 K)")
+        if stage["kind"] != "absorption":
+            continue
+        rising = guards.get("current_rising")
+        if rising is None:
+            yield (f"P410: {name} has no current_rising guard: thermal runaway at constant "
+                   "voltage would not be stopped")
+        elif rising["current_mA"] > _CURRENT_RISE_MAX_IT * capacity:
+            yield (f"P410: {name} current rise {rising['current_mA']} mA is above "
+                   f"{_CURRENT_RISE_MAX_IT:g} x the rated {capacity} mAh")
 
 
 #: Lead-acid goes back to bulk from float only when it cannot hold about 2.08-2.12 V/cell
@@ -189,6 +234,7 @@ PROGRAM_CHECKS: tuple[Callable[[Doc], Iterator[str]], ...] = (
     faults_complete,
     connection_thresholds,
     hysteresis_window,
+    lead_acid_guards,
 )
 
 

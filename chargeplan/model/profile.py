@@ -360,7 +360,8 @@ class Profile(InputModel):
             raise ValueError("lead-acid profiles need physics.gassing")
         elif self.termination is None:
             raise ValueError("lead-acid profiles need termination (the cold tail current, the "
-                             "Ah cap and the current- and temperature-rise guards)")
+                             "Ah cap and the current- and temperature-rise guards): copy the "
+                             "built-in profile's termination block")
         elif self.physics.acceptance_exponent is None:
             raise ValueError("lead-acid profiles need physics.acceptance_exponent")
         return self

@@ -158,11 +158,3 @@ def test_lithium_knee_calibration():
     result = simulate_charge(params, stages)
     bulk = [s.kind.value for s in plan.stages].index("bulk")
     assert result.end_soc[0, bulk] == pytest.approx(0.70, abs=0.07)
-
-
-def test_float_standing_current_matches_published_gas_current():
-    # IEC 62485-2 cl. 7: Igas of a full VRLA battery on float (2.27 V/cell) is 1 mA/Ah
-    plan = _plan("agm", soc="100 %")
-    estimate_plans([plan])
-    standing = plan.stage("float").estimate.end_current_a
-    assert standing == pytest.approx(0.001 * 100, rel=0.35)

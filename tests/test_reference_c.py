@@ -250,7 +250,12 @@ def test_over_temperature_pauses_then_resumes_after_the_hysteresis(library, chem
     doc, c, py = _both(library, BATTERIES[chemistry])
     lock, margin = doc["interlocks"], doc["hysteresis"]["temperature_margin_dK"]
     v = _connect_mV(doc)
-    t_ok, hot = doc["planned_temperature_dC"], lock["charge_temperature_max_dC"] + 1
+    hot = lock["charge_temperature_max_dC"] + 1
+    # a battery that starts warm (a hot room): the rise to over-temperature stays inside
+    # the lead-acid temperature-rise guard, which would otherwise latch first (tested below)
+    rise = _exit(doc["stages"][0], "temperature_rise", "temperature_rise_dK")
+    t_ok = doc["planned_temperature_dC"] if rise is None else max(
+        doc["planned_temperature_dC"], hot - rise)
     back = lock["charge_temperature_max_dC"] - margin
     outs = _run_trace(c, py, [(0, v, 0, t_ok, 0), (10, v, 100, hot, 0), (20, v, 0, back + 1, 0),
                               (30, v, 0, back, 0)])
@@ -288,13 +293,77 @@ def test_a_timer_expiry_faults(library, chemistry):
     doc, c, py = _both(library, BATTERIES[chemistry])
     bulk = doc["stages"][0]
     v = bulk["voltage_mV"] - 200 * doc["cells_in_series"]  # never reaches its exit
-    i = bulk["current_mA"]
     timer = bulk["timer_s"]
+    # a weak supply: the current that keeps the charge put in under the Ah cap, if there
+    # is one, so that the timer is what ends the stage (the cap is tested below)
+    cap = _exit(bulk, "charge_above", "charge_mAh")
+    i = bulk["current_mA"] if cap is None else min(bulk["current_mA"],
+                                                   cap * 3600 * 9 // (10 * timer))
     outs = _run_trace(c, py, [(0, v, 0, 250, 0), (timer - 1, v, i, 250, 0),
                               (timer, v, i, 250, 0)])
     assert outs[1][3] == 0 and outs[1][2] == 3
-    # the charge put in may trip its Ah cap first, if there is one: both are latches
-    assert outs[2][3] in (FAULT_CODES["stage_timer"], FAULT_CODES["charge_above"])
+    assert outs[2][3] == FAULT_CODES["stage_timer"]
+
+
+LEAD_ACID = ["agm", "flooded", "gel"]
+
+
+@pytest.mark.parametrize("chemistry", LEAD_ACID)
+def test_the_ah_cap_latches(library, chemistry):
+    """Charge put in beyond the cap (a shorted cell never reaching its voltage) latches
+    charge_above, in bulk and in absorption, and stays latched."""
+    doc, c, py = _both(library, BATTERIES[chemistry])
+    bulk = doc["stages"][0]
+    cap = _exit(bulk, "charge_above", "charge_mAh")
+    assert cap is not None and cap == _exit(doc["stages"][1], "charge_above", "charge_mAh")
+    v = bulk["voltage_mV"] - 200 * doc["cells_in_series"]
+    i = bulk["current_mA"]
+    over_s = cap * 3600 // i + 20  # the time at this current that puts in the cap, and more
+    assert over_s < bulk["timer_s"]
+    trace = [(0, v, 0, 250, 0), *[(s, v, i, 250, 0) for s in range(10, over_s - 40, 600)],
+             (over_s, v, i, 250, 0), (over_s + 10, v, 0, 250, 0)]
+    outs = _run_trace(c, py, trace)
+    assert all(o[3] == 0 for o in outs[:-2])
+    assert outs[-2] == outs[-1] == (0, 0, 0, FAULT_CODES["charge_above"])
+
+
+@pytest.mark.parametrize("chemistry", LEAD_ACID)
+def test_current_rising_at_constant_voltage_latches(library, chemistry):
+    """In absorption the current falls; a rise above its lowest by more than the guard
+    (thermal runaway sign) latches current_rising; a rise within it does not."""
+    doc, c, py = _both(library, BATTERIES[chemistry])
+    absorb = doc["stages"][1]
+    v_abs = absorb["voltage_mV"]
+    rise = _exit(absorb, "current_rising", "current_mA")
+    tail = _exit(absorb, "current_below", "current_mA")
+    low = tail + 2 * rise + 50  # above the tail: absorption goes on
+    trace = [(0, _connect_mV(doc), 0, 250, 0), (10, v_abs, 1000, 250, 0),
+             (20, v_abs, low + rise, 250, 0), (30, v_abs, low, 250, 0),
+             (40, v_abs, low + rise, 250, 0), (50, v_abs, low + rise + 1, 250, 0)]
+    outs = _run_trace(c, py, trace)
+    assert outs[2][2] == 4 and outs[3][3] == 0 and outs[4][3] == 0  # within the guard
+    assert outs[5] == (0, 0, 0, FAULT_CODES["current_rising"])
+
+
+@pytest.mark.parametrize("chemistry", LEAD_ACID)
+def test_a_temperature_rise_latches(library, chemistry):
+    """A battery that warms by more than the guard within a stage, still inside the charge
+    window, latches temperature_rise (a pause would restart the runaway)."""
+    doc, c, py = _both(library, BATTERIES[chemistry])
+    rise = _exit(doc["stages"][0], "temperature_rise", "temperature_rise_dK")
+    t0 = 150
+    assert t0 + rise + 1 < doc["interlocks"]["charge_temperature_max_dC"]
+    v = _connect_mV(doc)
+    i = doc["stages"][0]["current_mA"]
+    outs = _run_trace(c, py, [(0, v, 0, t0, 0), (10, v, i, t0 + rise, 0),
+                              (20, v, i, t0 + rise + 1, 0), (30, v, 0, t0, 0)])
+    assert outs[1][3] == 0
+    assert outs[2] == outs[3] == (0, 0, 0, FAULT_CODES["temperature_rise"])
+
+
+def _exit(stage, condition, field):
+    """The value of a stage's exit of this kind, or None."""
+    return next((e[field] for e in stage["exits"] if e["condition"] == condition), None)
 
 
 def test_precharge_then_restart(library):

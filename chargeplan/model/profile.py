@@ -255,7 +255,8 @@ class Physics(InputModel):
 
     ohmic_resistance: ResistanceCapacity  # type: ignore[valid-type]
     acceptance_resistance: ResistanceCapacity  # type: ignore[valid-type]
-    #: lead-acid: the acceptance conductance is (1 - soc)**p / R_acc; absent: Shepherd's form
+    #: the acceptance conductance is (1 - soc)**p / (R_acc * (soc + 0.05)); absent: p = 1
+    #: (Shepherd's form, lithium); lead-acid gives its own p
     acceptance_exponent: Power | None = None  # type: ignore[valid-type]
     resistance_doubling: TempDifference  # type: ignore[valid-type]
     coulombic_efficiency: Efficiency  # type: ignore[valid-type]

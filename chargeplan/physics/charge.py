@@ -3,15 +3,14 @@
 Per cell, the battery is an open-circuit voltage that follows its state of charge
 (the profile's rested table), an ohmic resistance, and an acceptance (polarization)
 conductance that falls as the cell fills. Both resistances follow temperature, doubling
-per the profile's ``resistance_doubling`` kelvin of cooling. The acceptance takes one of
-two forms:
-
-- lithium, Shepherd's form ``g = (1 - soc) / (R_acc * (soc + 0.05))`` (C. M. Shepherd,
-  J. Electrochem. Soc. 112, 1965; the 0.05 keeps it finite when empty);
-- lead-acid, a power of the charge still missing, ``g = (1 - soc)**p / R_acc``, whose two
-  parameters are calibrated to BU-403 (at 0.1 It the constant-current stage ends near
-  70 % charged, and at the topping voltage the current falls to a few per cent of C as the
-  battery becomes full).
+per the profile's ``resistance_doubling`` kelvin of cooling. The acceptance follows a power
+of Shepherd's form, ``g = (1 - soc)**p / (R_acc * (soc + 0.05))`` (C. M. Shepherd,
+J. Electrochem. Soc. 112, 1965, where p = 1; the 0.05 keeps it finite when empty).
+Lithium takes Shepherd's p = 1. Lead-acid gives its own p, below 1: with R_acc it is
+calibrated to BU-403 (at 0.1 It the
+constant-current stage ends near 70 % charged, a higher current reaches the voltage sooner,
+and at the topping voltage the current falls to the tail current as the battery becomes
+full). A full battery accepts nothing more: what still flows is the side reaction.
 
 Lead-acid adds a side reaction (gassing, and in VRLA the oxygen cycle) that carries
 current without storing charge: exponential in voltage through IEC 62485-2 Table 1's two
@@ -155,10 +154,8 @@ def simulate_charge(
     cold = np.exp2((25.0 - temperature) / p.resistance_doubling_k[rows])
     r = p.ohmic_ohm_ah[rows] / cap * cold
     r_acc = p.acceptance_ohm_ah[rows] / cap * cold
-    power = (np.full(rows.size, np.nan) if p.acceptance_exponent is None
-             else p.acceptance_exponent[rows].astype(float))
-    shepherd = np.isnan(power)
-    power = np.where(shepherd, 1.0, power)
+    power = (np.ones(rows.size) if p.acceptance_exponent is None
+             else np.nan_to_num(p.acceptance_exponent[rows].astype(float), nan=1.0))
     eta = p.coulombic_efficiency[rows].astype(float)
     gas = cap * p.gas_a_per_ah[rows] * np.exp2((temperature - 25.0) / p.gas_doubling_k[rows])
     vg = p.gas_voltage_v[rows].astype(float)
@@ -190,9 +187,10 @@ def simulate_charge(
         low = np.minimum(position.astype(np.int64), _GRID - 2)
         frac = position - low
         e = flat[base + low] * (1.0 - frac) + flat[base + low + 1] * frac
-        missing = np.maximum(1.0 - soc, 1e-12)
-        g_acc = np.where(shepherd, missing / (r_acc * (soc + SHEPHERD_OFFSET)),
-                         missing ** power / r_acc)
+        # a full battery accepts nothing: the floor keeps the constant-current root finite,
+        # and is small enough that a small power (missing ** 0.1) of it is nothing too
+        missing = np.maximum(1.0 - soc, 1e-200)
+        g_acc = missing ** power / (r_acc * (soc + SHEPHERD_OFFSET))
 
         # constant voltage: the internal voltage x at which the branches take what R passes
         x = (v_set / r + e * g_acc) / (1.0 / r + g_acc)
@@ -285,8 +283,8 @@ def simulate_charge(
                 array[moving] = value
         if finished.any():
             keep = ~finished
-            rows, cap, r, r_acc, power, shepherd, eta, gas, vg, b, cells, base, charged = (
-                v[keep] for v in (rows, cap, r, r_acc, power, shepherd, eta, gas, vg, b, cells,
+            rows, cap, r, r_acc, power, eta, gas, vg, b, cells, base, charged = (
+                v[keep] for v in (rows, cap, r, r_acc, power, eta, gas, vg, b, cells,
                                   base, charged))
             soc, stage, t_stage, steps = soc[keep], stage[keep], t_stage[keep], steps[keep]
             v_set, i_set, exit_v, exit_i, exit_t, held, stop, exit_q = (

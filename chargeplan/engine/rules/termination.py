@@ -18,6 +18,10 @@ CAP_MARGIN_FRACTION = 0.10
 #: The stages of a lead-acid charge that carry the guards (the conditioning overcharges
 #: carry their own, rule CP203 and CP205).
 GUARDED = (StageKind.BULK, StageKind.ABSORPTION)
+#: CP310 tells the user when the cold moves the tail current below this share of its value
+#: at the reference temperature (or stretches the time limit by its inverse); smaller
+#: changes stay in the plan's derivation.
+MATERIAL_SHARE = 0.75
 
 
 @rule("CP310", "termination.cold", source="BU-410 Charging at High and Low Temperatures (a "
@@ -39,9 +43,12 @@ def termination_cold(ctx: Context) -> None:
     share = 2.0 ** ((t - ref) / term.tail_doubling.value)
     floor_a = term.tail_current_min.value * ctx.capacity_ah
     exits: list[Exit] = []
+    changes: list[str] = []
     for e in absorption.exits:
         if e.kind == ExitKind.CURRENT_BELOW:
             tail = min(e.value, max(e.value * share, floor_a))
+            if tail < MATERIAL_SHARE * e.value:
+                changes.append(f"at {amps(tail)} instead of {amps(e.value)}")
             if tail < e.value:
                 ctx.note("absorption.exit", f"tail {amps(tail)} = {amps(e.value)} x 2^(("
                                             f"{num(t, 1)} - {num(ref, 1)}) K / "
@@ -52,15 +59,18 @@ def termination_cold(ctx: Context) -> None:
         elif e.kind == ExitKind.DURATION:
             ceiling = term.absorption_time_cold_max.value
             limit = max(e.value, min(e.value / share, ceiling))
+            if limit > e.value / MATERIAL_SHARE:
+                changes.append(f"within {duration(limit)} instead of {duration(e.value)}")
             if limit > e.value:
                 ctx.note("absorption.duration", f"{duration(limit)} = {duration(e.value)} / "
                                                 f"{num(share, 2)}, at most {duration(ceiling)}")
             e = Exit(e.kind, limit, e.then)
         exits.append(e)
     absorption.exits = exits
-    ctx.info(f"at {celsius(t)} the battery accepts charge slowly: absorption ends at a lower "
-             "tail current or a longer time limit, so it is full before float; charging it "
-             "warmer is quicker")
+    if changes:  # a few kelvin below the reference change little: said in the derivation
+        ctx.info(f"at {celsius(t)} the battery accepts charge slowly: absorption ends "
+                 f"{' or '.join(changes)}, so it is full before float; charging it warmer "
+                 "is quicker")
 
 
 @rule("CP610", "guards.lead_acid", source="common practice; BU-403 (a VRLA battery whose "

@@ -58,13 +58,15 @@ def test_lamp_facts(tmp_path, write_yaml):
 
 @pytest.mark.parametrize("chemistry", ["flooded", "agm", "gel"])
 def test_lead_acid_needs_more_charge_back(chemistry):
-    # lead-acid references: Ah in per Ah out above 1 (VRLA 1.04-1.12, flooded 1.15-1.30)
+    # common practice (general lead-acid references): Ah in per Ah stored, flooded
+    # 1.10-1.30, VRLA 1.02-1.15, here on the profile's own bulk current from 50 %
+    low, high = {"flooded": (1.10, 1.30)}.get(chemistry, (1.02, 1.15))
     plan = _plan(chemistry)
     result = estimate_plans([plan])
     timed = [i for i, s in enumerate(plan.stages) if not s.estimate.per_day]
     charge_in = sum(plan.stages[i].estimate.charge_ah for i in timed)
     stored = (result.end_soc[0, timed[-1]] - 0.50) * 100
-    assert charge_in / stored > 1.03
+    assert low <= charge_in / stored <= high
 
 
 @pytest.mark.parametrize(("chemistry", "extra"), [("lifepo4", {}), ("nmc", NMC)])
@@ -144,17 +146,3 @@ def test_a_stage_that_cannot_finish_is_reported_not_run_for_years():
     if any("would stop with a fault" in f.message for f in plan.findings):
         bulk = plan.stage("bulk")
         assert bulk.estimate.duration_s == pytest.approx(bulk.timer_s)
-
-
-def test_lithium_knee_calibration():
-    # BU-409 (from memory), the profile's calibration point: at 1 C the constant-voltage
-    # limit is reached near 70 % charge
-    from chargeplan.estimate import arrays_for
-    from chargeplan.physics.charge import simulate_charge
-
-    plan = _plan("nmc", soc="0 %", **NMC)
-    params, stages = arrays_for([plan])
-    stages.current_a[:] = 100.0  # 1 It on 100 Ah, in the model only (no plan is made)
-    result = simulate_charge(params, stages)
-    bulk = [s.kind.value for s in plan.stages].index("bulk")
-    assert result.end_soc[0, bulk] == pytest.approx(0.70, abs=0.07)

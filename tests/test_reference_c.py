@@ -381,3 +381,25 @@ def test_precharge_then_restart(library):
              (40 + restart["filter_s"], restart["voltage_mV"] - 1, 0, 250, 0)]
     outs = _run_trace(c, py, trace)
     assert [o[2] for o in outs] == [1, 3, 4, 0, 0, 3]
+
+
+@pytest.mark.parametrize("chemistry", sorted(BATTERIES))
+def test_the_state_machine_charges_as_the_temperature_table_says(library, chemistry):
+    """Firmware may look setpoints up in the document's temperature table (each row the
+    plan made again at that temperature) or compute them as the reference does (the
+    compensation slope, its range, the clamp and the zones). At every row both give the
+    same charge voltage and current limit (the C, at connection) and hold voltage (the
+    Python reading, equal to the C step for step)."""
+    doc = encode(program_plan(BatteryFile.model_validate(BATTERIES[chemistry]),
+                              estimate=False))
+    rows = doc["temperature_table"]["rows"]
+    assert len(rows) >= 5
+    hold = next((s for s in doc["stages"] if s["kind"] in ("float", "storage_hold")), None)
+    for row in rows:
+        t = row["temperature_dC"]
+        c = CRunner(library, image.encode(doc))
+        target, limit, stage, fault = c.step(0, _connect_mV(doc), 0, t, 0)
+        assert (fault, stage) == (0, 3), row
+        assert (target, limit) == (row["charge_voltage_mV"], row["current_max_mA"]), row
+        if row["hold_voltage_mV"] is not None:
+            assert ProgramRunner(doc)._target_mV(hold, t) == row["hold_voltage_mV"], row

@@ -391,7 +391,10 @@ def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) ->
         close = difflib.get_close_matches(str(loc[-1])[:QUOTE_MAX], known, n=1)
         message = "is not a known field"
         fix = f"did you mean '{close[0]}'?" if close else "remove it or check its spelling"
-        if known and not close:
+        if str(loc[-1])[:1].isdigit():  # {min: -18,5 degC} reads as min: -18 and "5 degC"
+            fix = ("a decimal comma inside { } splits the value in two; write a decimal "
+                   "point (-18.5, not -18,5)")
+        elif known and not close:
             fix += f" (known here: {', '.join(known)})"
     elif "; " in message:
         message, fix = message.split("; ", 1)

@@ -103,6 +103,24 @@ def test_a_night_shift_and_closed_days():
         assert start.weekday() in (0, 1) and (start.hour >= 22 or start.hour < 6)
 
 
+def test_a_conditioning_overcharge_ends_while_someone_is_there_even_unattended():
+    # CP203 / CP205: desulfation and equalization need someone nearby to the end, so an
+    # unattended channel does not take one past closing; one that cannot end inside any
+    # working span is not scheduled, and says why
+    channel = {**PROBE, "unattended": True}
+    full = plan_bench(_bench([_battery(1, "flooded", "24 Ah", "95 %", desulfate=True),
+                              _battery(2, "flooded", "24 Ah", "95 %", equalize=True)],
+                             [{"name": "U", **channel}]))
+    assert len(full.jobs) == 2
+    for job in full.jobs:
+        span = full.calendar.span_at(job.start_min)
+        assert span is not None and job.end_min <= full.calendar.closes[span] + 1e-6
+    short = plan_bench(_bench([_battery(1, "flooded", "60 Ah", "20 %", desulfate=True)],
+                              [{"name": "U", **channel}],
+                              hours={"start": "08:00", "end": "12:00"}))
+    assert not short.jobs and "needs a person there" in short.unscheduled[0]
+
+
 def test_unattended_channel_runs_past_closing_but_nothing_starts_at_night():
     # the queue on an unattended channel: the next battery waits for the next opening
     channel = {**PROBE, "unattended": True, "max_current": "2 A"}
@@ -308,13 +326,23 @@ def test_equalization_is_requested_per_battery_and_its_gas_counted():
     assert asked.options[(0, 0)].airflow_m3_per_h > plain.options[(0, 0)].airflow_m3_per_h
 
 
-def test_a_request_the_engine_cannot_take_is_an_entry_mistake():
-    from chargeplan.errors import InputError
-    from chargeplan.model.battery import State
-
-    bench = _bench([_battery(1, "flooded", "60 Ah", "30 %", desulfate=True)])
-    if "desulfate" in State.model_fields:
-        assert plan_bench(bench).jobs
+@pytest.mark.parametrize(("chemistry", "asked", "planned"), [
+    ("flooded", {"desulfate": True}, "desulfation"),
+    ("flooded", {"equalize": True}, "equalization"),
+    ("agm", {"desulfate": True}, None),  # only with the maker's permission (an override)
+    ("gel", {"desulfate": True}, None),  # never (the gel envelope forbids it)
+    ("gel", {"equalize": True}, None),
+])
+def test_a_workshops_request_reaches_the_engine_which_still_decides(chemistry, asked,
+                                                                     planned):
+    # IEEE 450 / BU-804b (the engine's CP203 and CP205): a conditioning overcharge follows
+    # absorption on a flooded battery; AGM needs the maker's permission; gel never
+    channels = [{"name": "A", **PROBE, "unattended": True}]
+    plan = plan_bench(_bench([_battery(1, chemistry, "60 Ah", "95 %", **asked)], channels))
+    charge = plan.plans[(0, 0)]
+    kinds = [s.kind.value for s in charge.stages]
+    if planned:
+        assert kinds.index(planned) == kinds.index("absorption") + 1
     else:
-        with pytest.raises(InputError, match=r"batteries\[0\]\.desulfate"):
-            plan_bench(bench)
+        assert not {"desulfation", "equalization"} & set(kinds)
+        assert any("asked for but left out" in f.message for f in charge.findings)

@@ -294,3 +294,26 @@ def test_image_carries_the_program_and_the_guards():
             for s in doc[key]]
         assert got == want, key
     assert back["version"] == 4 and back["battery"]["nominal_voltage_mV"] == 12_000
+
+
+@pytest.mark.parametrize("asked", ["desulfation", "equalization"])
+def test_a_requested_conditioning_stage_stays_out_of_the_program(asked, tmp_path, write_yaml):
+    """IEEE 450 / BU-804b (CP203, CP205): a conditioning overcharge needs someone present,
+    so a program (which runs on its own) carries the normal charge and says where the asked
+    stage went; the printed plan still has it. The CLI never exits 3 on such a file."""
+    from typer.testing import CliRunner
+
+    from chargeplan.cli import app
+
+    data = battery(battery={"chemistry": "flooded", "capacity": "60 Ah"},
+                   state={"state_of_charge": "95 %"})
+    data["request"] = [asked]
+    program = program_plan(BatteryFile.model_validate(data))
+    kinds = [s.kind.value for s in program.stages]
+    assert asked not in kinds and kinds[:2] == ["bulk", "absorption"]
+    assert any(asked in f.message and "printed plan" in f.message for f in program.findings)
+    assert asked in [s.kind.value for s in plan_of(data).stages]
+    path = write_yaml(data)
+    result = CliRunner().invoke(app, ["plan", str(path), "-f", "json",
+                                      "-o", str(tmp_path / "p.json")])
+    assert result.exit_code == 0, result.output

@@ -20,7 +20,14 @@ from dataclasses import dataclass
 from chargeplan.errors import InternalError
 from chargeplan.firmware.faults import VOLTAGE_TRIP_FILTER_MS
 from chargeplan.model.battery import BatteryFile, State
-from chargeplan.plan import HIGH_VOLTAGE_STAGES, ChargePlan, ExitKind, StageKind
+from chargeplan.plan import (
+    HIGH_VOLTAGE_STAGES,
+    ChargePlan,
+    ExitKind,
+    Finding,
+    Severity,
+    StageKind,
+)
 from chargeplan.profiles import ProfileSet
 
 __all__ = [
@@ -133,8 +140,15 @@ def program_plan(
     # the file's own reading is still judged: one that no rested battery of this kind can
     # give (reversed leads, a dead cell, more cells than the file says) is refused
     derive_state(battery_file, profiles=profile_set, file=file)
-    stateless = battery_file.model_copy(update={"state": State()})
+    # a program is the normal charge: a requested desulfation or equalization is run by a
+    # person, from the printed plan, never by the program on its own
+    stateless = battery_file.model_copy(update={"state": State(), "request": []})
     plan = plan_charge(stateless, profiles=profile_set, file=file)
+    for asked in battery_file.request or []:
+        plan.findings.append(Finding(
+            Severity.INFO, "CP203" if asked == "desulfation" else "CP205",
+            f"{asked} asked for: a charge program carries the normal charge only; run the "
+            f"{asked} from the printed plan (chargeplan plan), with someone present"))
     if any(stage.kind in HIGH_VOLTAGE_STAGES for stage in plan.stages):
         raise InternalError("a program without state got an operator-requested stage")
     pre = plan.stage(StageKind.PRECHARGE)

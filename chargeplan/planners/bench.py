@@ -21,7 +21,7 @@ from chargeplan.errors import InputError
 from chargeplan.loading import read_mapping, validate
 from chargeplan.model.bench import BenchBattery, BenchFile
 from chargeplan.model.profile import Profile
-from chargeplan.plan import ChargePlan, ExitKind, Finding, Severity
+from chargeplan.plan import HIGH_VOLTAGE_STAGES, ChargePlan, ExitKind, Finding, Severity
 from chargeplan.planners.bench_calendar import HORIZON_DAYS, WorkCalendar, work_calendar
 from chargeplan.planners.bench_intake import (
     CHARGER_EFFICIENCY,
@@ -153,11 +153,18 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                                  "channel with a larger current")]
                 continue
             got.minutes = total[0] / 60.0
-            if got.minutes > longest + 1e-6 and not channel.unattended:
-                row[c] = [Misfit("bench.span", f"its charge takes {got.minutes / 60:.1f} h, "
-                                 f"longer than the longest working span ({longest / 60:.1f} h) "
-                                 "on a channel that may not run unattended: use an unattended "
-                                 "channel or one with a larger current")]
+            watched = _watched(got.plan)
+            if got.minutes > longest + 1e-6 and (watched or not channel.unattended):
+                if watched:
+                    text = (f"{got.minutes / 60:.1f} h with {watched} (needs a person there), "
+                            f"past every {longest / 60:.1f} h working span: run the {watched} "
+                            "on a later charge of its own, or on longer working hours")
+                else:
+                    text = (f"its charge takes {got.minutes / 60:.1f} h, longer than the "
+                            f"longest working span ({longest / 60:.1f} h) on a channel that "
+                            "may not run unattended: use an unattended channel or one with a "
+                            "larger current")
+                row[c] = [Misfit("bench.span", text)]
                 continue
             top = max(got.plan.stages, key=lambda s: s.voltage_v * s.current_a)
             got.power_w = top.voltage_v * top.current_a / CHARGER_EFFICIENCY
@@ -166,6 +173,12 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                     got.plan, found[i],
                     channel_may_equalize=not channel.can_disable_high_voltage_stages,
                     channel_max_current_a=channel.max_current_a)
+
+
+def _watched(plan: ChargePlan) -> str | None:
+    """The stage of a charge that needs someone present to the end (desulfation or
+    equalization: CP203 and CP205 say "stay nearby"), or None."""
+    return next((s.kind.value for s in plan.stages if s.kind in HIGH_VOLTAGE_STAGES), None)
 
 
 def _estimate(fit: list[list[Option | list[Misfit]]], profiles: ProfileSet) -> None:
@@ -304,7 +317,7 @@ def _scheduled(intake: _Intake, now: dt.datetime | None, progress: Progress | No
         release=[start + w for w in intake.warm_ups], due=due,
         attended=[not c.unattended for c in bench.channels], calendar=calendar, room=room,
         budget=bench.mains_budget_w or math.inf, channel_free=[start] * len(bench.channels),
-        fixed=fixed)
+        fixed=fixed, watched={k for k, o in options.items() if _watched(o.plan)})
     jobs, left = schedule(problem)
     from chargeplan.planners.bench_notes import why_not
 

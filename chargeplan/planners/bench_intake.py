@@ -76,29 +76,30 @@ def cold_start(b: BenchBattery, profile: Profile) -> tuple[float, float]:
     return low, warm
 
 
-def _state(b: BenchBattery, index: int) -> State:
-    requests = {"equalize": b.equalize}
-    if b.desulfate is not None:
-        if "desulfate" not in State.model_fields:
-            raise InputError("this version's engine takes no desulfation request",
-                             field=f"batteries[{index}].desulfate",
-                             fix="leave it out; the rules add desulfation when it is due")
-        requests["desulfate"] = b.desulfate
+def _state(b: BenchBattery) -> State:
     return State.model_construct(rest_voltage_v=b.rest_voltage_v,
-                                 state_of_charge_pct=b.state_of_charge_pct, **requests)
+                                 state_of_charge_pct=b.state_of_charge_pct,
+                                 equalize=False if b.equalize is False else None)
 
 
-def battery_file(b: BenchBattery, channel: ChargerChannel | None, temperature_c: float,
-                 index: int = 0) -> BatteryFile:
+def _request(b: BenchBattery) -> list[str]:
+    """The stages the workshop asks for, as the battery file's ``request`` (the engine still
+    decides whether the chemistry allows them); ``equalize: false`` forbids equalization."""
+    return ([*(["desulfation"] if b.desulfate else []),
+             *(["equalization"] if b.equalize else [])])
+
+
+def battery_file(b: BenchBattery, channel: ChargerChannel | None,
+                 temperature_c: float) -> BatteryFile:
     """The engine's input for a bench battery, built from typed values (no strings)."""
     battery = Battery.model_construct(name=b.id, chemistry=b.chemistry,
                                       nominal_voltage_v=b.nominal_voltage_v,
                                       cells_in_series=b.cells_in_series,
                                       capacity_ah=b.capacity_ah)
     return BatteryFile.model_construct(
-        battery=battery, state=_state(b, index),
+        battery=battery, state=_state(b),
         conditions=Conditions.model_construct(battery_temperature_c=temperature_c),
-        storage=None, charger=channel)
+        storage=None, charger=channel, request=_request(b))
 
 
 def channel_for(channel: BenchChannel, max_current_a: float | None = None) -> ChargerChannel:
@@ -113,7 +114,7 @@ def _engine(b: BenchBattery, index: int, channel: ChargerChannel, temperature_c:
     from chargeplan.engine.planner import plan_charge
 
     try:
-        return plan_charge(battery_file(b, channel, temperature_c, index), profiles=profiles)
+        return plan_charge(battery_file(b, channel, temperature_c), profiles=profiles)
     except PlanRefused as refusal:
         return Misfit(refusal.rule_id, refusal.reason)
     except InputError as error:
@@ -177,7 +178,6 @@ def plan_options(rows: list[BenchBattery], channels: list[BenchChannel],
             profile = profiles.get(b.chemistry, field=f"batteries[{i}].chemistry")
         except InputError as error:
             raise error.in_file(f"battery {b.id}") from None
-        _state(b, i)  # a request the engine cannot take is the battery's entry mistake
         temperature, warm = cold_start(b, profile)
         found.append(profile)
         warm_ups.append(warm)

@@ -50,6 +50,12 @@ class Problem:
     budget: float
     channel_free: list[float]  # when each channel is first free
     fixed: list[Job] = field(default_factory=list)
+    #: (battery, channel) whose charge has a stage that needs someone present (desulfation,
+    #: equalization): it ends inside working hours even on an unattended channel
+    watched: set[tuple[int, int]] = field(default_factory=set)
+
+    def attends(self, i: int, c: int) -> bool:
+        return self.attended[c] or (i, c) in self.watched
 
     def channels_of(self) -> dict[int, list[int]]:
         by: dict[int, list[int]] = {}
@@ -136,10 +142,10 @@ def _place(p: Problem, i: int, channels: list[int], free: list[float], usage: Us
         if best is not None and ready(c) + minutes >= best.end_min:
             break
         start = earliest(p, usage, ready(c), minutes, p.airflow[(i, c)], p.power[(i, c)],
-                         p.attended[c], limits)
+                         p.attends(i, c), limits)
         if start is None:
             continue
-        unlimited = earliest(p, usage, ready(c), minutes, 0.0, 0.0, p.attended[c],
+        unlimited = earliest(p, usage, ready(c), minutes, 0.0, 0.0, p.attends(i, c),
                              (math.inf, math.inf)) if start > ready(c) + 1e-9 else start
         job = Job(i, c, start, start + minutes, p.airflow[(i, c)], p.power[(i, c)],
                   staggered=unlimited is not None and start > unlimited + 1e-9)

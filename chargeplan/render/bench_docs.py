@@ -259,6 +259,6 @@ def setpoint_files(plan: BenchPlan) -> dict[str, str]:
             planned = plan.plan_of(job)
             current_a = max(stage.current_a for stage in planned.stages)
             source = battery_file(plan.batteries[job.battery], channel_for(channel, current_a),
-                                  planned.battery.temperature_c, job.battery)
+                                  planned.battery.temperature_c)
             files[file_name(plan, job.battery)] = to_json(program_plan(source))
     return files

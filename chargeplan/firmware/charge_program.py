@@ -132,11 +132,36 @@ def program_plan(
     The returned plan carries :class:`ProgramRules` as ``plan.program``; encode it with
     :func:`chargeplan.firmware.setpoints.encode`.
     """
-    from chargeplan import safety
-    from chargeplan.engine.planner import derive_state, plan_charge
-    from chargeplan.profiles import hard_envelope
+    return program_plans([battery_file], profiles=profiles, file=file,
+                         table_step_c=table_step_c, estimate=estimate)[0]
+
+
+def program_plans(
+    battery_files: list[BatteryFile],
+    *,
+    profiles: ProfileSet | None = None,
+    file: str | None = None,
+    table_step_c: float | None = 5.0,
+    estimate: bool = True,
+) -> list[ChargePlan]:
+    """:func:`program_plan` for many batteries, their estimates simulated together."""
+    from chargeplan.estimate import estimate_plans
 
     profile_set = profiles or ProfileSet(use_environment=False)
+    made = [_program_base(b, profile_set, file, table_step_c) for b in battery_files]
+    if estimate and made:
+        estimate_plans([plan for plan, _, _ in made], profiles=profile_set,
+                       battery_files=[stateless for _, stateless, _ in made])
+    return [_program_finish(plan, stateless, rule_timers, profile_set)
+            for plan, stateless, rule_timers in made]
+
+
+def _program_base(battery_file: BatteryFile, profile_set: ProfileSet, file: str | None,
+                  table_step_c: float | None) -> tuple[ChargePlan, BatteryFile, list]:
+    """The program's plan before its estimate: (plan, the stateless file, the rules' own
+    timers)."""
+    from chargeplan.engine.planner import derive_state, plan_charge
+
     # the file's own reading is still judged: one that no rested battery of this kind can
     # give (reversed leads, a dead cell, more cells than the file says) is refused
     derive_state(battery_file, profiles=profile_set, file=file)
@@ -162,12 +187,16 @@ def program_plan(
         plan.temperature_table = temperature_table(stateless, plan, step_c=table_step_c,
                                                    profiles=profile_set)
         plan.table_step_c = table_step_c
-    rule_timers = [stage.timer_s for stage in plan.stages]
-    if estimate:
-        from chargeplan.estimate import estimate_plans
+    return plan, stateless, [stage.timer_s for stage in plan.stages]
 
-        estimate_plans([plan], profiles=profile_set, battery_files=[stateless])
+
+def _program_finish(plan: ChargePlan, stateless: BatteryFile, rule_timers: list,
+                    profile_set: ProfileSet) -> ChargePlan:
+    from chargeplan import safety
+    from chargeplan.profiles import hard_envelope
+
     _program_timers(plan, rule_timers)
+    pre = plan.stage(StageKind.PRECHARGE)
     profile = profile_set.get(plan.battery.profile_id)
     n = plan.battery.cells_in_series
     charge = next(s for s in plan.stages if s.kind != StageKind.PRECHARGE)

@@ -248,17 +248,21 @@ def bench_sheets(plan: BenchPlan) -> dict[str, str]:
 def setpoint_files(plan: BenchPlan) -> dict[str, str]:
     """``setpoints-<n>-<battery>.json`` for each battery on a channel that loads files: the
     charge program (setpoint document version 4) its channel's firmware runs."""
-    from chargeplan.firmware.charge_program import program_plan
+    from chargeplan.firmware.charge_program import program_plans
     from chargeplan.firmware.setpoints import to_json
     from chargeplan.planners.bench_intake import battery_file, channel_for
 
-    files = {}
+    names, sources = [], []
     for job in plan.jobs:
         channel = plan.bench.channels[job.channel]
         if channel.loads_files:  # the channel's firmware runs the charge program
             planned = plan.plan_of(job)
             current_a = max(stage.current_a for stage in planned.stages)
-            source = battery_file(plan.batteries[job.battery], channel_for(channel, current_a),
-                                  planned.battery.temperature_c)
-            files[file_name(plan, job.battery)] = to_json(program_plan(source))
+            names.append(file_name(plan, job.battery))
+            sources.append(battery_file(plan.batteries[job.battery],
+                                        channel_for(channel, current_a),
+                                        planned.battery.temperature_c))
+    # the programs' estimates are simulated together (one batch, not one run each)
+    files = {name: to_json(program) for name, program in zip(
+        names, program_plans(sources), strict=True)}
     return files

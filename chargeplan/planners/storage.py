@@ -300,7 +300,7 @@ class StoragePlan:
         v, f = self.visits, self.fleet
         i = int(v.battery[k])
         soc = float(v.soc_before[k])
-        if not np.isfinite(soc) or flat_reading(bool(f.lfp[i]), soc) or (
+        if not np.isfinite(soc) or flat_reading(f.profiles[i], soc) or (
                 v.act[k] == Act.MAINTAINER):
             return float("nan")
         return float(ocv_from_soc(soc, f.profiles[i].rest_voltage.table)) * int(f.cells[i])
@@ -462,7 +462,7 @@ def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
             continue
         table = profile_set.get(fleet.chemistry[i]).rest_voltage.table
         soc = float(soc_from_ocv(r.rest_voltage_v / fleet.cells[i], table))
-        if flat_reading(bool(fleet.lfp[i]), soc):
+        if flat_reading(fleet.profiles[i], soc):
             flags.append(ReadingFlag(
                 "flat-curve", r.battery, r.date, f"{r.rest_voltage_v:.2f} V on "
                 f"{r.date.isoformat()} is not usable for state of charge (LiFePO4's flat "

@@ -20,12 +20,8 @@ from chargeplan.model.storage import InventoryRow, SiteFile
 from chargeplan.physics.ocv import soc_from_ocv
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["FLAT_BAND_PCT", "Fleet", "flat_reading", "profile_for", "resolve_fleet"]
+__all__ = ["Fleet", "flat_reading", "profile_for", "resolve_fleet"]
 
-#: LiFePO4's rest voltage barely moves between these states of charge: a reading inside says
-#: nothing usable about the charge (common practice; the bundled table moves 0.14 V/cell
-#: across it).
-FLAT_BAND_PCT = (20.0, 90.0)
 #: BU-702 "How to Store Batteries": lithium is stored at 40-50 % state of charge.
 LITHIUM_STORAGE_BAND_PCT = (40.0, 50.0)
 
@@ -38,7 +34,7 @@ class Fleet:
     profiles: list[Any]
     chemistry: list[str]
     lead: np.ndarray  # bool
-    lfp: np.ndarray  # bool: LiFePO4 (its flat curve)
+    lfp: np.ndarray  # bool: a flat rest-voltage curve (the profile's flat_band; LiFePO4)
     cells: np.ndarray  # int
     capacity_ah: np.ndarray
     bay: np.ndarray  # int, the bay it is stored in
@@ -65,9 +61,10 @@ def profile_for(profile_set: ProfileSet, chemistry: str) -> Any:
     return profile_set.get(ids.get(chemistry.lower(), chemistry), field="chemistry")
 
 
-def flat_reading(lfp: bool, soc_pct: float) -> bool:
-    """A LiFePO4 rest voltage inside the flat band: not usable for state of charge."""
-    return lfp and FLAT_BAND_PCT[0] < soc_pct < FLAT_BAND_PCT[1]
+def flat_reading(profile: Any, soc_pct: float) -> bool:
+    """A rest voltage inside the profile's flat band (LiFePO4): not usable for state of
+    charge. The band is one sourced profile value, read here, by ``state`` and by ``plan``."""
+    return profile.rest_voltage.in_flat_band(soc_pct)
 
 
 def _cells(row: InventoryRow, profile: Any) -> int | None:
@@ -106,7 +103,7 @@ def _soc_at_intake(row: InventoryRow, profile: Any, cells: int) -> float:
         return row.state_of_charge_pct
     assert row.rest_voltage_v is not None
     soc = float(soc_from_ocv(row.rest_voltage_v / cells, profile.rest_voltage.table))
-    return float("nan") if flat_reading(profile.id == "lifepo4", soc) else soc
+    return float("nan") if flat_reading(profile, soc) else soc
 
 
 def _day(site_file: SiteFile, day: dt.date | None, default: int) -> int:
@@ -153,7 +150,8 @@ def _arrays(site_file: SiteFile, rows: list[InventoryRow], resolved: list[Any]) 
                        for p in profiles])
     return Fleet(
         rows=rows, profiles=profiles, chemistry=[p.id for p in profiles], lead=lead,
-        lfp=np.array([p.id == "lifepo4" for p in profiles], dtype=bool), cells=cells,
+        lfp=np.array([p.rest_voltage.flat_band is not None for p in profiles], dtype=bool),
+        cells=cells,
         capacity_ah=cap, bay=np.array([b for _p, _c, b in resolved], dtype=int),
         arrive=np.array([_day(site_file, r.arrive, 0) for r in rows], dtype=int),
         depart=np.array([_day(site_file, r.depart, days - 1) for r in rows], dtype=int),

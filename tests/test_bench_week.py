@@ -6,6 +6,7 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import io
+import json
 import re
 
 import icalendar
@@ -18,7 +19,7 @@ from chargeplan.physics.ventilation import gas_current_at_voltage, gas_current_f
 from chargeplan.planners.bench import plan_bench
 from chargeplan.planners.bench_intake import COLD_INSTRUCTION
 from chargeplan.planners.bench_progress import Progress
-from chargeplan.render.bench_docs import bench_document, bench_sheets
+from chargeplan.render.bench_docs import bench_document, bench_sheets, setpoint_files
 from chargeplan.render.bench_files import schedule_csv, schedule_ics
 
 runner = CliRunner()
@@ -346,3 +347,15 @@ def test_a_workshops_request_reaches_the_engine_which_still_decides(chemistry, a
     else:
         assert not {"desulfation", "equalization"} & set(kinds)
         assert any("asked for but left out" in f.message for f in charge.findings)
+
+
+def test_a_card_says_a_loaded_file_leaves_the_overcharge_to_the_person():
+    # the setpoint file of a channel that loads files carries the normal charge only
+    # (firmware.charge_program); the card tells the operator to run the desulfation by hand
+    channels = [{"name": "F", **PROBE, "unattended": True, "loads_files": True}]
+    plan = plan_bench(_bench([_battery(1, "flooded", "24 Ah", "95 %", desulfate=True)],
+                             channels))
+    card = _text(bench_sheets(plan)["cards.html"])
+    assert "runs the normal charge only" in card and "desulfation stage below by hand" in card
+    program = json.loads(next(iter(setpoint_files(plan).values())))
+    assert "desulfation" not in [s["kind"] for s in program["stages"]]

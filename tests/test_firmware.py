@@ -7,6 +7,7 @@ import json
 import math
 import re
 import shutil
+import struct
 import subprocess
 
 import pytest
@@ -622,3 +623,54 @@ def test_a_makers_compensation_coefficient_is_held_to_the_battery_file(write_yam
     assert check_document(doc, **given) == []
     doc["temperature_compensation"]["coefficient_uV_per_K_per_cell"] = -5000
     assert _codes(doc, **given) == {"CK705"}
+
+
+_IMAGE_MAIN = r"""
+#include <stdio.h>
+#include "setpoints.h"
+
+int main(int argc, char **argv)
+{
+    static uint8_t data[65536];
+    size_t size;
+    FILE *f = fopen(argv[1], "rb");
+    (void)argc;
+    if (f == NULL) {
+        return 9;
+    }
+    size = fread(data, 1, sizeof data, f);
+    fclose(f);
+    printf("%d %u %u\n", cp_image_check(data, (uint32_t)size), (unsigned)cp_le_u16(data + 12),
+           (unsigned)cp_crc32((const uint8_t *)"123456789", 9u));
+    data[size / 2] ^= 0x10u;
+    printf("%d\n", cp_image_check(data, (uint32_t)size));
+    data[size / 2] ^= 0x10u;
+    printf("%d %lu %d\n", cp_image_check(data, (uint32_t)size - 1u),
+           (unsigned long)cp_le_u32(data + 14), cp_le_s16(data + 18));
+    return 0;
+}
+"""
+
+
+@pytest.mark.parametrize(("compiler", "flags"), [("gcc", C_FLAGS), ("g++", CXX_FLAGS)])
+def test_the_header_checks_the_image_byte_by_byte(tmp_path, compiler, flags):
+    """The header's own portable reader (no packed structs) accepts the image written for
+    the same document, and refuses a flipped bit (CRC-32/ISO-HDLC, check value 0xCBF43926:
+    the CRC catalogue's value for "123456789") and a cut one."""
+    plan = program_file(example_paths()[FLOODED])
+    doc = encode(plan)
+    data = image.encode(doc)
+    (tmp_path / "setpoints.h").write_text(render_c_header(plan, doc))
+    (tmp_path / "main.c").write_text(_IMAGE_MAIN)
+    (tmp_path / "setpoints.bin").write_bytes(data)
+    exe = tmp_path / f"image-{compiler}"
+    subprocess.run([_compiler(compiler), *flags, "-o", str(exe), str(tmp_path / "main.c")],
+                   check=True, capture_output=True, text=True)
+    out = subprocess.run([str(exe), str(tmp_path / "setpoints.bin")], check=True,
+                         capture_output=True, text=True).stdout.split()
+    # the first payload fields, read with struct here: cells (u16), capacity (u32), planned
+    # temperature (s16); a cut image is refused on its length
+    cells, capacity, planned = struct.unpack_from("<HIh", data, 12)
+    assert out == ["0", str(cells), str(0xCBF43926), "5", "4", str(capacity), str(planned)]
+    assert (cells, capacity, planned) == (doc["cells_in_series"], doc["battery"]["capacity_mAh"],
+                                          doc["planned_temperature_dC"])

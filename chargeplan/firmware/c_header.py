@@ -61,7 +61,12 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
     InputError naming the field (exit 2), never an overflowed constant."""
     from chargeplan.firmware.faults import FAULTS, VOLTAGE_TRIP_FILTER_MS
     from chargeplan.firmware.fieldtypes import PLAN_FIX, require_fit
-    from chargeplan.firmware.image import CHEMISTRY_CODES, GUARDS, require_known_exits
+    from chargeplan.firmware.image import (
+        CHEMISTRY_CODES,
+        GUARDS,
+        IMAGE_VERSION,
+        require_known_exits,
+    )
 
     require_known_exits(doc, "C header")
     require_fit(doc, fix=PLAN_FIX)
@@ -80,4 +85,5 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
         })
     return str(_template().render(doc=doc, plan=plan, stages=stages, kinds=_KIND_MACROS,
                                   chemistries=CHEMISTRY_CODES, faults=FAULTS,
-                                  trip_filter_ms=VOLTAGE_TRIP_FILTER_MS))
+                                  trip_filter_ms=VOLTAGE_TRIP_FILTER_MS,
+                                  image_version=IMAGE_VERSION))

@@ -393,7 +393,7 @@ def input_error(error: ValidationError, *, file: str, model: type[BaseModel]) ->
         fix = f"did you mean '{close[0]}'?" if close else "remove it or check its spelling"
         if str(loc[-1])[:1].isdigit():  # {min: -18,5 degC} reads as min: -18 and "5 degC"
             fix = ("a decimal comma inside { } splits the value in two; write a decimal "
-                   "point (-18.5, not -18,5)")
+                   "point (1.5, not 1,5)")
         elif known and not close:
             fix += f" (known here: {', '.join(known)})"
     elif "; " in message:

@@ -58,9 +58,19 @@ def csv_unguard(text: str) -> str:
     return text
 
 
+_FORMULA_CHARS = "".join(_FORMULA_START)
+
+
 def csv_row(writer: Any, cells: Iterable[object]) -> None:
-    """Write one row through ``writer`` (a ``csv.writer``), every cell guarded."""
-    writer.writerow([csv_cell(c) for c in cells])
+    """Write one row through ``writer`` (a ``csv.writer``), every cell guarded as
+    :func:`csv_cell` guards it (inlined: a schedule writes millions of cells)."""
+    row = []
+    for value in cells:
+        text = "" if value is None else value if type(value) is str else str(value)
+        if text and text[0] in _FORMULA_CHARS and not _PLAIN_NUMBER.fullmatch(text):
+            text = "'" + text
+        row.append(text)
+    writer.writerow(row)
 
 
 class InputErrors(InputError):

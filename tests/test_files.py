@@ -542,3 +542,31 @@ def test_a_fifo_in_place_of_the_list_is_refused_not_read(tmp_path):
     os.mkfifo(out / writer.MANIFEST)
     with pytest.raises(InputError, match=r"\.chargeplan-files: was not written by chargeplan"):
         writer.write_all(out, NEW, force=True)
+
+
+def test_a_written_row_is_guarded_cell_for_cell_and_reads_back():
+    """csv_row (inlined for speed) writes what csv_cell gives each cell (OWASP "CSV
+    Injection": a cell a spreadsheet would run as a formula gets a leading apostrophe; a
+    plain number is left alone), and csv_unguard gives the text back."""
+    import csv
+    import io
+
+    from hypothesis import given
+    from hypothesis import strategies as st
+
+    from chargeplan.csvfile import csv_cell, csv_row, csv_unguard
+
+    cells = st.lists(st.one_of(st.none(), st.integers(), st.floats(allow_nan=False),
+                               st.text(alphabet="=+-@\t\r'.e0123456789 ax|(", max_size=8)),
+                     max_size=6)
+
+    @given(cells)
+    def check(row):
+        mine, theirs = io.StringIO(), io.StringIO()
+        csv_row(csv.writer(mine), row)
+        csv.writer(theirs).writerow([csv_cell(c) for c in row])
+        assert mine.getvalue() == theirs.getvalue()
+        back = next(csv.reader(io.StringIO(mine.getvalue()), strict=True)) if row else []
+        assert [csv_unguard(c) for c in back] == ["" if c is None else str(c) for c in row]
+
+    check()

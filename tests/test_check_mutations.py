@@ -240,6 +240,22 @@ def test_the_checkers_table_matches_the_profiles_hard_envelopes():
             assert env.warm_zone_cell_v * 1000 <= mine.warm_cell_max_mV
 
 
+def test_the_checkers_guard_bounds_pass_the_bundled_profiles_guards():
+    """P410's bounds (firmware/limits.py) are the loosest lead-acid guards a program may
+    carry: the bundled profiles' termination blocks (whose reasoning they repeat) sit inside
+    them, and lithium has neither."""
+    from chargeplan.profiles import load_builtin
+
+    for chemistry in CHEMISTRIES:
+        mine, term = LIMITS[chemistry], load_builtin(chemistry).termination
+        if mine.lithium:
+            assert term is None and mine.guard_cap_it is None
+            continue
+        assert term.charge_cap.value <= mine.guard_cap_it
+        assert term.temperature_rise.value * 10 <= mine.guard_rise_max_dK
+        assert term.current_rise.value <= mine.guard_current_rise_max_it + 1e-12
+
+
 def test_checks_run_one_at_a_time():
     """Each check is a function on its own: a violation of one rule comes from its check."""
     from chargeplan.firmware import check as module

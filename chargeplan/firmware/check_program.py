@@ -10,6 +10,8 @@ from __future__ import annotations
 from collections.abc import Callable, Iterator
 from typing import Any
 
+from chargeplan.firmware.limits import LIMITS
+
 __all__ = ["PROGRAM_CHECKS", "program_violations"]
 
 Doc = dict[str, Any]
@@ -22,15 +24,6 @@ _PROGRAM_KINDS = frozenset({"bulk", "absorption", "float", "storage_hold"})
 #: (a flat battery must be able to charge), at most twice it (lead-acid returns at most
 #: 1.10-1.30 Ah per Ah taken out, common practice: a cap above 2x caps nothing).
 _CAP_RANGE = (1.0, 2.0)
-#: A lead-acid program's guards, the loosest the checker passes (common practice, reasoning in
-#: DEVELOPERS.md "Termination"): a program knows no state, so its Ah cap is a multiple of the
-#: rated capacity, at most 1.5 C flooded and 1.35 C VRLA (the published charge factors,
-#: flooded 1.10-1.30 and VRLA 1.02-1.15, with a margin; a user profile may only tighten
-#: them); a temperature rise of at most 10 K; a current rise at constant voltage of at most
-#: 1 % of C (BU-403: a healthy battery's current falls at constant voltage).
-_LEAD_CAP_IT = {"flooded": 1.5, "agm": 1.35, "gel": 1.35}
-_RISE_MAX_DK = 100
-_CURRENT_RISE_MAX_IT = 0.01
 #: The longest a voltage or current trip may be filtered (common practice: seconds).
 _FILTER_MAX_S = 10
 #: The widest temperature resume margin (0.1 K) that still leaves a usable window.
@@ -115,9 +108,11 @@ def lead_acid_guards(doc: Doc) -> Iterator[str]:
     """P410: every lead-acid bulk and absorption stage faults on an Ah cap and a temperature
     rise, and absorption on a current that rises at constant voltage, each within bounds."""
     chemistry = doc["battery"]["chemistry"]
-    cap_it = _LEAD_CAP_IT.get(chemistry)
-    if cap_it is None:
+    limits = LIMITS.get(chemistry)
+    if limits is None or limits.guard_cap_it is None:  # lithium: its own protection guards it
         return
+    cap_it, rise_max = limits.guard_cap_it, limits.guard_rise_max_dK
+    current_rise_it = limits.guard_current_rise_max_it
     capacity = doc["battery"]["capacity_mAh"]
     for n, stage in enumerate(doc["stages"], 1):
         if stage["kind"] not in ("bulk", "absorption"):
@@ -133,18 +128,18 @@ def lead_acid_guards(doc: Doc) -> Iterator[str]:
         rise = guards.get("temperature_rise")
         if rise is None:
             yield f"P410: {name} has no temperature_rise guard"
-        elif rise["temperature_rise_dK"] > _RISE_MAX_DK:
+        elif rise_max is not None and rise["temperature_rise_dK"] > rise_max:
             yield (f"P410: {name} temperature rise {rise['temperature_rise_dK']} dK is above "
-                   f"{_RISE_MAX_DK} dK (10 K)")
+                   f"{rise_max} dK")
         if stage["kind"] != "absorption":
             continue
         rising = guards.get("current_rising")
         if rising is None:
             yield (f"P410: {name} has no current_rising guard: thermal runaway at constant "
                    "voltage would not be stopped")
-        elif rising["current_mA"] > _CURRENT_RISE_MAX_IT * capacity:
+        elif current_rise_it is not None and rising["current_mA"] > current_rise_it * capacity:
             yield (f"P410: {name} current rise {rising['current_mA']} mA is above "
-                   f"{_CURRENT_RISE_MAX_IT:g} x the rated {capacity} mAh")
+                   f"{current_rise_it:g} x the rated {capacity} mAh")
 
 
 #: Lead-acid goes back to bulk from float only when it cannot hold about 2.08-2.12 V/cell

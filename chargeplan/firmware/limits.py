@@ -33,6 +33,11 @@ class ChemistryLimits:
     warm_above_dC: int | None = None  # the warm zone must begin at or below this
     warm_cell_max_mV: int | None = None  # and hold the cell voltage at most to this
     compensation_uV: tuple[int, int] | None = None  # accepted coefficient, most..least negative
+    # lead-acid fault guards (P410): the loosest Ah cap of a program, in It of the rated
+    # capacity; the largest temperature rise; the largest current rise at constant voltage
+    guard_cap_it: float | None = None
+    guard_rise_max_dK: int | None = None
+    guard_current_rise_max_it: float | None = None
 
     @property
     def lithium(self) -> bool:
@@ -51,6 +56,10 @@ _LEAD = dict(
     tail_min_it=0.005,  # BU-403: the absorption ends at 0.5-5 % of C
     cool_below_dC=0, cool_current_it=0.30,  # BU-410 Table 1: at most 0.3 C below freezing
     compensation_uV=_LEAD_COMPENSATION,
+    # common practice (reasoning in DEVELOPERS.md "Lead-acid termination and guards"): a
+    # charge that warms the battery 10 K within a stage goes into heat; BU-403: at constant
+    # voltage a healthy battery's current falls, a rise of 1 % of C is thermal runaway
+    guard_rise_max_dK=100, guard_current_rise_max_it=0.01,
 )
 _LITHIUM_FORBIDDEN = frozenset({"equalization", "desulfation", "float"})
 _LITHIUM = dict(
@@ -66,16 +75,19 @@ _LITHIUM = dict(
 LIMITS: dict[str, ChemistryLimits] = {
     # flooded: 2.67 V/cell, the highest equalization voltage across sources
     # (2.67 V/cell, BU equalizing-charge text); 0.30 It BU-403 typical charge current
+    # Ah cap 1.5 C: the published charge factor 1.10-1.30 (common practice) with a margin
     "flooded": ChemistryLimits("flooded", cell_max_mV=2670, current_max_it=0.30,
-                               forbidden_stages=frozenset(), **_LEAD),
+                               forbidden_stages=frozenset(), guard_cap_it=1.5, **_LEAD),
     # AGM: 2.55 V/cell VRLA maker limits with cold compensation (from memory); 0.5 It
     # (from memory: AGM makers allow up to 0.3-0.5 C)
+    # Ah cap 1.35 C: VRLA's charge factor 1.02-1.15 (common practice) with a margin
     "agm": ChemistryLimits("agm", cell_max_mV=2550, current_max_it=0.50,
-                           forbidden_stages=frozenset(), **_LEAD),
+                           forbidden_stages=frozenset(), guard_cap_it=1.35, **_LEAD),
     # gel: 2.50 V/cell, 0.30 It (from memory: gel maker limits); no equalization or
     # desulfation (common practice: gel and AGM get none unless the maker allows it)
     "gel": ChemistryLimits("gel", cell_max_mV=2500, current_max_it=0.30,
-                           forbidden_stages=frozenset({"equalization", "desulfation"}), **_LEAD),
+                           forbidden_stages=frozenset({"equalization", "desulfation"}),
+                           guard_cap_it=1.35, **_LEAD),
     # LiFePO4: nominal 3.2 V/cell, absolute maximum 3.65 V/cell, at most 0.2 C below 10 degC
     # (cell handling guidelines, common practice)
     "lifepo4": ChemistryLimits("lifepo4", nominal_cell_mV=3200, cell_max_mV=3650,

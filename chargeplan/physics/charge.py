@@ -7,10 +7,10 @@ per the profile's ``resistance_doubling`` kelvin of cooling. The acceptance foll
 of Shepherd's form, ``g = (1 - soc)**p / (R_acc * (soc + 0.05))`` (C. M. Shepherd,
 J. Electrochem. Soc. 112, 1965, where p = 1; the 0.05 keeps it finite when empty).
 Lithium takes Shepherd's p = 1. Lead-acid gives its own p, below 1: with R_acc it is
-calibrated to BU-403 (at 0.1 It the
-constant-current stage ends near 70 % charged, a higher current reaches the voltage sooner,
-and at the topping voltage the current falls to the tail current as the battery becomes
-full). A full battery accepts nothing more: what still flows is the side reaction.
+calibrated to BU-403 (at 0.1 It the constant-current stage ends near 70 % charged, a higher
+current reaches the voltage sooner, and at the topping voltage the current falls to the
+tail current as the battery becomes full). A full battery accepts nothing more: what still
+flows is the side reaction.
 
 Lead-acid adds a side reaction (gassing, and in VRLA the oxygen cycle) that carries
 current without storing charge: exponential in voltage through IEC 62485-2 Table 1's two

@@ -153,7 +153,7 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                                  "channel with a larger current")]
                 continue
             got.minutes = total[0] / 60.0
-            watched = _watched(got.plan)
+            watched = overcharge_stage(got.plan)
             if got.minutes > longest + 1e-6 and (watched or not channel.unattended):
                 if watched:
                     text = (f"{got.minutes / 60:.1f} h with {watched} (needs a person there), "
@@ -175,7 +175,7 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                     channel_max_current_a=channel.max_current_a)
 
 
-def _watched(plan: ChargePlan) -> str | None:
+def overcharge_stage(plan: ChargePlan) -> str | None:
     """The stage of a charge that needs someone present to the end (desulfation or
     equalization: CP203 and CP205 say "stay nearby"), or None."""
     return next((s.kind.value for s in plan.stages if s.kind in HIGH_VOLTAGE_STAGES), None)
@@ -317,7 +317,7 @@ def _scheduled(intake: _Intake, now: dt.datetime | None, progress: Progress | No
         release=[start + w for w in intake.warm_ups], due=due,
         attended=[not c.unattended for c in bench.channels], calendar=calendar, room=room,
         budget=bench.mains_budget_w or math.inf, channel_free=[start] * len(bench.channels),
-        fixed=fixed, watched={k for k, o in options.items() if _watched(o.plan)})
+        fixed=fixed, watched={k for k, o in options.items() if overcharge_stage(o.plan)})
     jobs, left = schedule(problem)
     from chargeplan.planners.bench_notes import why_not
 

@@ -13,8 +13,13 @@ from typing import Any
 
 from chargeplan import fmt
 from chargeplan.cautions import DEFERRAL
-from chargeplan.plan import HIGH_VOLTAGE_STAGES, ChargePlan
-from chargeplan.planners.bench import AFTER_CHECK_PASS_SOC_PCT, AFTER_CHECK_REST_H, BenchPlan
+from chargeplan.plan import ChargePlan
+from chargeplan.planners.bench import (
+    AFTER_CHECK_PASS_SOC_PCT,
+    AFTER_CHECK_REST_H,
+    BenchPlan,
+    overcharge_stage,
+)
 from chargeplan.planners.bench_intake import COLD_INSTRUCTION
 from chargeplan.planners.bench_notes import headline
 from chargeplan.render.bench_chart import gantt_svg
@@ -67,10 +72,10 @@ def _card(plan: BenchPlan, job: Any) -> dict[str, Any]:
         setup.insert(0, COLD_INSTRUCTION)
     if channel.loads_files:
         setup.append(f"load {file_name(plan, job.battery)}")
-        overcharge = [st.kind.value for st in charge.stages if st.kind in HIGH_VOLTAGE_STAGES]
+        overcharge = overcharge_stage(charge)
         if overcharge:  # a program runs the normal charge only (firmware.charge_program)
             setup.append(f"the file runs the normal charge only: when it ends, run the "
-                         f"{overcharge[0]} stage below by hand, staying with the battery")
+                         f"{overcharge} stage below by hand, staying with the battery")
     return {
         "id": b.id, "owner": b.owner or "", "channel": channel.name,
         "start": plan.clock(job.start_min), "end": plan.clock(job.end_min),

@@ -231,16 +231,35 @@ class StoragePlan:
     @cached_property
     def first_freeze_day(self) -> np.ndarray:
         """The first day each lead-acid battery's predicted electrolyte freezes under the plan
-        (at or above the day's minimum; TM 5-1185), -1 for none."""
-        soc = np.nan_to_num(self.soc_daily, nan=100.0)
-        lows = self.bay_min[self.bay_daily, np.arange(len(self.dates))[None, :]]
-        frozen = self.fleet.lead[:, None] & (lows <= freezing_point_at(soc))
-        return np.where(frozen.any(axis=1), np.argmax(frozen, axis=1), -1)
+        (at or above the day's minimum; TM 5-1185), -1 for none.
+
+        The freezing point falls as the charge rises, so each bay-day has a charge below which
+        it freezes: only the battery-days within a point of it are checked against the
+        freezing point itself (the same answer as checking every battery-day)."""
+        lead = np.flatnonzero(self.fleet.lead)
+        first = np.full(self.fleet.n, -1)
+        grid = np.linspace(0.0, 100.0, 1001)
+        freeze = freezing_point_at(grid)  # falls as the charge rises
+        below = np.interp(-self.bay_min, -freeze, grid, left=-1.0, right=200.0) + 1.0
+        open_ = np.ones(len(lead), dtype=bool)
+        for day in range(len(self.dates)):
+            bays = self.bay_daily[lead, day]
+            soc = self.soc_daily[lead, day].astype(float)
+            near = below[bays, day]
+            if near.max(initial=-1.0) >= 100.0:
+                soc = np.nan_to_num(soc, nan=100.0)
+            check = np.flatnonzero(open_ & (soc <= near))
+            if not check.size:
+                continue
+            frozen = check[self.bay_min[bays[check], day] <= freezing_point_at(soc[check])]
+            first[lead[frozen]] = day
+            open_[frozen] = False
+        return first
 
     @property
     def would_freeze(self) -> np.ndarray:
         full = float(freezing_point_at(np.array(100.0)))
-        return self.fleet.lead & (self.bay_min[self.fleet.bay].min(axis=1) <= full)
+        return self.fleet.lead & (self.bay_min.min(axis=1)[self.fleet.bay] <= full)
 
     @property
     def maintainer(self) -> dict[int, str]:
@@ -575,8 +594,9 @@ def _notes(plan: StoragePlan) -> None:
     waits = v.act == Act.WAIT
     since = np.full(f.n, len(plan.dates))
     np.minimum.at(since, v.battery[waits], v.day[waits])
-    for i in np.flatnonzero(since < len(plan.dates)):
-        low = float(np.nanmin(plan.soc_daily[i]))
+    waiting = np.flatnonzero(since < len(plan.dates))
+    lowest = np.nanmin(plan.soc_daily[waiting], axis=1) if waiting.size else []
+    for i, low in zip(waiting, lowest, strict=True):
         plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
                                f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
                                f"inside its charge window; it falls to {low:.0f} % this season: "
@@ -633,10 +653,12 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
 
 def _kind_codes(f: Fleet) -> np.ndarray:
     """One integer per distinct (chemistry, cells) of the fleet."""
-    pairs = [(c, int(n)) for c, n in zip(f.chemistry, f.cells, strict=True)]
-    index: dict[tuple[str, int], int] = {}
-    return np.fromiter((index.setdefault(p, len(index)) for p in pairs), dtype=np.int64,
-                       count=len(pairs))
+    _names, chem = np.unique(np.array(f.chemistry), return_inverse=True)
+    pair = chem.ravel().astype(np.int64) * (int(f.cells.max(initial=0)) + 1) + f.cells
+    _pairs, first, code = np.unique(pair, return_index=True, return_inverse=True)
+    rank = np.empty(len(first), dtype=np.int64)
+    rank[np.argsort(first)] = np.arange(len(first))  # numbered in order of appearance
+    return rank[code.ravel()]
 
 
 def _pack(*columns: np.ndarray) -> np.ndarray:

@@ -64,7 +64,7 @@ def battery_file(chemistry: str, cells: int, capacity_ah: float, temperature_c: 
         battery=battery, state=State.model_construct(state_of_charge_pct=soc_pct),
         conditions=Conditions.model_construct(battery_temperature_c=temperature_c),
         storage=None if storage_s is None else StorageSpec.model_construct(duration_s=storage_s),
-        charger=None)
+        charger=None, request=[])  # every field given: a default factory's signature is slow
 
 
 def _setting(charge: Any, temperature_c: float) -> ChargeSetting:

@@ -158,6 +158,9 @@ class Result:
 
 
 _COLUMNS = tuple(Visits.__dataclass_fields__)
+#: The visits' small columns kept small (a season holds millions of visits).
+_DTYPES = {"kind": np.int8, "act": np.int8, "where": np.int16, "bay": np.int16,
+           "thaw": bool, "freeze": bool, "remedy": np.int8}
 
 
 class _State:
@@ -176,6 +179,7 @@ class _State:
         sd = self_discharge_rate(s.rate[:, None, None], s.bay_mean[None, :, :],
                                  s.reference_c[:, None, None], s.doubling_k[:, None, None])
         self.sd = sd.reshape(-1, s.days)
+        self.sd_by_day = np.ascontiguousarray(self.sd.T)
         self.cum = np.concatenate([np.zeros((self.sd.shape[0], 1)),
                                    np.cumsum(self.sd, axis=1)], axis=1)
         self.nbays = s.bay_mean.shape[0]
@@ -192,18 +196,9 @@ class _State:
         loss = loss + draw * np.arange(1, end - d + 1)[None, :]
         return np.maximum(soc[:, None] - loss, 0.0)
 
-    def at_risk(self, idx: np.ndarray, soc: np.ndarray, d: int, end: int) -> np.ndarray:
-        """(len(idx), end-d): lead-acid whose predicted charge is in its freezing range."""
-        out = np.zeros((len(idx), max(end - d, 0)), dtype=bool)
-        lead = np.flatnonzero(self.s.lead[idx])
-        if lead.size:
-            pred = self.predicted(idx[lead], soc[lead], d, end)
-            out[lead] = pred < self.safe_soc[self.bay[idx[lead]], d:end]
-        return out
-
     def record(self, **columns: np.ndarray) -> None:
         for name in _COLUMNS:
-            self.parts[name].append(np.asarray(columns[name]))
+            self.parts[name].append(np.asarray(columns[name], dtype=_DTYPES.get(name)))
 
 
 def _safe_soc(bay_min: np.ndarray) -> np.ndarray:
@@ -217,22 +212,23 @@ def _safe_soc(bay_min: np.ndarray) -> np.ndarray:
 
 
 def chargeable(s: Season, bays: np.ndarray, idx: np.ndarray, d: int,
-               soc: np.ndarray) -> np.ndarray:
+               freeze_c: np.ndarray) -> np.ndarray:
     """Inside the battery's charge window in that bay today, with mains (lead-acid: and not
-    frozen, TM 5-1185)."""
+    frozen, TM 5-1185; ``freeze_c`` is its electrolyte's freezing point now)."""
     ok = (s.bay_min[bays, d] >= s.charge_min_c[idx]) & (s.bay_mean[bays, d] <= s.charge_max_c[idx])
-    frozen = s.lead[idx] & (s.bay_min[bays, d] <= freezing_point_at(soc))
+    frozen = s.lead[idx] & (s.bay_min[bays, d] <= freeze_c)
     return ok & ~frozen & s.mains[bays]
 
 
-def _place(st: _State, idx: np.ndarray, d: int, soc: np.ndarray, thaw: np.ndarray) -> np.ndarray:
+def _place(st: _State, idx: np.ndarray, d: int, freeze_c: np.ndarray,
+           thaw: np.ndarray) -> np.ndarray:
     """Where each battery can be charged today: its own bay, else the warm room; -1 nowhere.
     A battery to be thawed goes to the warm room first where there is one."""
     s = st.s
-    here = chargeable(s, st.bay[idx], idx, d, soc)
+    here = chargeable(s, st.bay[idx], idx, d, freeze_c)
     if s.warm < 0:
         return np.where(here, st.bay[idx], -1)
-    there = chargeable(s, np.full(len(idx), s.warm), idx, d, soc)
+    there = chargeable(s, np.full(len(idx), s.warm), idx, d, freeze_c)
     first = np.where(thaw & there, s.warm, np.where(here, st.bay[idx], -1))
     return np.where(first >= 0, first, np.where(there, s.warm, -1))
 
@@ -245,7 +241,7 @@ def _charge_act(s: Season, idx: np.ndarray, soc: np.ndarray) -> np.ndarray:
     return np.where(s.lead[idx], Act.TOP_UP, np.where(s.lfp[idx], Act.COUNT_DOWN, lithium))
 
 
-def _intake(st: _State, idx: np.ndarray, d: int, soc: np.ndarray):
+def _intake(st: _State, idx: np.ndarray, d: int, soc: np.ndarray, freeze_c: np.ndarray):
     """Intake (or a reading): lead-acid charged full; lithium to its storage band."""
     s = st.s
     known = ~np.isnan(soc)
@@ -253,21 +249,99 @@ def _intake(st: _State, idx: np.ndarray, d: int, soc: np.ndarray):
     li_ok = known & (soc >= low) & (soc <= high) & ~s.lead[idx]
     lead_ok = s.lead[idx] & (soc >= s.target[idx] - FULL_WITHIN_PCT)
     need = ~(li_ok | lead_ok)
-    thaw = s.lead[idx] & (s.bay_min[st.bay[idx], d] <= freezing_point_at(
-        np.nan_to_num(soc)) + FREEZE_MARGIN_K)
+    thaw = s.lead[idx] & (s.bay_min[st.bay[idx], d] <= freeze_c + FREEZE_MARGIN_K)
     act = np.where(need, _charge_act(s, idx, soc), Act.STORE)
     return act, thaw
 
 
-def _round(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray):
+def _round(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray,
+           cold: np.ndarray) -> np.ndarray:
+    """At a round: charged if it would fall below its threshold by the next round, if the
+    cold is coming (``cold``: its forecast reaches its freezing range) or if a charge is
+    still due; a battery on a maintainer is checked there."""
     s = st.s
-    pred = st.predicted(idx, soc, d, end)
-    cold = st.at_risk(idx, soc, d, end).any(axis=1)
+    k = st.key(idx)
+    draw = s.draw_pct_day[idx] * st.connected[idx]
+    # the forecast's last day, as ``predicted`` reckons it
+    last = np.maximum(soc - ((st.cum[k, end] - st.cum[k, d]) + draw * (end - d)), 0.0)
     full = soc >= s.target[idx] - FULL_WITHIN_PCT
-    need = ((pred[:, -1] < s.threshold[idx]) | cold | st.pending[idx]) & ~full
+    need = ((last < s.threshold[idx]) | cold | st.pending[idx]) & ~full
     act = np.where(need, _charge_act(s, idx, soc), Act.CHECK)
-    act = np.where(s.on_maintainer[idx], Act.MAINTAINER, act)
-    return act, np.zeros(len(idx), dtype=bool)
+    return np.where(s.on_maintainer[idx], Act.MAINTAINER, act)
+
+
+class _Forecast:
+    """The lead-acid batteries' forecasts of one visit (rows ``lead`` of ``idx``) and the days
+    each is in its freezing range, kept so that only the batteries whose charge, load or bay
+    changes are forecast again."""
+
+    def __init__(self, st: _State, idx: np.ndarray, soc: np.ndarray, d: int, end: int) -> None:
+        self.st, self.idx, self.d, self.end = st, idx, d, end
+        self.lead = np.flatnonzero(st.s.lead[idx])
+        self.soc = soc[self.lead].copy()
+        self.pred = st.predicted(idx[self.lead], self.soc, d, end)
+        self.cold = self._cold(self.lead, self.pred)
+
+    def _cold(self, rows: np.ndarray, pred: np.ndarray) -> np.ndarray:
+        return pred < self.st.safe_soc[self.st.bay[self.idx[rows]], self.d:self.end]
+
+    def update(self, rows: np.ndarray, soc: np.ndarray | None = None) -> None:
+        """Forecast again the visit's rows ``rows`` (positions in ``idx``), from ``soc``
+        where given (else from the charge they had), in their bay and with their load now."""
+        chosen = np.zeros(len(self.idx), dtype=bool)
+        chosen[rows] = True
+        at = np.flatnonzero(chosen[self.lead])
+        if not at.size:
+            return
+        if soc is not None:
+            self.soc[at] = soc[self.lead[at]]
+        self.pred[at] = self.st.predicted(self.idx[self.lead[at]], self.soc[at], self.d,
+                                          self.end)
+        self.cold[at] = self._cold(self.lead[at], self.pred[at])
+
+    def at_risk(self) -> np.ndarray:
+        """Per visit: its forecast reaches its freezing range before the next round."""
+        out = np.zeros(len(self.idx), dtype=bool)
+        out[self.lead] = self.cold.any(axis=1)
+        return out
+
+    def first_cold_day(self) -> np.ndarray:
+        """Per visit: the first day (from the visit's, 0) in its freezing range; 0 if none."""
+        out = np.zeros(len(self.idx), dtype=np.int64)
+        out[self.lead] = np.argmax(self.cold, axis=1)
+        return out
+
+    def margins(self, until: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Up to day ``until`` (per visit): the freezing point at the lowest charge, the bay's
+        lowest minimum, and the least (minimum - freezing point); NaN for lithium.
+
+        The bay's minimum holds for a month (or period) and the charge only falls, so the
+        least of each stretch of one minimum is on its last day: only those days are
+        reckoned (the same values as reckoning every day)."""
+        st, d, end = self.st, self.d, self.end
+        lows = st.s.bay_min[st.bay[self.idx], d:end]
+        days = np.arange(end - d)
+        last = days[None, :] == (until - d)[:, None]
+        seen = days[None, :] <= (until - d)[:, None]
+        turn = np.zeros_like(last)
+        turn[:, :-1] = lows[:, :-1] != lows[:, 1:]
+        row, day = np.nonzero(seen & (turn | last))
+        starts = np.flatnonzero(np.r_[True, row[1:] != row[:-1]])
+        low_c = np.minimum.reduceat(lows[row, day], starts)
+        freeze_c = np.full(len(self.idx), np.nan)
+        margin = np.full(len(self.idx), np.nan)
+        position = np.full(len(self.idx), -1)
+        position[self.lead] = np.arange(len(self.lead))
+        keep = position[row] >= 0
+        lead_row, lead_day = row[keep], day[keep]
+        if lead_row.size:
+            pred = self.pred[position[lead_row], lead_day]
+            first = np.flatnonzero(np.r_[True, lead_row[1:] != lead_row[:-1]])
+            rows = lead_row[first]
+            freeze_c[rows] = freezing_point_at(np.minimum.reduceat(pred, first))
+            margin[rows] = np.minimum.reduceat(lows[lead_row, lead_day]
+                                               - freezing_point_at(pred), first)
+        return freeze_c, low_c, margin
 
 
 def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
@@ -275,14 +349,17 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
     """Decide for the batteries ``idx`` visited on day ``d`` and record the visits."""
     s = st.s
     intake = kind != Kind.ROUND
-    act_i, thaw = _intake(st, idx, d, soc)
-    act_r, _ = _round(st, idx, d, end, soc)
+    known = np.nan_to_num(soc)
+    forecast = _Forecast(st, idx, known, d, end)
+    before_risk = forecast.at_risk()
+    freeze_now = freezing_point_at(known)
+    act_i, thaw = _intake(st, idx, d, soc, freeze_now)
+    act_r = _round(st, idx, d, end, soc, before_risk & ~np.isnan(soc))
     act = np.where(intake, act_i, act_r)
     act = np.where(intake & (act == Act.STORE) & s.on_maintainer[idx], Act.MAINTAINER, act)
     act = np.where(s.refused[idx], Act.REFUSED, act)
-    before_risk = st.at_risk(idx, np.nan_to_num(soc), d, end).any(axis=1)
     charging = np.isin(act, CHARGES)
-    where = _place(st, idx, d, np.nan_to_num(soc), thaw)
+    where = _place(st, idx, d, freeze_now, thaw)
     act = np.where(charging & (where < 0), Act.WAIT, act)
     where = np.where((where < 0) | ~np.isin(act, CHARGES), st.bay[idx], where)
     st.pending[idx] = act == Act.WAIT
@@ -290,19 +367,14 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
     after = np.where(s.on_maintainer[idx] & ~s.refused[idx] & (act != Act.WAIT),
                      s.target[idx], after)
     after = np.where(np.isnan(after), s.unknown_soc, after)  # unknown, waiting: the worst
-    remedy, remedy_day = _remedies(st, idx, d, end, after, act)
+    forecast.update(np.flatnonzero(after != known), after)
+    remedy, remedy_day = _remedies(st, idx, d, forecast)
     remedy = np.where(before_risk & (remedy == Remedy.NONE) & charging, Remedy.CHARGE_NOW,
                       remedy)
     st.soc[idx] = after
     # the margin until the next visit: the next round, or the extra top-up called for
-    pred = st.predicted(idx, after, d, end)
     until = np.where(remedy == Remedy.SOONER, remedy_day, end - 1)
-    seen = np.arange(d, end)[None, :] <= until[:, None]
-    pred = np.where(seen, pred, np.nan)
-    lows = np.where(seen, s.bay_min[st.bay[idx], d:end], np.nan)
-    freeze_c = np.where(s.lead[idx], freezing_point_at(np.nanmin(pred, axis=1)), np.nan)
-    low_c = np.nanmin(lows, axis=1)
-    margin = np.where(s.lead[idx], np.nanmin(lows - freezing_point_at(pred), axis=1), np.nan)
+    freeze_c, low_c, margin = forecast.margins(until)
     risk = before_risk | (remedy != Remedy.NONE)
     st.record(day=np.full(len(idx), d), battery=idx, kind=kind, act=act, where=where,
               bay=st.bay[idx].copy(), soc_before=soc, soc_after=after, thaw=thaw,
@@ -311,26 +383,28 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
               end_day=until)
 
 
-def _remedies(st: _State, idx: np.ndarray, d: int, end: int, soc: np.ndarray,
-              act: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _remedies(st: _State, idx: np.ndarray, d: int,
+              forecast: _Forecast) -> tuple[np.ndarray, np.ndarray]:
     """For lead-acid still at risk after the visit: disconnect its load, else move it to the
     warm room, else top it up again by the day before it reaches its freezing range."""
     s = st.s
     remedy = np.full(len(idx), Remedy.NONE)
     remedy_day = np.full(len(idx), -1)
     eligible = ~s.on_maintainer[idx] & ~s.refused[idx]
-    risk = st.at_risk(idx, soc, d, end).any(axis=1) & eligible
+    risk = forecast.at_risk() & eligible
     load = risk & st.connected[idx] & s.may_disconnect[idx] & (s.draw_pct_day[idx] > 0)
     st.connected[idx[load]] = False
     remedy[load] = Remedy.DISCONNECT
-    risk = st.at_risk(idx, soc, d, end).any(axis=1) & eligible
+    forecast.update(np.flatnonzero(load))
+    risk = forecast.at_risk() & eligible
     if s.warm >= 0:
         move = risk & (st.bay[idx] != s.warm)
         st.bay[idx[move]] = s.warm
         remedy[move] = Remedy.MOVE
-        risk = st.at_risk(idx, soc, d, end).any(axis=1) & eligible
+        forecast.update(np.flatnonzero(move))
+        risk = forecast.at_risk() & eligible
     if risk.any():
-        first = np.argmax(st.at_risk(idx, soc, d, end), axis=1)
+        first = forecast.first_cold_day()
         sooner = risk & (first > 0)
         remedy[sooner] = Remedy.SOONER
         remedy_day[sooner] = d + first[sooner] - 1
@@ -352,15 +426,29 @@ def _next_round(s: Season, d: int) -> int:
 
 def _walk_days(st: _State, d: int, stop: int, soc_daily: np.ndarray,
                bay_daily: np.ndarray) -> None:
+    """Days d..stop-1, with no decision among them: each present battery loses its day's
+    self-discharge and load (none while a maintainer holds it), stopping at empty. The
+    losses are summed in day order, as a day-by-day walk subtracts them, to the last bit."""
     s = st.s
-    rows = np.arange(s.n)
-    for day in range(d, stop):
-        present = (s.arrive <= day) & (s.depart >= day)
-        loss = st.sd[st.key(rows), day] + s.draw_pct_day * st.connected
-        held = s.on_maintainer & ~st.pending & ~s.refused
-        st.soc = np.where(present & ~held, np.maximum(st.soc - loss, 0.0), st.soc)
-        soc_daily[:, day] = np.where(present, st.soc, np.nan)
-        bay_daily[:, day] = st.bay
+    held = s.on_maintainer & ~st.pending & ~s.refused
+    # (days, batteries): day by day down the first axis
+    walk = np.empty((stop - d + 1, s.n))
+    walk[0] = st.soc
+    np.negative(np.take(st.sd_by_day[d:stop], st.key(np.arange(s.n)), axis=1), out=walk[1:])
+    walk[1:] -= s.draw_pct_day * st.connected
+    walk[1:, held] = 0.0
+    whole = bool((s.arrive <= d).all() and (s.depart >= stop - 1).all())
+    if not whole:
+        days = np.arange(d, stop)[:, None]
+        present = (s.arrive <= days) & (s.depart >= days)
+        walk[1:][~present] = 0.0
+    np.cumsum(walk, axis=0, out=walk)
+    np.maximum(walk, 0.0, out=walk)
+    st.soc = walk[-1].copy()
+    if not whole:
+        walk[1:][~present] = np.nan
+    soc_daily[:, d:stop] = walk[1:].T
+    bay_daily[:, d:stop] = st.bay[:, None]
 
 
 def _visitors(st: _State, d: int, rounds: set[int],
@@ -385,8 +473,9 @@ def _visitors(st: _State, d: int, rounds: set[int],
 def run_season(s: Season) -> Result:
     """Walk the season (see the module docstring); every visit is recorded."""
     st = _State(s)
-    soc_daily = np.full((s.n, s.days), np.nan, dtype=np.float32)
-    bay_daily = np.zeros((s.n, s.days), dtype=np.int16)
+    # day-major in memory (the walk writes a stretch of days for every battery at once)
+    soc_daily = np.full((s.n, s.days), np.nan, dtype=np.float32, order="F")
+    bay_daily = np.zeros((s.n, s.days), dtype=np.int16, order="F")
     rounds = set(s.round_days)
     readings: dict[int, list[tuple[int, float]]] = {}
     for day, i, value in s.readings:
@@ -404,8 +493,11 @@ def run_season(s: Season) -> Result:
         d = stop
     _release(st, soc_daily)
     parts = {c: np.concatenate(v) if v else np.zeros(0) for c, v in st.parts.items()}
-    order = np.lexsort((parts["battery"], parts["day"]))
-    visits = Visits(**{c: v[order] for c, v in parts.items()})
+    key = parts["day"].astype(np.int64) * max(s.n, 1) + parts["battery"]
+    if key.size and bool((key[1:] < key[:-1]).any()):  # by day, then battery (stable)
+        order = np.argsort(key, kind="stable")
+        parts = {c: v[order] for c, v in parts.items()}
+    visits = Visits(**parts)
     return Result(visits, soc_daily, bay_daily, st.bay, st.connected)
 
 

@@ -317,30 +317,29 @@ class _Forecast:
 
         The bay's minimum holds for a month (or period) and the charge only falls, so the
         least of each stretch of one minimum is on its last day: only those days are
-        reckoned (the same values as reckoning every day)."""
+        reckoned (the same values as reckoning every day), for all the visits of one bay and
+        one last day at once."""
         st, d, end = self.st, self.d, self.end
-        lows = st.s.bay_min[st.bay[self.idx], d:end]
-        days = np.arange(end - d)
-        last = days[None, :] == (until - d)[:, None]
-        seen = days[None, :] <= (until - d)[:, None]
-        turn = np.zeros_like(last)
-        turn[:, :-1] = lows[:, :-1] != lows[:, 1:]
-        row, day = np.nonzero(seen & (turn | last))
-        starts = np.flatnonzero(np.r_[True, row[1:] != row[:-1]])
-        low_c = np.minimum.reduceat(lows[row, day], starts)
-        freeze_c = np.full(len(self.idx), np.nan)
-        margin = np.full(len(self.idx), np.nan)
-        position = np.full(len(self.idx), -1)
+        n = len(self.idx)
+        freeze_c, low_c, margin = np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan)
+        position = np.full(n, -1)
         position[self.lead] = np.arange(len(self.lead))
-        keep = position[row] >= 0
-        lead_row, lead_day = row[keep], day[keep]
-        if lead_row.size:
-            pred = self.pred[position[lead_row], lead_day]
-            first = np.flatnonzero(np.r_[True, lead_row[1:] != lead_row[:-1]])
-            rows = lead_row[first]
-            freeze_c[rows] = freezing_point_at(np.minimum.reduceat(pred, first))
-            margin[rows] = np.minimum.reduceat(lows[lead_row, lead_day]
-                                               - freezing_point_at(pred), first)
+        bays = st.bay[self.idx]
+        group = bays.astype(np.int64) * (end - d) + (until - d)
+        found, which = np.unique(group, return_inverse=True)
+        order = np.argsort(which, kind="stable")
+        bounds = np.searchsorted(which[order], np.arange(len(found) + 1))
+        for g, code in enumerate(found.tolist()):
+            bay, last = divmod(code, end - d)
+            lows = st.s.bay_min[bay, d:d + last + 1]
+            days = np.flatnonzero(np.r_[lows[:-1] != lows[1:], True])  # each stretch's last
+            rows = order[bounds[g]:bounds[g + 1]]
+            low_c[rows] = lows[days].min()
+            lead = rows[position[rows] >= 0]
+            if lead.size:
+                pred = self.pred[position[lead][:, None], days[None, :]]
+                freeze_c[lead] = freezing_point_at(pred.min(axis=1))
+                margin[lead] = (lows[days][None, :] - freezing_point_at(pred)).min(axis=1)
         return freeze_c, low_c, margin
 
 

@@ -190,10 +190,11 @@ class _State:
 
     def predicted(self, idx: np.ndarray, soc: np.ndarray, d: int, end: int) -> np.ndarray:
         """Charge at the end of each day d..end-1 from ``soc`` at the start of day d."""
-        k = self.key(idx)
-        loss = self.cum[k, d + 1:end + 1] - self.cum[k, d][:, None]
-        draw = (self.s.draw_pct_day[idx] * self.connected[idx])[:, None]
-        loss = loss + draw * np.arange(1, end - d + 1)[None, :]
+        by_key = self.cum[:, d + 1:end + 1] - self.cum[:, d][:, None]  # a few kinds x bays
+        loss = by_key[self.key(idx)]
+        draw = self.s.draw_pct_day[idx] * self.connected[idx]
+        drawn = np.flatnonzero(draw)
+        loss[drawn] += draw[drawn, None] * np.arange(1, end - d + 1)[None, :]
         return np.maximum(soc[:, None] - loss, 0.0)
 
     def record(self, **columns: np.ndarray) -> None:

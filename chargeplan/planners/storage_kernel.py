@@ -159,8 +159,9 @@ class Result:
 
 _COLUMNS = tuple(Visits.__dataclass_fields__)
 #: The visits' small columns kept small (a season holds millions of visits).
-_DTYPES = {"kind": np.int8, "act": np.int8, "where": np.int16, "bay": np.int16,
-           "thaw": bool, "freeze": bool, "remedy": np.int8}
+_DTYPES = {"day": np.int32, "battery": np.int32, "kind": np.int8, "act": np.int8,
+           "where": np.int16, "bay": np.int16, "thaw": bool, "freeze": bool, "remedy": np.int8,
+           "remedy_day": np.int32, "end_day": np.int32}
 
 
 class _State:
@@ -475,7 +476,8 @@ def run_season(s: Season) -> Result:
     st = _State(s)
     # day-major in memory (the walk writes a stretch of days for every battery at once)
     soc_daily = np.full((s.n, s.days), np.nan, dtype=np.float32, order="F")
-    bay_daily = np.zeros((s.n, s.days), dtype=np.int16, order="F")
+    bay_daily = np.zeros((s.n, s.days), dtype=np.int8 if s.bay_mean.shape[0] < 128 else np.int16,
+                         order="F")
     rounds = set(s.round_days)
     readings: dict[int, list[tuple[int, float]]] = {}
     for day, i, value in s.readings:

@@ -205,9 +205,9 @@ class InventoryCsvRow(InventoryRow):
         if not isinstance(data, dict):
             return data
         known = _known_columns(cls)
-        extra = {k: v for k, v in data.items() if k not in known}
-        if not extra:
+        if known.issuperset(data):  # the usual row: every column is the model's
             return data
+        extra = {k: v for k, v in data.items() if k not in known}
         kept = {k: v for k, v in data.items() if k in known}
         carried = "; ".join(f"{k}: {v}" for k, v in extra.items())
         kept["notes"] = "; ".join(p for p in (str(kept.get("notes", "")), carried) if p)

@@ -13,10 +13,8 @@ read back as they are.
 from __future__ import annotations
 
 import csv
-import gc
 import re
 from collections.abc import Iterable, Iterator
-from contextlib import contextmanager
 from itertools import compress
 from pathlib import Path
 from typing import Any
@@ -157,57 +155,36 @@ def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, 
     keys = [csv_unguard(name.strip()) for name in header]
     width = len(header)
     previous = rows.line_num
-    while True:
-        try:
-            cells = next(rows)
-            while not cells:  # a blank line
-                cells = next(rows)
-        except StopIteration:
-            return
-        except csv.Error as error:
-            errors.append(str(_csv_error(error, shown, rows.line_num)))
-            return
-        line, first, previous = rows.line_num, previous + 1, rows.line_num
-        joined = "".join(cells)  # one test of the row's text, then each cell only if it holds
-        if "\n" in joined and any("\n" in cell for cell in cells[:width]):
-            errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
-                          f"{line}); check the row for a stray double quote")
-            continue
-        if len(cells) > width:
-            errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
-                          "stray comma or quote")
-            continue
-        if len(joined) > MAX_CELL_CHARS:
-            long = next(((name, cell) for name, cell in zip(header, cells, strict=False)
-                         if len(cell) > MAX_CELL_CHARS), None)
-            if long is not None:
-                errors.append(f"{shown}: line {line}: {long[0][:80]}: the cell is "
-                              f"{len(long[1]):,} characters long, more than {MAX_CELL_CHARS:,}; "
-                              "check the row")
-                continue
-        stripped = list(map(str.strip, cells))
-        data = dict(compress(zip(keys, stripped, strict=False), stripped))  # the cells not empty
-        if "'" in joined:  # a guarded cell, perhaps: take the apostrophe off
-            data = {key: csv_unguard(cell) for key, cell in data.items()}
-        yield line, data
-
-
-@contextmanager
-def _collector_paused() -> Iterator[None]:
-    """The cyclic garbage collector paused, if it runs, while a file's rows are made.
-
-    Each row made counts toward a collection, and as the rows pile up each full collection
-    walks every row made so far: a fifth of the time of reading 100,000 rows, to find
-    nothing (rows hold no reference cycles). It is enabled again however the block ends.
-    """
-    if not gc.isenabled():
-        yield
-        return
-    gc.disable()
     try:
-        yield
-    finally:
-        gc.enable()
+        for cells in rows:
+            if not cells:  # a blank line
+                continue
+            line = rows.line_num
+            first, previous = previous + 1, line
+            joined = "".join(cells)  # one test of the row's text; each cell only if it fails
+            if "\n" in joined and any("\n" in cell for cell in cells[:width]):
+                errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
+                              f"{line}); check the row for a stray double quote")
+                continue
+            if len(cells) > width:
+                errors.append(f"{shown}: line {line}: has more cells than the header; check "
+                              "for a stray comma or quote")
+                continue
+            if len(joined) > MAX_CELL_CHARS:
+                long = next(((name, cell) for name, cell in zip(header, cells, strict=False)
+                             if len(cell) > MAX_CELL_CHARS), None)
+                if long is not None:
+                    errors.append(f"{shown}: line {line}: {long[0][:80]}: the cell is "
+                                  f"{len(long[1]):,} characters long, more than "
+                                  f"{MAX_CELL_CHARS:,}; check the row")
+                    continue
+            stripped = list(map(str.strip, cells))
+            data = dict(compress(zip(keys, stripped, strict=False), stripped))  # the non-empty
+            if "'" in joined:  # a guarded cell, perhaps: take the apostrophe off
+                data = {key: csv_unguard(cell) for key, cell in data.items()}
+            yield line, data
+    except csv.Error as error:  # the csv module cannot read on: the file's reading ends
+        errors.append(str(_csv_error(error, shown, rows.line_num)))
 
 
 def read_rows(path: str | Path, model: Any) -> list[Any]:
@@ -223,23 +200,22 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     errors: list[str] = []
     seen: set[str | None] = set()
     validate = model.__pydantic_validator__.validate_python  # what model_validate calls
-    with _collector_paused():
-        for line, data in csv_rows(reader, shown, errors):
-            if "cells_in_series" in data:
-                try:
-                    data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
-                except ValueError:
-                    pass
-            if data.get("id") in seen:
-                errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
-                              "each battery its own id")
-                continue
-            seen.add(data.get("id"))
+    for line, data in csv_rows(reader, shown, errors):
+        if "cells_in_series" in data:
             try:
-                rows.append(validate(data))
-            except ValidationError as error:
-                problem = input_error(error, file=f"{shown}: line {line}", model=model)
-                errors.append(str(problem))
+                data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
+            except ValueError:
+                pass
+        if data.get("id") in seen:
+            errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
+                          "each battery its own id")
+            continue
+        seen.add(data.get("id"))
+        try:
+            rows.append(validate(data))
+        except ValidationError as error:
+            problem = input_error(error, file=f"{shown}: line {line}", model=model)
+            errors.append(str(problem))
     if errors:
         raise InputErrors(errors)
     return rows

@@ -15,6 +15,7 @@ from __future__ import annotations
 import csv
 import re
 from collections.abc import Iterable, Iterator
+from itertools import compress
 from pathlib import Path
 from typing import Any
 
@@ -141,38 +142,49 @@ def _csv_error(error: csv.Error, shown: str, line: int) -> InputError:
 
 
 def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, dict[str, str]]]:
-    """Each row's line and non-empty cells; a stray quote, an extra cell or an over-long cell
-    is an error (a row the csv module cannot read ends the file's reading)."""
-    previous = reader.line_num
-    rows = iter(reader)
-    while True:
-        try:
-            raw = next(rows)
-        except StopIteration:
-            return
-        except csv.Error as error:
-            line = getattr(reader, "reader", reader).line_num  # the physical line it stopped on
-            errors.append(str(_csv_error(error, shown, line)))
-            return
-        line, first, previous = reader.line_num, previous + 1, reader.line_num
-        if any("\n" in (v or "") for v in raw.values() if isinstance(v, str)):
-            errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
-                          f"{line}); check the row for a stray double quote")
-            continue
-        if raw.get(None):
-            errors.append(f"{shown}: line {line}: has more cells than the header; check for a "
-                          "stray comma or quote")
-            continue
-        long = next((k for k, v in raw.items() if isinstance(v, str)
-                     and len(v) > MAX_CELL_CHARS), None)
-        if long is not None:
-            errors.append(f"{shown}: line {line}: {str(long)[:80]}: the cell is "
-                          f"{len(raw[long]):,} characters long, more than {MAX_CELL_CHARS:,}; "
-                          "check the row")
-            continue
-        data = {csv_unguard((k or "").strip()): csv_unguard((v or "").strip())
-                for k, v in raw.items()}
-        yield line, {k: v for k, v in data.items() if v != ""}
+    """Each row's line and non-empty cells (stripped and unguarded, under the header's names);
+    a stray quote, an extra cell or an over-long cell is an error (a row the csv module cannot
+    read ends the file's reading). Blank lines are skipped.
+
+    ``reader`` is the one :func:`csv_reader` returns, its header read. The rows are taken from
+    the csv reader under it as lists (a dict a row, built here once, instead of the
+    DictReader's dict and then ours); the header's names are stripped and unguarded once.
+    """
+    rows = reader.reader  # the csv reader: its line_num is the physical line
+    header = reader.fieldnames or []
+    keys = [csv_unguard(name.strip()) for name in header]
+    width = len(header)
+    previous = rows.line_num
+    try:
+        for cells in rows:
+            if not cells:  # a blank line
+                continue
+            line = rows.line_num
+            first, previous = previous + 1, line
+            joined = "".join(cells)  # one test of the row's text; each cell only if it fails
+            if "\n" in joined and any("\n" in cell for cell in cells[:width]):
+                errors.append(f"{shown}: line {first}: a quote is not closed (it runs to line "
+                              f"{line}); check the row for a stray double quote")
+                continue
+            if len(cells) > width:
+                errors.append(f"{shown}: line {line}: has more cells than the header; check "
+                              "for a stray comma or quote")
+                continue
+            if len(joined) > MAX_CELL_CHARS:
+                long = next(((name, cell) for name, cell in zip(header, cells, strict=False)
+                             if len(cell) > MAX_CELL_CHARS), None)
+                if long is not None:
+                    errors.append(f"{shown}: line {line}: {long[0][:80]}: the cell is "
+                                  f"{len(long[1]):,} characters long, more than "
+                                  f"{MAX_CELL_CHARS:,}; check the row")
+                    continue
+            stripped = list(map(str.strip, cells))
+            data = dict(compress(zip(keys, stripped, strict=False), stripped))  # the non-empty
+            if "'" in joined:  # a guarded cell, perhaps: take the apostrophe off
+                data = {key: csv_unguard(cell) for key, cell in data.items()}
+            yield line, data
+    except csv.Error as error:  # the csv module cannot read on: the file's reading ends
+        errors.append(str(_csv_error(error, shown, rows.line_num)))
 
 
 def read_rows(path: str | Path, model: Any) -> list[Any]:
@@ -187,6 +199,7 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     rows: list[Any] = []
     errors: list[str] = []
     seen: set[str | None] = set()
+    validate = model.__pydantic_validator__.validate_python  # what model_validate calls
     for line, data in csv_rows(reader, shown, errors):
         if "cells_in_series" in data:
             try:
@@ -199,12 +212,10 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
             continue
         seen.add(data.get("id"))
         try:
-            rows.append(model.model_validate(data))
+            rows.append(validate(data))
         except ValidationError as error:
             problem = input_error(error, file=f"{shown}: line {line}", model=model)
             errors.append(str(problem))
     if errors:
         raise InputErrors(errors)
     return rows
-
-

@@ -13,7 +13,8 @@ from pydantic import Field, model_validator
 from chargeplan.model.fields import InputModel, Text, quantity
 from chargeplan.model.rows import BatteryRow
 
-__all__ = ["DAY_S", "Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile"]
+__all__ = ["DAY_S", "Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile",
+           "load_connected"]
 
 #: Seconds in a day: the storage season is counted in whole days.
 DAY_S = 86400
@@ -142,9 +143,16 @@ class InventoryRow(BatteryRow):
     @property
     def load_connected(self) -> bool:
         """The model follows what staff are told: a load draws only while connected."""
-        if self.loads is not None:
-            return self.loads == "connected"
-        return bool(self.parasitic_draw_a)
+        return load_connected(self.loads, self.parasitic_draw_a)
+
+
+def load_connected(loads: str | None, parasitic_draw_a: float | None) -> bool:
+    """Whether a battery's load stays connected, from its ``loads`` and ``parasitic_draw``:
+    as ``loads`` says, else connected when it has a draw (:attr:`InventoryRow.load_connected`;
+    the storage intake asks this of its columns)."""
+    if loads is not None:
+        return loads == "connected"
+    return bool(parasitic_draw_a)
 
 
 class SiteFile(InputModel):
@@ -205,9 +213,9 @@ class InventoryCsvRow(InventoryRow):
         if not isinstance(data, dict):
             return data
         known = _known_columns(cls)
-        extra = {k: v for k, v in data.items() if k not in known}
-        if not extra:
+        if known.issuperset(data):  # the usual row: every column is the model's
             return data
+        extra = {k: v for k, v in data.items() if k not in known}
         kept = {k: v for k, v in data.items() if k in known}
         carried = "; ".join(f"{k}: {v}" for k, v in extra.items())
         kept["notes"] = "; ".join(p for p in (str(kept.get("notes", "")), carried) if p)

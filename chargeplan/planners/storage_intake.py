@@ -10,13 +10,14 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass
+from operator import attrgetter
 from typing import Any
 
 import numpy as np
 
 from chargeplan.csvfile import InputErrors
 from chargeplan.errors import InputError
-from chargeplan.model.storage import InventoryRow, SiteFile
+from chargeplan.model.storage import InventoryRow, SiteFile, load_connected
 from chargeplan.physics.ocv import soc_from_ocv
 from chargeplan.profiles import ProfileSet
 
@@ -67,102 +68,149 @@ def flat_reading(profile: Any, soc_pct: float) -> bool:
     return profile.rest_voltage.in_flat_band(soc_pct)
 
 
-def _cells(row: InventoryRow, profile: Any) -> int | None:
+#: What a row's profile, cell count and bay follow from: rows alike in these resolve alike.
+_KIND = ("chemistry", "nominal_voltage_v", "cells_in_series", "bay")
+#: The per-battery values the arrays take from each row as it is.
+_COLUMNS = ("capacity_ah", "state_of_charge_pct", "rest_voltage_v", "parasitic_draw_a", "loads",
+            "arrive", "depart")
+
+
+def _columns(rows: list[InventoryRow]) -> dict[str, list[Any]]:
+    """The rows' fields of _KIND and _COLUMNS, a list a field."""
+    return {name: list(map(attrgetter(name), rows)) for name in (*_KIND, *_COLUMNS)}
+
+
+def _cells(nominal_voltage_v: float | None, cells_in_series: int | None,
+           profile: Any) -> int | None:
     from chargeplan.engine.rules.derive import NOMINAL_TOLERANCE, cell_counts
 
-    if row.cells_in_series is not None:
-        return row.cells_in_series
-    assert row.nominal_voltage_v is not None
-    fits = cell_counts(row.nominal_voltage_v, profile.nominal_cell_voltage.value,
+    if cells_in_series is not None:
+        return cells_in_series
+    assert nominal_voltage_v is not None
+    fits = cell_counts(nominal_voltage_v, profile.nominal_cell_voltage.value,
                        NOMINAL_TOLERANCE[profile.family])
     if len(fits) > 1 and profile.family == "lithium":
         # a trade name rounds down (12.8 V LiFePO4 is sold as '12 V', 25.6 V as '24 V')
-        above = [n for n in fits if n * profile.nominal_cell_voltage.value >= row.nominal_voltage_v]
+        above = [n for n in fits if n * profile.nominal_cell_voltage.value >= nominal_voltage_v]
         fits = above[:1] or fits
     return fits[0] if len(fits) == 1 else None
 
 
-def _resolve_row(row: InventoryRow, profile_set: ProfileSet, bay_names: list[str],
-                 where: str) -> tuple[Any, int, int] | str:
-    """The row's profile, cell count and bay, or the one-line error."""
+def _resolve_kind(kind: tuple[Any, ...], profile_set: ProfileSet,
+                  bay_names: list[str]) -> tuple[Any, int, int] | str:
+    """The profile, cell count and bay of rows of this kind, or what is wrong with them (the
+    message after the battery's name)."""
+    chemistry, nominal_voltage_v, cells_in_series, bay = kind
     try:
-        profile = profile_for(profile_set, row.chemistry)
+        profile = profile_for(profile_set, chemistry)
     except InputError as error:
-        return f"{where}: chemistry: {error.problem}; {error.fix}"
-    count = _cells(row, profile)
+        return f"chemistry: {error.problem}; {error.fix}"
+    count = _cells(nominal_voltage_v, cells_in_series, profile)
     if count is None:
-        return f"{where}: nominal_voltage: no single cell count fits; give cells_in_series"
-    if row.bay not in bay_names:
-        return f"{where}: bay: '{row.bay}' is not a bay of the site; use one of " + ", ".join(
-            bay_names)
-    return profile, count, bay_names.index(row.bay)
-
-
-def _soc_at_intake(row: InventoryRow, profile: Any, cells: int) -> float:
-    if row.state_of_charge_pct is not None:
-        return row.state_of_charge_pct
-    assert row.rest_voltage_v is not None
-    soc = float(soc_from_ocv(row.rest_voltage_v / cells, profile.rest_voltage.table))
-    return float("nan") if flat_reading(profile, soc) else soc
-
-
-def _day(site_file: SiteFile, day: dt.date | None, default: int) -> int:
-    return default if day is None else (day - site_file.site.start).days
+        return "nominal_voltage: no single cell count fits; give cells_in_series"
+    if bay not in bay_names:
+        return f"bay: '{bay}' is not a bay of the site; use one of " + ", ".join(bay_names)
+    return profile, count, bay_names.index(bay)
 
 
 def resolve_fleet(site_file: SiteFile, rows: list[InventoryRow], profile_set: ProfileSet,
                   inventory_file: str) -> Fleet:
-    """Every row resolved, or every bad row reported at once (each naming its file)."""
+    """Every row resolved, or every bad row reported at once (each naming its file).
+
+    Each kind of row (chemistry, nominal voltage, cells in series, bay) is resolved once;
+    each battery's arrays are its kind's values, then its own capacity, reading, load and
+    days (numpy, a column at a time)."""
     bay_names = [b.name for b in site_file.bays]
-    resolved, errors = [], []
-    seen: dict[tuple[Any, ...], Any] = {}  # rows alike but for their id resolve alike
-    for row in rows:
-        key = (row.chemistry, row.nominal_voltage_v, row.cells_in_series, row.bay)
-        got = seen.get(key)
-        if got is None:
-            got = _resolve_row(row, profile_set, bay_names, "{where}")
-            seen[key] = got
-        if isinstance(got, str):
-            got = got.format(where=f"{inventory_file}: battery {row.id}")
-        if isinstance(got, str):
-            errors.append(got)
-        else:
-            resolved.append(got)
-    if errors:
-        raise InputErrors(errors)
-    return _arrays(site_file, rows, resolved)
+    columns = _columns(rows)
+    kinds: dict[tuple[Any, ...], int] = {}
+    kind_of = [kinds.setdefault(kind, len(kinds))
+               for kind in zip(*(columns[name] for name in _KIND), strict=True)]
+    resolved = [_resolve_kind(kind, profile_set, bay_names) for kind in kinds]
+    if any(isinstance(got, str) for got in resolved):
+        raise InputErrors([f"{inventory_file}: battery {row.id}: {resolved[k]}"
+                           for row, k in zip(rows, kind_of, strict=True)
+                           if isinstance(resolved[k], str)])
+    return _arrays(site_file, rows, columns, resolved, np.array(kind_of, dtype=np.intp))
 
 
-def _arrays(site_file: SiteFile, rows: list[InventoryRow], resolved: list[Any]) -> Fleet:
+def _arrays(site_file: SiteFile, rows: list[InventoryRow], columns: dict[str, list[Any]],
+            resolved: list[Any], kind: np.ndarray) -> Fleet:
+    """The fleet's arrays: each kind's values (``resolved``, one entry a kind) taken for each
+    battery by its ``kind``, then the rows' own ``columns``."""
     site, days = site_file.site, site_file.site.days
-    profiles = [p for p, _c, _b in resolved]
-    cells = np.array([c for _p, c, _b in resolved], dtype=int)
-    lead = np.array([p.family == "lead_acid" for p in profiles], dtype=bool)
-    cap = np.array([r.capacity_ah for r in rows], dtype=float)
-    storage = np.array([100.0 if p.family == "lead_acid" else float(
-        soc_from_ocv(p.charge.storage_voltage.value, p.rest_voltage.table)) for p in profiles])
-    threshold = np.array([(site.lead_acid_top_up_pct if p.family == "lead_acid"
-                           else site.lithium_top_up_pct) or p.storage.top_up_below.value
-                          for p in profiles])
-    low_c = np.array([max(p.temperature.charge_min.value, p.envelope.charge_temperature_min.value)
-                      for p in profiles])
-    high_c = np.array([min(p.temperature.charge_max.value, p.envelope.charge_temperature_max.value)
-                       for p in profiles])
+    kind_profiles = [p for p, _c, _b in resolved]
+    kind_lead = np.array([p.family == "lead_acid" for p in kind_profiles], dtype=bool)
+    kind_storage = np.array([100.0 if p.family == "lead_acid" else float(
+        soc_from_ocv(p.charge.storage_voltage.value, p.rest_voltage.table))
+        for p in kind_profiles])
+    kind_threshold = np.array([(site.lead_acid_top_up_pct if p.family == "lead_acid"
+                                else site.lithium_top_up_pct) or p.storage.top_up_below.value
+                               for p in kind_profiles])
+    kind_low_c = np.array([max(p.temperature.charge_min.value,
+                               p.envelope.charge_temperature_min.value) for p in kind_profiles])
+    kind_high_c = np.array([min(p.temperature.charge_max.value,
+                                p.envelope.charge_temperature_max.value) for p in kind_profiles])
+    kind_storage_v = np.array([p.charge.storage_voltage.value if p.charge.storage_voltage
+                               else np.nan for p in kind_profiles])
+    kind_cells = [c for _p, c, _b in resolved]
+    cells = np.array(kind_cells, dtype=int)[kind]
+    lead, low_c = kind_lead[kind], kind_low_c[kind]
+    cap = np.array(columns["capacity_ah"], dtype=float)
+    profile_ids = [p.id for p in kind_profiles]
     return Fleet(
-        rows=rows, profiles=profiles, chemistry=[p.id for p in profiles], lead=lead,
-        lfp=np.array([p.rest_voltage.flat_band is not None for p in profiles], dtype=bool),
+        rows=rows, profiles=[kind_profiles[k] for k in kind.tolist()],
+        chemistry=[profile_ids[k] for k in kind.tolist()], lead=lead,
+        lfp=np.array([p.rest_voltage.flat_band is not None for p in kind_profiles],
+                     dtype=bool)[kind],
         cells=cells,
-        capacity_ah=cap, bay=np.array([b for _p, _c, b in resolved], dtype=int),
-        arrive=np.array([_day(site_file, r.arrive, 0) for r in rows], dtype=int),
-        depart=np.array([_day(site_file, r.depart, days - 1) for r in rows], dtype=int),
-        intake_soc=np.array([_soc_at_intake(r, p, c) for r, (p, c, _b) in
-                             zip(rows, resolved, strict=True)]),
-        storage_soc=storage, threshold=threshold,
-        storage_voltage_v=np.array([p.charge.storage_voltage.value if p.charge.storage_voltage
-                                    else np.nan for p in profiles]) * cells,
-        draw_pct_day=np.array([r.parasitic_draw_a or 0.0 for r in rows]) * 24.0 / cap * 100.0,
-        connected=np.array([r.load_connected for r in rows], dtype=bool),
-        may_disconnect=np.array([r.loads != "connected" for r in rows], dtype=bool),
+        capacity_ah=cap, bay=np.array([b for _p, _c, b in resolved], dtype=int)[kind],
+        arrive=_days(site_file, columns["arrive"], 0),
+        depart=_days(site_file, columns["depart"], days - 1),
+        intake_soc=_intake_soc(columns, kind, kind_profiles, kind_cells),
+        storage_soc=kind_storage[kind], threshold=kind_threshold[kind],
+        storage_voltage_v=kind_storage_v[kind] * cells,
+        draw_pct_day=np.array([d or 0.0 for d in columns["parasitic_draw_a"]],
+                              dtype=float) * 24.0 / cap * 100.0,
+        connected=np.fromiter(map(load_connected, columns["loads"], columns["parasitic_draw_a"]),
+                              dtype=bool, count=len(rows)),
+        may_disconnect=np.array([loads != "connected" for loads in columns["loads"]],
+                                dtype=bool),
         charge_min_c=np.where(lead, low_c, np.maximum(low_c, 0.0)),  # never lithium below 0
-        charge_max_c=high_c,
+        charge_max_c=kind_high_c[kind],
     )
+
+
+def _intake_soc(columns: dict[str, list[Any]], kind: np.ndarray,
+                kind_profiles: list[Any], kind_cells: list[int]) -> np.ndarray:
+    """The state of charge at intake: as given, or read off the profile's rest-voltage curve
+    (NaN where the voltage lies in the curve's flat band, see :func:`flat_reading`).
+
+    The voltages are looked up one curve at a time (a profile and a cell count), and each
+    distinct voltage of a curve once."""
+    soc = np.array(columns["state_of_charge_pct"], dtype=float)  # NaN where not given
+    by_voltage = np.flatnonzero(np.isnan(soc))
+    if by_voltage.size == 0:
+        return soc
+    volts = np.array([columns["rest_voltage_v"][i] for i in by_voltage.tolist()], dtype=float)
+    curves: dict[tuple[str, int], int] = {}  # (profile, cells) -> its curve's number
+    kind_curve = np.array([curves.setdefault((p.id, int(c)), len(curves))
+                           for p, c in zip(kind_profiles, kind_cells, strict=True)], dtype=np.intp)
+    curve = kind_curve[kind[by_voltage]]
+    for number, (profile_id, count) in enumerate(curves):
+        on_curve = curve == number
+        if not on_curve.any():
+            continue
+        profile = next(p for p in kind_profiles if p.id == profile_id)
+        distinct, which = np.unique(volts[on_curve], return_inverse=True)
+        read = soc_from_ocv(distinct / count, profile.rest_voltage.table)
+        read = np.array([float("nan") if flat_reading(profile, s) else s
+                         for s in read.tolist()], dtype=float)
+        soc[by_voltage[on_curve]] = read[which]
+    return soc
+
+
+def _days(site_file: SiteFile, column: list[dt.date | None], default: int) -> np.ndarray:
+    """Each date as a day of the season (0 is its first day), ``default`` where none is given."""
+    start = site_file.site.start
+    return np.array([default if day is None else (day - start).days for day in column],
+                    dtype=int)

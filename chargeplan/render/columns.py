@@ -92,11 +92,10 @@ def floats(values: np.ndarray, spec: str, *, blank: str | None = None,
     """Numbers as ``format(x, spec) + suffix``, NaN as ``blank`` (unless None); each
     distinct one once (distinct as stored: 0.0 and -0.0 are written apart, as Python writes
     them)."""
-    values = np.ascontiguousarray(values, dtype=np.float64)
-    _unique, first, inverse = np.unique(values.view(np.int64), return_index=True,
-                                        return_inverse=True)
+    bits, inverse = np.unique(np.ascontiguousarray(values, dtype=np.float64).view(np.int64),
+                              return_inverse=True)
     return Column([blank if blank is not None and x != x else format(x, spec) + suffix
-                   for x in values[first].tolist()], inverse.ravel())
+                   for x in bits.view(np.float64).tolist()], inverse.ravel())
 
 
 #: Neighbouring columns are written as one where their combinations number at most the

@@ -246,12 +246,11 @@ def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
     _unique, first, codes = np.unique(key, return_index=True, return_inverse=True)
     codes = codes.ravel()
     frames = [_charge_frame(s) for s in settings]
-    texts, currents = [], []
-    for s, current, shown in zip(setting[first].tolist(),
-                                 setting_currents(plan, chosen[first]).tolist(),
-                                 charged[first].tolist(), strict=True):
-        texts.append(_with_current(frames[s], current) if s >= 0 else "")
-        currents.append(f"{current:.1f}" if shown else "")
+    each, current = setting[first].tolist(), setting_currents(plan, chosen[first]).tolist()
+    shown = charged[first].tolist()
+    texts = [_with_current(frames[s], a) if s >= 0 else ""
+             for s, a in zip(each, current, strict=True)]
+    currents = [f"{a:.1f}" if c else "" for a, c in zip(current, shown, strict=True)]
     which = np.where(charged, setting, len(settings))  # the last entry: blank
 
     def per_setting(cell: Any) -> Column:
@@ -329,13 +328,14 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
     each = hours_of[plan.visit_setting] if plan.visit_setting is not None else np.zeros(len(v))
     hours = np.bincount(v.battery, weights=np.where(charging, each, 0.0), minlength=f.n)
     freeze = np.bincount(v.battery[v.freeze], minlength=f.n)
-    lowest = np.min(np.where(np.isnan(plan.soc_daily), np.inf, plan.soc_daily), axis=1)
+    lowest = np.fmin.reduce(plan.soc_daily, axis=1)  # NaN (absent) skipped; all NaN: NaN
     intake = np.flatnonzero(v.kind == Kind.INTAKE)
     intake_text = dict(zip(v.battery[intake].tolist(), action_column(plan, intake, texts).values(),
                            strict=True))
-    notes: dict[int, list[str]] = {}
+    notes: list[str | None] = [None] * f.n  # each battery's note codes, joined by spaces
     for note in plan.notes:
-        notes.setdefault(note.battery, []).append(note.code)
+        codes = notes[note.battery]
+        notes[note.battery] = note.code if codes is None else codes + " " + note.code
     last = plan.bay_daily[np.arange(f.n), f.depart]
     return csv_text(BATTERY_COLUMNS, csv_lines([
         texts.id_fields, texts.owner_fields, texts.chemistry, distinct(row.bay for row in f.rows),
@@ -344,7 +344,7 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
         floats(hours, ".1f"), floats(np.where(np.isfinite(lowest), lowest, np.nan), ".0f",
                                      blank=""),
         distinct(freeze.tolist()), Column(plan.bay_names, last),
-        distinct(" ".join(notes.get(i, [])) for i in range(f.n))]))
+        distinct(codes or "" for codes in notes)]))
 
 
 def calendar_events(plan: StoragePlan) -> list[Any]:
@@ -359,9 +359,10 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
     v = plan.visits
     events = []
-    charging = np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE)
+    charging = np.flatnonzero(np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE))
+    charge_day = v.day[charging]
     for d in plan.round_days:
-        due = np.flatnonzero(charging & (v.day == d))
+        due = charging[charge_day == d]
         lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
                  for k in due[:LISTED]]
         if len(due) > LISTED:
@@ -372,10 +373,12 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
             plan.dates[d] + dt.timedelta(days=1), f"Battery round, {name}: " + (
                 f"{len(due)} charge{'s' if len(due) != 1 else ''}" if len(due) else "checks only"),
             "\n".join(lines)))
-    for d in sorted(set(v.day[v.kind == Kind.RELEASE].tolist())):
-        ids = [plan.rows[int(b)].id for b in v.battery[(v.kind == Kind.RELEASE) & (v.day == d)]
-               [:LISTED]]
-        count = int(((v.kind == Kind.RELEASE) & (v.day == d)).sum())
+    release = np.flatnonzero(v.kind == Kind.RELEASE)
+    release_day = v.day[release]
+    for d in sorted(set(release_day.tolist())):
+        leaving = v.battery[release[release_day == d]]
+        ids = [plan.rows[int(b)].id for b in leaving[:LISTED]]
+        count = len(leaving)
         events.append(EventSpec(
             f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
             plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {count} "

@@ -5,9 +5,9 @@ as it is (rows left blank were not measured)."""
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 
@@ -31,15 +31,14 @@ READINGS_COLUMNS = ("date", "battery", "owner", "bay", "expected_rest_voltage", 
                     "returned_to_bay", "notes")
 
 
-@dataclass
-class Line:
+class Line(NamedTuple):
     battery: str
     owner: str
     location: str
     action: str
     charger: str
     expected: str
-    checks: list[str] = field(default_factory=list)
+    checks: tuple[str, ...] = ()
 
 
 @dataclass
@@ -50,7 +49,7 @@ class Sheet:
     lines: list[Line]
 
 
-def _checks(plan: StoragePlan, k: int, round_number: int) -> list[str]:
+def _checks(plan: StoragePlan, k: int, round_number: int) -> tuple[str, ...]:
     v, f = plan.visits, plan.fleet
     i = int(v.battery[k])
     out = []
@@ -62,7 +61,7 @@ def _checks(plan: StoragePlan, k: int, round_number: int) -> list[str]:
     if f.lead[i] and plan.site_file.site.warm_room == plan.bay_names[int(v.where[k])] and (
             v.act[k] in CHARGES):
         out.append("warm room ventilated")
-    return out
+    return tuple(out)
 
 
 def expected_rest_voltages(plan: StoragePlan, visits: np.ndarray) -> np.ndarray:
@@ -119,8 +118,7 @@ def _lines(plan: StoragePlan, kept: np.ndarray, round_of: np.ndarray,
     location = by_key(kept, pack(v.where[kept], v.bay[kept]), lambda k: _location(plan, k))
     columns = [texts.ids.of(b), texts.owners.of(b), location, action_column(plan, kept, texts),
                charge_columns(plan, kept)[0], _expected(plan, kept)]
-    return [Line(*cells, list(c)) for *cells, c in zip(*(c.values() for c in columns),
-                                                         checks.values(), strict=True)]
+    return list(map(Line._make, zip(*(c.values() for c in [*columns, checks]), strict=True)))
 
 
 def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[Sheet], int]:
@@ -172,7 +170,7 @@ def round_sheets(plan: StoragePlan, *, html: bool = False,
 
     shown, left = found or sheets(plan)
     if html:
-        escape_once = lru_cache(maxsize=None)(escape)  # most texts recur on many lines
+        escape_once = lru_cache(maxsize=None)(lambda text: str(escape(text)))  # texts recur
         rows = [(sheet, Markup("".join(_html_row(line, escape_once) for line in sheet.lines)))
                 for sheet in shown]
     else:
@@ -187,9 +185,11 @@ def readings_template(plan: StoragePlan, *,
     """One row per battery on the sheets, the measured columns blank (``found``: as for
     :func:`round_sheets`)."""
     shown, _left = found or sheets(plan)
-    rows = [(sheet.date, line.battery, line.owner, sheet.bay,
-             line.expected.split(" after")[0] if line.expected.endswith("rest") else "")
-            for sheet in shown for line in sheet.lines]
-    blank = Column.constant("", len(rows))
-    return csv_text(READINGS_COLUMNS, csv_lines(
-        [*(distinct(cells) for cells in zip(*rows, strict=True)), *[blank] * 6] if rows else []))
+    lines = [line for sheet in shown for line in sheet.lines]
+    per_line = np.repeat(np.arange(len(shown)), [len(sheet.lines) for sheet in shown])
+    expected = (e.split(" after")[0] if e.endswith("rest") else "" for _b, _o, _l, _a, _c, e, _k
+                in lines)
+    return csv_text(READINGS_COLUMNS, csv_lines([
+        Column([sheet.date for sheet in shown], per_line), distinct(line[0] for line in lines),
+        distinct(line[1] for line in lines), Column([sheet.bay for sheet in shown], per_line),
+        distinct(expected), *[Column.constant("", len(lines))] * 6]))

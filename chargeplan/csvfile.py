@@ -62,6 +62,8 @@ def csv_unguard(text: str) -> str:
 
 
 _FORMULA_CHARS = "".join(_FORMULA_START)
+#: A cell that may need a guard, in cells joined by NUL characters.
+_GUARD_AFTER = re.compile("\x00[" + re.escape(_FORMULA_CHARS) + "]")
 
 
 def _guarded(cells: Iterable[object]) -> list[str]:
@@ -109,9 +111,16 @@ def csv_fields(cells: Iterable[object]) -> list[str]:
     >>> csv_fields(["=1+2", 'say "hi", then go', "-5.5", None])
     ["'=1+2", '"say ""hi"", then go"', '-5.5', '']
     """
-    fields = _guarded(cells)
+    fields = list(cells)
+    try:  # all text: one look at the texts joined tells whether any cell needs a guard
+        joined = "\x00".join(fields)
+        if joined.startswith(_FORMULA_START) or _GUARD_AFTER.search(joined):
+            raise TypeError
+    except TypeError:
+        fields = _guarded(fields)
+        joined = "".join(fields)
     quoted = _quoted_for()
-    if quoted.search("".join(fields)) is None:
+    if quoted.search(joined) is None:
         return fields
     return ['"' + text.replace('"', '""') + '"' if quoted.search(text) else text
             for text in fields]

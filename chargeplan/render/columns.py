@@ -3,8 +3,10 @@
 A :class:`Column` holds its distinct texts once and, per row, which one; a text made per
 distinct key (:func:`by_key`) is so made once however many rows show it, and a CSV table
 (:func:`csv_lines`) guards and quotes each distinct cell once (``csvfile.csv_fields``), as
-``csv_row`` would have written it row by row, and joins neighbouring columns of few
-distinct cells once per combination.
+``csv_row`` would have written it row by row. Before the rows are joined, neighbouring
+columns are joined into one: text by text where they index their texts alike, else once
+per combination where they have few distinct cells; a row then costs a few joins, not one
+per cell.
 """
 
 from __future__ import annotations
@@ -38,8 +40,7 @@ class Column(NamedTuple):
 
     def values(self) -> list[Any]:
         """The column row by row."""
-        table = np.empty(len(self.texts), dtype=object)
-        table[:] = list(self.texts)
+        table = np.fromiter(self.texts, dtype=object, count=len(self.texts))
         return table[self.codes].tolist()
 
     @classmethod
@@ -111,22 +112,37 @@ def _compact(column: Column) -> Column:
     return Column(list(index), remap[column.codes], column.fields)
 
 
+def _alike_joined(columns: list[Column]) -> list[Column]:
+    """Neighbouring columns of fields that index their texts alike (each battery's id and
+    owner, a charge's settings) as one, joined text by text."""
+    out: list[Column] = []
+    for column in columns:
+        last = out[-1] if out else None
+        if last is not None and len(last.texts) == len(column.texts) and (
+                last.codes is column.codes or np.array_equal(last.codes, column.codes)):
+            out[-1] = Column([a + "," + b for a, b in zip(last.texts, column.texts, strict=True)],
+                             last.codes, True)
+        else:
+            out.append(column)
+    return out
+
+
 def csv_lines(columns: Sequence[Column]) -> list[str]:
     """The rows as CSV lines (no line end), each cell guarded and quoted as ``csv_row``
-    writes it; each distinct cell is guarded and quoted once, and neighbouring columns of few
-    distinct cells are joined per combination (see MERGE_SHARE) before the rows are."""
+    writes it; each distinct cell is guarded and quoted once, and neighbouring columns are
+    joined before the rows are: text by text where they index their texts alike, else per
+    combination where they have few distinct cells (see MERGE_SHARE)."""
     limit = len(columns[0].codes) // MERGE_SHARE if columns else 0
     parts: list[Column] = []
-    for column in columns:
-        fields = column.as_fields()
-        if len(fields.texts) <= limit:
-            fields = _compact(fields)
+    for column in _alike_joined([c.as_fields() for c in columns]):
+        if len(column.texts) <= limit:
+            column = _compact(column)
         last = parts[-1] if parts else None
-        if last is not None and len(last.texts) * len(fields.texts) <= limit:
-            parts[-1] = Column([a + "," + b for a in last.texts for b in fields.texts],
-                               last.codes * len(fields.texts) + fields.codes, True)
+        if last is not None and len(last.texts) * len(column.texts) <= limit:
+            parts[-1] = Column([a + "," + b for a in last.texts for b in column.texts],
+                               last.codes * len(column.texts) + column.codes, True)
         else:
-            parts.append(fields)
+            parts.append(column)
     return list(map(",".join, zip(*(part.values() for part in parts), strict=True)))
 
 

@@ -238,27 +238,27 @@ def _charged(plan: StoragePlan, chosen: np.ndarray) -> tuple[np.ndarray, np.ndar
 
 
 def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
-    """charge_text of each of the visits ``chosen`` (made once per setting and capacity),
-    then the charger's setting, voltage, current and hours (blank where it is not charged)."""
+    """charge_text of each of the visits ``chosen``, then the charger's setting, voltage,
+    current and hours (blank where it is not charged): made once per setting and capacity."""
     settings = plan.settings
     setting, charged = _charged(plan, chosen)
     key = pack(setting, np.round(plan.fleet.capacity_ah[plan.visits.battery[chosen]] * 10))
     _unique, first, codes = np.unique(key, return_index=True, return_inverse=True)
-    codes = codes.ravel()
     frames = [_charge_frame(s) for s in settings]
     each, current = setting[first].tolist(), setting_currents(plan, chosen[first]).tolist()
-    shown = charged[first].tolist()
     texts = [_with_current(frames[s], a) if s >= 0 else ""
              for s, a in zip(each, current, strict=True)]
-    currents = [f"{a:.1f}" if c else "" for a, c in zip(current, shown, strict=True)]
-    which = np.where(charged, setting, len(settings))  # the last entry: blank
+    shown = [s if c else -1 for s, c in zip(each, charged[first].tolist(), strict=True)]
 
-    def per_setting(cell: Any) -> Column:
-        return Column([cell(s) for s in settings] + [""], which)
+    def cells(cell: Any) -> list[str]:
+        made = [cell(s) for s in settings]
+        return [made[s] if s >= 0 else "" for s in shown]
 
-    return [Column(texts, codes), per_setting(lambda s: s.chemistry_setting),
-            per_setting(lambda s: f"{s.voltage_v:.2f}"), Column(currents, codes),
-            per_setting(lambda s: f"{s.hours:.1f}")]
+    currents = [f"{a:.1f}" if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
+    codes = codes.ravel()
+    return [Column(texts, codes), Column(cells(lambda s: s.chemistry_setting), codes),
+            Column(cells(lambda s: f"{s.voltage_v:.2f}"), codes), Column(currents, codes),
+            Column(cells(lambda s: f"{s.hours:.1f}"), codes)]
 
 
 class FleetTexts:
@@ -307,8 +307,8 @@ def _columns(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> list[C
 def schedule_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
     """One row per visit (intake, each round, each reading, the release): the predicted charge,
     what to do, the charger's settings, the freeze check with its margin. Above
-    SCHEDULE_ALL_MAX visits, only the visits with something to do. (``texts``: the plan's
-    FleetTexts, when made already; so for each file below.)"""
+    SCHEDULE_ALL_MAX visits, only the visits with something to do (``texts``: the plan's
+    FleetTexts, when made already, as storage_files makes them once for all its files)."""
     return csv_text(SCHEDULE_COLUMNS, csv_lines(_columns(plan, schedule_rows(plan),
                                                          texts or FleetTexts(plan))))
 
@@ -319,7 +319,8 @@ BATTERY_COLUMNS = ("battery", "owner", "chemistry", "bay", "on_maintainer", "int
 
 
 def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
-    """One row per battery: its season in short (the schedule's visits add up to these)."""
+    """One row per battery: its season in short (the schedule's visits add up to these;
+    ``texts`` as for schedule_csv)."""
     v, f = plan.visits, plan.fleet
     texts = texts or FleetTexts(plan)
     charging = np.isin(v.act, CHARGES)
@@ -330,8 +331,11 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
     freeze = np.bincount(v.battery[v.freeze], minlength=f.n)
     lowest = np.fmin.reduce(plan.soc_daily, axis=1)  # NaN (absent) skipped; all NaN: NaN
     intake = np.flatnonzero(v.kind == Kind.INTAKE)
-    intake_text = dict(zip(v.battery[intake].tolist(), action_column(plan, intake, texts).values(),
-                           strict=True))
+    actions = action_column(plan, intake, texts)
+    arrived = v.battery[intake]
+    latest = len(arrived) - 1 - np.unique(arrived[::-1], return_index=True)[1]  # its last intake
+    intake_action = np.full(f.n, len(actions.texts))  # the last entry: blank (no intake)
+    intake_action[arrived[latest]] = actions.codes[latest]
     notes: list[str | None] = [None] * f.n  # each battery's note codes, joined by spaces
     for note in plan.notes:
         codes = notes[note.battery]
@@ -340,7 +344,7 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
     return csv_text(BATTERY_COLUMNS, csv_lines([
         texts.id_fields, texts.owner_fields, texts.chemistry, distinct(row.bay for row in f.rows),
         Column(["", "yes"], plan.on_maintainer.astype(np.intp)),
-        distinct(intake_text.get(i, "") for i in range(f.n)), distinct(charges.tolist()),
+        Column([*actions.texts, ""], intake_action), distinct(charges.tolist()),
         floats(hours, ".1f"), floats(np.where(np.isfinite(lowest), lowest, np.nan), ".0f",
                                      blank=""),
         distinct(freeze.tolist()), Column(plan.bay_names, last),
@@ -403,7 +407,8 @@ BENCH_COLUMNS = ("id", "chemistry", "cells_in_series", "capacity", "state_of_cha
 
 def bench_batteries(plan: StoragePlan, texts: FleetTexts | None = None) -> dict[str, str]:
     """Per day on which the warm room charges, its charge jobs as a bench batteries CSV
-    (``chargeplan bench FILE --batteries warm-room-DATE.csv``)."""
+    (``chargeplan bench FILE --batteries warm-room-DATE.csv``; ``texts`` as for
+    schedule_csv)."""
     site = plan.site_file.site
     if site.warm_room is None:
         return {}

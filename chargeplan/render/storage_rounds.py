@@ -1,13 +1,16 @@
 """Round sheets: a printable checklist per round and bay (Markdown and HTML), and the
 readings.csv template that matches them, which ``chargeplan storage --readings`` reads back
-as it is (rows left blank were not measured)."""
+as it is (rows left blank were not measured).
+
+The sheets' lines are made column by column, each text once per distinct key of what it
+depends on (:mod:`chargeplan.render.columns`); the templates lay out each sheet, and its
+table's rows are written here, so thousands of lines cost no template call each."""
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import TYPE_CHECKING, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
 
@@ -143,41 +146,44 @@ def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[She
     return [out[key] for key in sorted(out)], len(chosen) - len(kept)
 
 
-def _md_row(line: Line) -> str:
-    checks = "; ".join(f"[ ] {c}" for c in line.checks)
-    return (f"| [ ] | {line.battery} | {line.owner.replace('|', '/')} | {line.location} | "
-            f"{line.action.replace('|', '/')} | {line.charger} | {line.expected} | ______ | "
-            f"{checks} |\n")
+def _md_bodies(shown: list[Sheet]) -> list[str]:
+    """Each sheet's table rows in Markdown, the owner's and the action's ``|`` shown as
+    ``/``."""
+    checks = lru_cache(maxsize=None)(lambda c: "; ".join(f"[ ] {x}" for x in c))
+    return ["".join(f"| [ ] | {line.battery} | {line.owner.replace('|', '/')} | "
+                    f"{line.location} | {line.action.replace('|', '/')} | {line.charger} | "
+                    f"{line.expected} | ______ | {checks(line.checks)} |\n"
+                    for line in sheet.lines) for sheet in shown]
 
 
-def _html_row(line: Line, escape: Callable[[str], str]) -> str:
-    checks = "".join(f'<span class="box">&#9744;</span> {escape(c)}<br>' for c in line.checks)
-    return (f'<tr><td class="box">&#9744;</td><td>{escape(line.battery)}</td>'
-            f"<td>{escape(line.owner)}</td><td>{escape(line.location)}</td>"
-            f"<td>{escape(line.action)}</td><td>{escape(line.charger)}</td>"
-            f'<td>{escape(line.expected)}</td><td class="blank"></td><td>{checks}</td></tr>\n')
+def _html_bodies(shown: list[Sheet]) -> list[Any]:
+    """Each sheet's table rows in HTML, every text escaped (markupsafe)."""
+    from markupsafe import Markup, escape
+
+    text = lru_cache(maxsize=None)(lambda t: str(escape(t)))  # most texts recur on many lines
+    checks = lru_cache(maxsize=None)(lambda c: "".join(
+        f'<span class="box">&#9744;</span> {text(x)}<br>' for x in c))
+    return [Markup("".join(
+        f'<tr><td class="box">&#9744;</td><td>{text(line.battery)}</td>'
+        f"<td>{text(line.owner)}</td><td>{text(line.location)}</td>"
+        f"<td>{text(line.action)}</td><td>{text(line.charger)}</td>"
+        f'<td>{text(line.expected)}</td><td class="blank"></td><td>{checks(line.checks)}</td>'
+        "</tr>\n" for line in sheet.lines)) for sheet in shown]
 
 
 def round_sheets(plan: StoragePlan, *, html: bool = False,
                  found: tuple[list[Sheet], int] | None = None) -> str:
     """The round sheets, Markdown or HTML (``found``: :func:`sheets` of the plan, when made
     already). The template lays out each sheet; its table's rows, one line per battery
-    (thousands of them), are written here: a row each, every text escaped in HTML, and in
-    Markdown the owner's and the action's ``|`` shown as ``/``."""
-    from markupsafe import Markup, escape
-
+    (thousands of them), are written here, each distinct text formatted once."""
     from chargeplan.render.storage_docs import _environment
 
     shown, left = found or sheets(plan)
-    if html:
-        escape_once = lru_cache(maxsize=None)(lambda text: str(escape(text)))  # texts recur
-        rows = [(sheet, Markup("".join(_html_row(line, escape_once) for line in sheet.lines)))
-                for sheet in shown]
-    else:
-        rows = [(sheet, "".join(map(_md_row, sheet.lines))) for sheet in shown]
+    bodies = _html_bodies(shown) if html else _md_bodies(shown)
     name = "storage_rounds.html.j2" if html else "storage_rounds.md.j2"
     return str(_environment(html).get_template(name).render(
-        site=plan.site_file.site.name, sheets=rows, left=left, rest_hours=REST_HOURS))
+        site=plan.site_file.site.name, sheets=list(zip(shown, bodies, strict=True)), left=left,
+        rest_hours=REST_HOURS))
 
 
 def readings_template(plan: StoragePlan, *,

@@ -7,7 +7,9 @@ Writing: :func:`csv_cell` guards a cell that a spreadsheet would run as a formul
 "CSV Injection"): a cell starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
 return gets a leading apostrophe, unless it is one plain number. :func:`csv_unguard` takes
 the apostrophe off again, and every reader here applies it, so the files the tool writes
-read back as they are.
+read back as they are. :func:`csv_row` writes a row of cells so guarded; :func:`csv_fields`
+gives cells guarded and quoted as that row holds them, for a table that writes each distinct
+cell once.
 """
 
 from __future__ import annotations
@@ -15,14 +17,15 @@ from __future__ import annotations
 import csv
 import re
 from collections.abc import Iterable, Iterator
+from functools import cache
 from itertools import compress
 from pathlib import Path
 from typing import Any
 
 from chargeplan.errors import InputError
 
-__all__ = ["MAX_CELL_CHARS", "MAX_CSV_BYTES", "InputErrors", "csv_cell", "csv_reader", "csv_row",
-           "csv_rows", "csv_unguard", "read_rows"]
+__all__ = ["MAX_CELL_CHARS", "MAX_CSV_BYTES", "InputErrors", "csv_cell", "csv_fields",
+           "csv_reader", "csv_row", "csv_rows", "csv_unguard", "read_rows"]
 
 #: Characters that make a spreadsheet read a cell as a formula (OWASP "CSV Injection").
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -60,18 +63,68 @@ def csv_unguard(text: str) -> str:
 
 
 _FORMULA_CHARS = "".join(_FORMULA_START)
+#: A cell that may need a guard, in cells joined by NUL characters.
+_GUARD_AFTER = re.compile("\x00[" + re.escape(_FORMULA_CHARS) + "]")
 
 
-def csv_row(writer: Any, cells: Iterable[object]) -> None:
-    """Write one row through ``writer`` (a ``csv.writer``), every cell guarded as
-    :func:`csv_cell` guards it (inlined: a schedule writes millions of cells)."""
+def _guarded(cells: Iterable[object]) -> list[str]:
+    """Every cell as :func:`csv_cell` gives it (inlined: a schedule writes millions)."""
     row = []
     for value in cells:
         text = "" if value is None else value if type(value) is str else str(value)
         if text and text[0] in _FORMULA_CHARS and not _PLAIN_NUMBER.fullmatch(text):
             text = "'" + text
         row.append(text)
-    writer.writerow(row)
+    return row
+
+
+def csv_row(writer: Any, cells: Iterable[object]) -> None:
+    """Write one row through ``writer`` (a ``csv.writer``), every cell guarded as
+    :func:`csv_cell` guards it."""
+    writer.writerow(_guarded(cells))
+
+
+@cache
+def _quoted_for() -> re.Pattern[str]:
+    """The characters for which ``csv.writer(out, lineterminator="\\n")`` quotes a cell:
+    asked of the writer itself (its delimiter and quote character, and which of the line
+    ends depends on the Python version)."""
+    import io
+
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    found = ""
+    for c in ',"\r\n':
+        out.seek(0)
+        out.truncate()
+        writer.writerow(("a" + c, ""))
+        if out.getvalue().startswith('"'):
+            found += c
+    return re.compile("[" + re.escape(found) + "]")
+
+
+def csv_fields(cells: Iterable[object]) -> list[str]:
+    """Each cell as :func:`csv_row` writes it through ``csv.writer(out,
+    lineterminator="\\n")``: guarded, then quoted where the writer quotes it (its quote
+    character doubled). Joined with commas, the fields of a row of two cells or more are its
+    line; a table can so write each distinct cell once.
+
+    >>> csv_fields(["=1+2", 'say "hi", then go', "-5.5", None])
+    ["'=1+2", '"say ""hi"", then go"', '-5.5', '']
+    """
+    fields = list(cells)
+    try:  # all text: one look at the texts joined tells whether any cell needs a guard
+        joined = "\x00".join(fields)
+        if joined.startswith(_FORMULA_START) or _GUARD_AFTER.search(joined):
+            raise TypeError
+    except TypeError:
+        fields = _guarded(fields)
+        joined = "".join(fields)
+    quoted = _quoted_for()
+    if quoted.search(joined) is None:
+        return fields
+    return ['"' + text.replace('"', '""') + '"' if quoted.search(text) else text
+            for text in fields]
 
 
 class InputErrors(InputError):

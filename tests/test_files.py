@@ -570,3 +570,28 @@ def test_a_written_row_is_guarded_cell_for_cell_and_reads_back():
         assert [csv_unguard(c) for c in back] == ["" if c is None else str(c) for c in row]
 
     check()
+
+
+def test_fields_joined_are_the_row_csv_row_writes():
+    """csv_fields (each distinct cell of a table guarded and quoted once) gives the fields
+    csv_row writes: joined with commas, a row of two cells or more is the writer's line."""
+    import csv
+    import io
+
+    from hypothesis import given
+    from hypothesis import strategies as st
+
+    from chargeplan.csvfile import csv_fields, csv_row
+
+    cells = st.lists(st.one_of(st.none(), st.integers(), st.floats(),
+                               st.text(alphabet="=+-@\t\r\n'\",.e0123456789 ax|(", max_size=8),
+                               st.text(max_size=4)),
+                     min_size=2, max_size=6)
+
+    @given(cells)
+    def check(row):
+        out = io.StringIO()
+        csv_row(csv.writer(out, lineterminator="\n"), row)
+        assert ",".join(csv_fields(row)) + "\n" == out.getvalue()
+
+    check()

@@ -386,3 +386,26 @@ def test_schedule_texts_made_once_per_kind_equal_each_visit_s_own():
     rows = _rows(plan)
     assert [r["action"] for r in rows] == [action_text(plan, k) for k in range(len(rows))]
     assert [r["charge_plan"] for r in rows] == [charge_text(plan, k) for k in range(len(rows))]
+
+
+def test_plan_values_at_once_equal_each_visit_s_own():
+    """The documents' vectorised forms of the plan's per-visit values give what the plan's
+    own methods give, visit for visit (to the last bit)."""
+    from chargeplan.render.storage_docs import setting_currents
+    from chargeplan.render.storage_rounds import expected_rest_voltages
+
+    batteries = [_battery(i, c, soc=s, capacity=f"{cap} Ah")
+                 for i, (c, s, cap) in enumerate([
+                     ("flooded", "40 %", 61), ("lifepo4", "20 %", 83), ("lifepo4", "60 %", 100),
+                     ("nmc", "90 %", 47.5), ("agm", "30 %", 22), ("gel", "60 %", 90)])]
+    plan = plan_storage(_site(batteries, policy="maintainer", bays=WARM_BAYS, warm_room="warm",
+                              **COLD))
+    every = np.arange(len(plan.visits))
+    settings = [plan.setting_of(k) for k in every]
+    assert any(s is not None for s in settings)
+    assert setting_currents(plan, every).tolist() == pytest.approx(
+        [np.nan if s is None else s.current_a for s in settings], nan_ok=True, rel=0, abs=0)
+    expected = [plan.expected_rest_v(k) for k in every]
+    assert np.isfinite(expected).any() and np.isnan(expected).any()
+    assert expected_rest_voltages(plan, every).tolist() == pytest.approx(
+        expected, nan_ok=True, rel=0, abs=0)

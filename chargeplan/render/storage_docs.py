@@ -1,27 +1,32 @@
-"""The storage planner's files: schedule.csv, calendar.ics, procedure.md and procedure.html.
+"""The storage planner's files: schedule.csv, batteries.csv, calendar.ics, procedure.md,
+procedure.html and the warm room's bench batteries (the round sheets: storage_rounds).
 
 Everything here formats values the planner finished (charge settings, hold voltages,
-freezing points, margins); nothing is computed again.
+freezing points, margins); nothing is computed again. A text is made once per distinct
+key of what it depends on and gathered per row (:mod:`chargeplan.render.columns`): a
+season of a hundred thousand batteries has over a million visits but a few thousand
+distinct action texts.
 """
 
 from __future__ import annotations
 
-import csv
-import io
-from functools import lru_cache
+from functools import cached_property, lru_cache
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
 
-from chargeplan.csvfile import csv_row
 from chargeplan.fmt import duration
 from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
+from chargeplan.planners.storage_charges import REFERENCE_AH, ChargeSetting
 from chargeplan.planners.storage_kernel import CHARGES, Act, Kind, Remedy
 from chargeplan.profiles import ProfileSet
+from chargeplan.render.columns import Column, by_key, csv_lines, csv_text, distinct, floats, pack
 
-__all__ = ["SCHEDULE_COLUMNS", "action_text", "batteries_csv", "bench_batteries", "calendar_events",
-           "calendar_ics", "charge_text", "procedure", "schedule_csv", "storage_files"]
+__all__ = ["SCHEDULE_COLUMNS", "FleetTexts", "action_column", "action_text", "batteries_csv",
+           "bench_batteries", "calendar_events", "calendar_ics", "charge_columns", "charge_text",
+           "procedure", "schedule_csv", "setting_currents", "storage_files"]
 
 SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_soc_pct",
                     "action", "freeze_risk", "charge_plan", "visit", "soc_after_pct",
@@ -44,34 +49,57 @@ REMEDY_TEXT = {
     Remedy.NOTHING: "no remedy on site: store it indoors",
 }
 
+#: The kernel's codes as plain ints: an IntEnum member looked up per visit is slow.
+ACT = SimpleNamespace(**{a.name: int(a) for a in Act})
+KIND = SimpleNamespace(**{k.name: int(k) for k in Kind})
+CHARGING = frozenset(int(a) for a in CHARGES)
+
 THAW = ("first check it is not frozen: bring it indoors and let it thaw above 0 °C; look for "
         "ice in the cells and a bulging or cracked case; never charge a frozen or bulging "
         "battery")
 
 
+def _charge_frame(s: ChargeSetting) -> tuple[str, str | None]:
+    """A setting's words before and after its current (None after: a refusal names none)."""
+    if s.refused:
+        return f"do not charge here: {s.refused}", None
+    temp = f" (for {s.temperature_c:.0f} °C)" if s.compensated else ""
+    time = f", about {duration(s.duration_s)}" if s.duration_s else ""
+    return (f"{s.chemistry_setting} setting, {s.voltage_v:.2f} V{temp}, ",
+            " A: " + " -> ".join(s.stages) + f", then disconnect{time}")
+
+
+def _with_current(frame: tuple[str, str | None], current_a: float) -> str:
+    head, tail = frame
+    return head if tail is None else f"{head}{current_a:.1f}{tail}"
+
+
 def charge_text(plan: StoragePlan, k: int) -> str:
     """The charger's settings for visit ``k`` (empty when it needs no charger)."""
     s = plan.setting_of(k)
-    if s is None:
-        return ""
-    if s.refused:
-        return f"do not charge here: {s.refused}"
-    temp = f" (for {s.temperature_c:.0f} °C)" if s.compensated else ""
-    time = f", about {duration(s.duration_s)}" if s.duration_s else ""
-    return (f"{s.chemistry_setting} setting, {s.voltage_v:.2f} V{temp}, {s.current_a:.1f} A: "
-            + " -> ".join(s.stages) + f", then disconnect{time}")
+    return "" if s is None else _with_current(_charge_frame(s), s.current_a)
+
+
+def setting_currents(plan: StoragePlan, visits: np.ndarray) -> np.ndarray:
+    """``plan.setting_of(k).current_a`` for each of ``visits`` at once (NaN where none): the
+    setting's current scaled to the battery's capacity, as ``ChargeSetting.for_capacity``
+    scales it."""
+    per = np.array([s.current_a for s in plan.settings] + [np.nan])
+    which = (plan.visit_setting[visits] if plan.visit_setting is not None
+             else np.full(len(visits), -1))
+    return per[which] * plan.fleet.capacity_ah[plan.visits.battery[visits]] / REFERENCE_AH
 
 
 def _charge_words(plan: StoragePlan, k: int, i: int) -> str:
     v, f = plan.visits, plan.fleet
     act = int(v.act[k])
-    if act == Act.TOP_UP:
-        return "charge it fully" if v.kind[k] != Kind.ROUND else "top up (charge it fully)"
-    if act == Act.COUNT_DOWN:
+    if act == ACT.TOP_UP:
+        return "charge it fully" if v.kind[k] != KIND.ROUND else "top up (charge it fully)"
+    if act == ACT.COUNT_DOWN:
         return (f"charge it full (the known point), then take out {plan.take_out_ah(i):.1f} Ah "
                 f"(counted by the charger or a meter) to its storage level of "
                 f"{f.storage_soc[i]:.0f} %; never judge LiFePO4 by its voltage")
-    if act == Act.TO_STORAGE:
+    if act == ACT.TO_STORAGE:
         return (f"charge it to its storage level ({f.storage_soc[i]:.0f} %, "
                 f"{f.storage_voltage_v[i]:.2f} V at rest)")
     return ""
@@ -90,7 +118,7 @@ def _where_words(plan: StoragePlan, k: int, i: int) -> str:
 def _check_words(plan: StoragePlan, k: int, i: int) -> str:
     v, f = plan.visits, plan.fleet
     act = int(v.act[k])
-    if act == Act.MAINTAINER:
+    if act == ACT.MAINTAINER:
         hold = plan.visit_hold_v[k] if plan.visit_hold_v is not None else np.nan
         at = f" holding {hold:.2f} V (for this month's {plan.bay_mean[v.bay[k], v.day[k]]:.0f} °C)"
         return (f"check the maintainer is connected and{at if np.isfinite(hold) else ''}; read "
@@ -108,31 +136,31 @@ def _check_words(plan: StoragePlan, k: int, i: int) -> str:
 def action_text(plan: StoragePlan, k: int) -> str:
     """What staff do at visit ``k``, in words."""
     v, f = plan.visits, plan.fleet
-    i, act = int(v.battery[k]), int(v.act[k])
+    i, act, kind = int(v.battery[k]), int(v.act[k]), int(v.kind[k])
     parts: list[str] = []
-    if v.kind[k] == Kind.READING:
+    if kind == KIND.READING:
         parts.append("reading taken: the plan restarts from it")
-    if act == Act.REFUSED:
+    if act == ACT.REFUSED:
         return "do not store it as it is (see the notes); set it aside for testing"
-    if act == Act.RELEASE:
+    if act == ACT.RELEASE:
         return ("spring release: " + ("measure the rested voltage and charge it fully above "
                                       "0 °C" if f.lead[i] else "charge it as the owner needs, "
                                       "above 0 °C only") + "; reconnect its loads; hand it back")
     if v.thaw[k]:
         parts.append(THAW)
-    if act in CHARGES:
+    if act in CHARGING:
         parts += [p for p in (_where_words(plan, k, i), _charge_words(plan, k, i)) if p]
-    elif act == Act.DISCHARGE:
+    elif act == ACT.DISCHARGE:
         parts.append(f"discharge it to its storage level ({f.storage_soc[i]:.0f} %): to "
                      f"{f.storage_voltage_v[i]:.2f} V at rest")
-    elif act == Act.WAIT:
+    elif act == ACT.WAIT:
         parts.append("a charge is due, but no bay with mains is inside its charge window "
                      "today: move it to a warm room with mains")
-    elif act == Act.STORE and v.kind[k] != Kind.ROUND:
+    elif act == ACT.STORE and kind != KIND.ROUND:
         parts.append("store it as it is" + ("" if f.lead[i] else " (inside 40-50 %)"))
     else:
         parts.append(_check_words(plan, k, i))
-    if act != Act.MAINTAINER and v.kind[k] == Kind.INTAKE and f.lead[i]:
+    if act != ACT.MAINTAINER and kind == KIND.INTAKE and f.lead[i]:
         parts.append("flooded: check the electrolyte level, top up with distilled water only"
                      if plan.chemistry[i] == "flooded" else "check terminals and case")
     return "; ".join(parts)
@@ -147,7 +175,9 @@ def freeze_action(plan: StoragePlan, k: int) -> str:
     return text
 
 
-def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> list[str]:
+def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> Column:
+    if not plan.reading_flags:
+        return Column.constant("", len(chosen))
     index = {row.id: i for i, row in enumerate(plan.rows)}
     flags: dict[tuple[int, int], str] = {}
     for flag in plan.reading_flags:
@@ -155,22 +185,10 @@ def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> list[str]:
         if i is not None:
             flags[(i, (flag.date - plan.dates[0]).days)] = f"{flag.code}: {flag.text}"
     if not flags:
-        return [""] * len(chosen)
+        return Column.constant("", len(chosen))
     v = plan.visits
-    return [flags.get((int(v.battery[k]), int(v.day[k])), "") for k in chosen]
-
-
-def _by_key(chosen: np.ndarray, key: np.ndarray, make: Any) -> list[Any]:
-    """A column made once per distinct key (rows x columns of integers)."""
-    if not len(chosen):
-        return []
-    _unique, first, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
-    made = [make(int(chosen[j])) for j in first]
-    return [made[i] for i in inverse.ravel()]
-
-
-def _fmt(values: np.ndarray, places: int, blank: str = "") -> list[str]:
-    return [f"{x:.{places}f}" if x == x else blank for x in values.tolist()]
+    return distinct(flags.get(pair, "") for pair in zip(v.battery[chosen].tolist(),
+                                                        v.day[chosen].tolist(), strict=True))
 
 
 #: Visits above which schedule.csv keeps only the visits with something to do (intake,
@@ -188,8 +206,8 @@ def schedule_rows(plan: StoragePlan) -> np.ndarray:
                           | v.freeze)
 
 
-def _action_keys(plan: StoragePlan, chosen: np.ndarray) -> np.ndarray:
-    """What action_text depends on, per visit, as integers."""
+def _action_keys(plan: StoragePlan, chosen: np.ndarray, chemistry: Column) -> np.ndarray:
+    """What action_text depends on, per visit, as one integer."""
     v, f = plan.visits, plan.fleet
     b = v.battery[chosen]
     act = v.act[chosen]
@@ -199,64 +217,100 @@ def _action_keys(plan: StoragePlan, chosen: np.ndarray) -> np.ndarray:
     temp = np.where(act == Act.MAINTAINER, np.round(plan.bay_mean[v.bay[chosen],
                                                                   v.day[chosen]]), 0)
     load = f.connected[b] & (f.draw_pct_day[b] > 0)
-    chem = np.unique(np.array(f.chemistry), return_inverse=True)[1].ravel()[b]
-    return np.column_stack([v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen],
-                            chem, f.cells[b], load, cap, hold, temp]).astype(np.int64)
+    chem = chemistry.codes[b]
+    return pack(v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen], chem,
+                f.cells[b], load, cap, hold, temp)
 
 
-def _setting_cells(settings: list[Any], charged: np.ndarray) -> list[list[str]]:
-    if not charged.any():
-        blank = [""] * len(charged)
-        return [blank, blank, blank, blank]
-    pairs = list(zip(settings, charged.tolist(), strict=True))
-    return [[s.chemistry_setting if c else "" for s, c in pairs],
-            [f"{s.voltage_v:.2f}" if c else "" for s, c in pairs],
-            [f"{s.current_a:.1f}" if c else "" for s, c in pairs],
-            [f"{s.hours:.1f}" if c else "" for s, c in pairs]]
+def action_column(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> Column:
+    """action_text of each of the visits ``chosen``, made once per distinct key."""
+    return by_key(chosen, _action_keys(plan, chosen, texts.chemistry),
+                  lambda k: action_text(plan, k))
 
 
-def _columns(plan: StoragePlan, chosen: np.ndarray) -> list[list[Any]]:
-    v, f = plan.visits, plan.fleet
-    b = v.battery[chosen]
-    ids = np.array([r.id for r in f.rows], dtype=object)
-    owners = np.array([r.owner for r in f.rows], dtype=object)
-    chems = np.array(f.chemistry, dtype=object)
-    bays = np.array(plan.bay_names, dtype=object)
-    dates = np.array([d.isoformat() for d in plan.dates], dtype=object)
+def _charged(plan: StoragePlan, chosen: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each of the visits ``chosen``: its setting (an index into plan.settings, -1 for none)
+    and whether it is charged (it has a setting, and the engine did not refuse it)."""
     setting = (plan.visit_setting[chosen] if plan.visit_setting is not None
                else np.full(len(chosen), -1))
-    charged = setting >= 0
-    if charged.any():
-        refused = np.array([s.refused != "" for s in plan.settings])[np.maximum(setting, 0)]
-        charged &= ~refused
-    charge_key = np.column_stack([setting, np.round(f.capacity_ah[b] * 10)]).astype(np.int64)
-    settings = _by_key(chosen, charge_key, plan.setting_of)
+    refused = np.array([s.refused != "" for s in plan.settings] + [True])
+    return setting, ~refused[np.where(setting >= 0, setting, len(plan.settings))]
+
+
+def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
+    """charge_text of each of the visits ``chosen``, then the charger's setting, voltage,
+    current and hours (blank where it is not charged): made once per setting and capacity."""
+    settings = plan.settings
+    setting, charged = _charged(plan, chosen)
+    key = pack(setting, np.round(plan.fleet.capacity_ah[plan.visits.battery[chosen]] * 10))
+    _unique, first, codes = np.unique(key, return_index=True, return_inverse=True)
+    frames = [_charge_frame(s) for s in settings]
+    each, current = setting[first].tolist(), setting_currents(plan, chosen[first]).tolist()
+    texts = [_with_current(frames[s], a) if s >= 0 else ""
+             for s, a in zip(each, current, strict=True)]
+    shown = [s if c else -1 for s, c in zip(each, charged[first].tolist(), strict=True)]
+
+    def cells(cell: Any) -> list[str]:
+        made = [cell(s) for s in settings]
+        return [made[s] if s >= 0 else "" for s in shown]
+
+    currents = [f"{a:.1f}" if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
+    codes = codes.ravel()
+    return [Column(texts, codes), Column(cells(lambda s: s.chemistry_setting), codes),
+            Column(cells(lambda s: f"{s.voltage_v:.2f}"), codes), Column(currents, codes),
+            Column(cells(lambda s: f"{s.hours:.1f}"), codes)]
+
+
+class FleetTexts:
+    """Each battery's id, owner and chemistry as columns over the batteries, and the id and
+    owner as CSV fields once asked for: made once for all of a plan's files (a fleet of a
+    hundred thousand takes a while)."""
+
+    def __init__(self, plan: StoragePlan) -> None:
+        f = plan.fleet
+        every = np.arange(f.n)
+        self.ids = Column([r.id for r in f.rows], every)
+        self.owners = Column([r.owner for r in f.rows], every)
+        self.chemistry = distinct(f.chemistry)
+
+    @cached_property
+    def id_fields(self) -> Column:
+        return self.ids.as_fields()
+
+    @cached_property
+    def owner_fields(self) -> Column:
+        return self.owners.as_fields()
+
+
+def _columns(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> list[Column]:
+    v = plan.visits
+    b = v.battery[chosen]
+    charge_plan, *setting_cells = charge_columns(plan, chosen)
+    _setting, charged = _charged(plan, chosen)
     return [
-        dates[v.day[chosen]].tolist(), ids[b].tolist(), owners[b].tolist(), chems[b].tolist(),
-        bays[v.bay[chosen]].tolist(), _fmt(v.soc_before[chosen], 0, "unknown"),
-        _by_key(chosen, _action_keys(plan, chosen), lambda k: action_text(plan, k)),
-        np.where(v.freeze[chosen], "yes", "").tolist(),
-        _by_key(chosen, charge_key, lambda k: charge_text(plan, k)),
-        [KIND_TEXT[Kind(x)] for x in v.kind[chosen].tolist()], _fmt(v.soc_after[chosen], 0),
-        np.where(charged, bays[v.where[chosen]], "").tolist(),
-        *_setting_cells(settings, charged),
-        _fmt(v.freeze_c[chosen], 1), _fmt(v.low_c[chosen], 1), _fmt(v.margin_k[chosen], 1),
-        _by_key(chosen, np.column_stack([v.remedy[chosen], v.remedy_day[chosen]]),
-                lambda k: freeze_action(plan, k)),
+        Column([d.isoformat() for d in plan.dates], v.day[chosen]), texts.id_fields.of(b),
+        texts.owner_fields.of(b), texts.chemistry.of(b),
+        Column(plan.bay_names, v.bay[chosen]), floats(v.soc_before[chosen], ".0f",
+                                                      blank="unknown"),
+        action_column(plan, chosen, texts), Column(["", "yes"], v.freeze[chosen].astype(np.intp)),
+        charge_plan, Column([KIND_TEXT[k] for k in sorted(KIND_TEXT)], v.kind[chosen]),
+        floats(v.soc_after[chosen], ".0f", blank=""),
+        Column(["", *plan.bay_names], np.where(charged, v.where[chosen] + 1, 0)),
+        *setting_cells,
+        floats(v.freeze_c[chosen], ".1f", blank=""), floats(v.low_c[chosen], ".1f", blank=""),
+        floats(v.margin_k[chosen], ".1f", blank=""),
+        by_key(chosen, pack(v.remedy[chosen], v.remedy_day[chosen]),
+               lambda k: freeze_action(plan, k)),
         _reading_cells(plan, chosen)]
 
 
-def schedule_csv(plan: StoragePlan) -> str:
+def schedule_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
     """One row per visit (intake, each round, each reading, the release): the predicted charge,
     what to do, the charger's settings, the freeze check with its margin. Above
-    SCHEDULE_ALL_MAX visits, only the visits with something to do."""
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(SCHEDULE_COLUMNS)
-    chosen = schedule_rows(plan)
-    for row in zip(*_columns(plan, chosen), strict=True):
-        csv_row(writer, row)
-    return out.getvalue()
+    SCHEDULE_ALL_MAX visits, only the visits with something to do (``texts``: the plan's
+    FleetTexts, when made already, as storage_files makes them once for all its files)."""
+    return csv_text(SCHEDULE_COLUMNS, csv_lines(_columns(plan, schedule_rows(plan),
+                                                         texts or FleetTexts(plan))))
 
 
 BATTERY_COLUMNS = ("battery", "owner", "chemistry", "bay", "on_maintainer", "intake_action",
@@ -264,33 +318,37 @@ BATTERY_COLUMNS = ("battery", "owner", "chemistry", "bay", "on_maintainer", "int
                    "bay_at_release", "notes")
 
 
-def batteries_csv(plan: StoragePlan) -> str:
-    """One row per battery: its season in short (the schedule's visits add up to these)."""
+def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
+    """One row per battery: its season in short (the schedule's visits add up to these;
+    ``texts`` as for schedule_csv)."""
     v, f = plan.visits, plan.fleet
+    texts = texts or FleetTexts(plan)
     charging = np.isin(v.act, CHARGES)
     charges = np.bincount(v.battery[charging], minlength=f.n)
     hours_of = np.array([s.hours for s in plan.settings] + [0.0])
     each = hours_of[plan.visit_setting] if plan.visit_setting is not None else np.zeros(len(v))
     hours = np.bincount(v.battery, weights=np.where(charging, each, 0.0), minlength=f.n)
     freeze = np.bincount(v.battery[v.freeze], minlength=f.n)
-    lowest = np.min(np.where(np.isnan(plan.soc_daily), np.inf, plan.soc_daily), axis=1)
+    lowest = np.fmin.reduce(plan.soc_daily, axis=1)  # NaN (absent) skipped; all NaN: NaN
     intake = np.flatnonzero(v.kind == Kind.INTAKE)
-    texts = _by_key(intake, _action_keys(plan, intake), lambda k: action_text(plan, k))
-    intake_text = dict(zip(v.battery[intake].tolist(), texts, strict=True))
-    notes: dict[int, list[str]] = {}
+    actions = action_column(plan, intake, texts)
+    arrived = v.battery[intake]
+    latest = len(arrived) - 1 - np.unique(arrived[::-1], return_index=True)[1]  # its last intake
+    intake_action = np.full(f.n, len(actions.texts))  # the last entry: blank (no intake)
+    intake_action[arrived[latest]] = actions.codes[latest]
+    notes: list[str | None] = [None] * f.n  # each battery's note codes, joined by spaces
     for note in plan.notes:
-        notes.setdefault(note.battery, []).append(note.code)
+        codes = notes[note.battery]
+        notes[note.battery] = note.code if codes is None else codes + " " + note.code
     last = plan.bay_daily[np.arange(f.n), f.depart]
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(BATTERY_COLUMNS)
-    for i, row in enumerate(f.rows):
-        csv_row(writer, (row.id, row.owner, f.chemistry[i], row.bay,
-                         "yes" if plan.on_maintainer[i] else "", intake_text.get(i, ""),
-                         int(charges[i]), f"{hours[i]:.1f}",
-                         f"{lowest[i]:.0f}" if np.isfinite(lowest[i]) else "", int(freeze[i]),
-                         plan.bay_names[int(last[i])], " ".join(notes.get(i, []))))
-    return out.getvalue()
+    return csv_text(BATTERY_COLUMNS, csv_lines([
+        texts.id_fields, texts.owner_fields, texts.chemistry, distinct(row.bay for row in f.rows),
+        Column(["", "yes"], plan.on_maintainer.astype(np.intp)),
+        Column([*actions.texts, ""], intake_action), distinct(charges.tolist()),
+        floats(hours, ".1f"), floats(np.where(np.isfinite(lowest), lowest, np.nan), ".0f",
+                                     blank=""),
+        distinct(freeze.tolist()), Column(plan.bay_names, last),
+        distinct(codes or "" for codes in notes)]))
 
 
 def calendar_events(plan: StoragePlan) -> list[Any]:
@@ -305,9 +363,10 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     site_key = hashlib.sha256(name.encode()).hexdigest()[:12]
     v = plan.visits
     events = []
-    charging = np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE)
+    charging = np.flatnonzero(np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE))
+    charge_day = v.day[charging]
     for d in plan.round_days:
-        due = np.flatnonzero(charging & (v.day == d))
+        due = charging[charge_day == d]
         lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
                  for k in due[:LISTED]]
         if len(due) > LISTED:
@@ -318,10 +377,12 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
             plan.dates[d] + dt.timedelta(days=1), f"Battery round, {name}: " + (
                 f"{len(due)} charge{'s' if len(due) != 1 else ''}" if len(due) else "checks only"),
             "\n".join(lines)))
-    for d in sorted(set(v.day[v.kind == Kind.RELEASE].tolist())):
-        ids = [plan.rows[int(b)].id for b in v.battery[(v.kind == Kind.RELEASE) & (v.day == d)]
-               [:LISTED]]
-        count = int(((v.kind == Kind.RELEASE) & (v.day == d)).sum())
+    release = np.flatnonzero(v.kind == Kind.RELEASE)
+    release_day = v.day[release]
+    for d in sorted(set(release_day.tolist())):
+        leaving = v.battery[release[release_day == d]]
+        ids = [plan.rows[int(b)].id for b in leaving[:LISTED]]
+        count = len(leaving)
         events.append(EventSpec(
             f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
             plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {count} "
@@ -344,28 +405,26 @@ BENCH_COLUMNS = ("id", "chemistry", "cells_in_series", "capacity", "state_of_cha
                  "temperature")
 
 
-def bench_batteries(plan: StoragePlan) -> dict[str, str]:
+def bench_batteries(plan: StoragePlan, texts: FleetTexts | None = None) -> dict[str, str]:
     """Per day on which the warm room charges, its charge jobs as a bench batteries CSV
-    (``chargeplan bench FILE --batteries warm-room-DATE.csv``)."""
+    (``chargeplan bench FILE --batteries warm-room-DATE.csv``; ``texts`` as for
+    schedule_csv)."""
     site = plan.site_file.site
     if site.warm_room is None:
         return {}
     warm = plan.bay_names.index(site.warm_room)
     v, f = plan.visits, plan.fleet
     chosen = np.flatnonzero(np.isin(v.act, CHARGES) & (v.where == warm))
-    files: dict[str, str] = {}
-    for d in sorted(set(v.day[chosen].tolist())):
-        out = io.StringIO()
-        writer = csv.writer(out, lineterminator="\n")
-        writer.writerow(BENCH_COLUMNS)
-        for k in chosen[v.day[chosen] == d]:
-            i = int(v.battery[k])
-            soc = v.soc_before[k]
-            csv_row(writer, (f.rows[i].id, f.chemistry[i], int(f.cells[i]),
-                             f"{f.capacity_ah[i]:g} Ah", f"{soc:.0f} %" if np.isfinite(soc)
-                             else "", f"{plan.bay_mean[warm, d]:.0f} degC"))
-        files[f"warm-room-{plan.dates[d].isoformat()}.csv"] = out.getvalue()
-    return files
+    b, day, soc = v.battery[chosen], v.day[chosen], v.soc_before[chosen]
+    texts = texts or FleetTexts(plan)
+    lines = np.array(csv_lines([
+        texts.id_fields.of(b), texts.chemistry.of(b), distinct(f.cells[b].tolist()),
+        floats(f.capacity_ah[b], "g", suffix=" Ah"),
+        floats(np.where(np.isfinite(soc), soc, np.nan), ".0f", blank="", suffix=" %"),
+        floats(plan.bay_mean[warm, day], ".0f", suffix=" degC")]), dtype=object)
+    return {f"warm-room-{plan.dates[d].isoformat()}.csv":
+            csv_text(BENCH_COLUMNS, lines[day == d].tolist())
+            for d in sorted(set(day.tolist()))}
 
 
 @lru_cache(maxsize=2)
@@ -382,12 +441,14 @@ def _environment(html: bool) -> Any:
     return env
 
 
-def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None,
-              html: bool = False) -> str:
-    """The written winter procedure for this site, with cautions and the deferral."""
+def procedure(plan: StoragePlan, *, profiles: ProfileSet | None = None, html: bool = False,
+              sections: tuple[str, list[Any]] | None = None) -> str:
+    """The written winter procedure for this site, with cautions and the deferral
+    (``sections``: procedure_sections of the plan, when made already)."""
     from chargeplan.render.storage_sections import procedure_sections
 
-    title, sections = procedure_sections(plan, profiles or ProfileSet(use_environment=False))
+    title, sections = sections or procedure_sections(
+        plan, profiles or ProfileSet(use_environment=False))
     name = "storage.html.j2" if html else "storage.md.j2"
     return str(_environment(html).get_template(name).render(title=title, sections=sections))
 
@@ -399,18 +460,24 @@ def storage_files(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any 
     from pathlib import Path
 
     from chargeplan.render.ics import read_previous
-    from chargeplan.render.storage_rounds import readings_template, round_sheets
+    from chargeplan.render.storage_rounds import readings_template, round_sheets, sheets
+    from chargeplan.render.storage_sections import procedure_sections
 
     previous = read_previous(Path(previous_folder) / "calendar.ics") if previous_folder else {}
+    # made once and shared: the batteries' texts, the procedure's sections, and the sheets
+    # (the round sheets and the readings template show the same lines)
+    texts = FleetTexts(plan)
+    sections = procedure_sections(plan, profiles)
+    found = sheets(plan, texts)
 
     return {
-        "procedure.md": procedure(plan, profiles=profiles),
-        "procedure.html": procedure(plan, profiles=profiles, html=True),
-        "schedule.csv": schedule_csv(plan),
-        "batteries.csv": batteries_csv(plan),
+        "procedure.md": procedure(plan, profiles=profiles, sections=sections),
+        "procedure.html": procedure(plan, profiles=profiles, html=True, sections=sections),
+        "schedule.csv": schedule_csv(plan, texts),
+        "batteries.csv": batteries_csv(plan, texts),
         "calendar.ics": calendar_ics(plan, previous, now),
-        **bench_batteries(plan),
-        "rounds.md": round_sheets(plan),
-        "rounds.html": round_sheets(plan, html=True),
-        "readings.csv": readings_template(plan),
+        **bench_batteries(plan, texts),
+        "rounds.md": round_sheets(plan, found=found),
+        "rounds.html": round_sheets(plan, html=True, found=found),
+        "readings.csv": readings_template(plan, found=found),
     }

@@ -14,6 +14,7 @@ from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
 from chargeplan.planners.storage_kernel import CHARGES, Act, Kind
 from chargeplan.profiles import ProfileSet
+from chargeplan.render.columns import pack
 
 __all__ = ["LISTED_MAX", "Section", "procedure_sections"]
 
@@ -98,9 +99,9 @@ def _maintainers(plan: StoragePlan) -> Section:
     v = plan.visits
     chosen = np.flatnonzero((v.act == Act.MAINTAINER) & (v.kind == Kind.ROUND))
     month = np.array([d.year * 100 + d.month for d in plan.dates])[v.day[chosen]]
-    _u, first = np.unique(np.column_stack([v.battery[chosen], month]), axis=0,
+    _u, first = np.unique(pack(v.battery[chosen], month),
                           return_index=True) if chosen.size else (None, np.zeros(0, int))
-    picked = chosen[np.sort(first)][:LISTED_MAX]
+    picked = chosen[np.sort(first)][:LISTED_MAX]  # each battery's first visit in each month
     rows = [[plan.rows[int(v.battery[k])].id, plan.bay_names[int(v.bay[k])],
              f"{plan.dates[int(v.day[k])]:%Y-%m}",
              f"{plan.visit_hold_v[k]:.2f} V" if plan.visit_hold_v is not None

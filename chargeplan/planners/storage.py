@@ -44,6 +44,7 @@ from chargeplan.planners.storage_kernel import (
     Kind,
     Season,
     Visits,
+    freezing_charge,
     freezing_point_at,
     run_season,
 )
@@ -238,9 +239,7 @@ class StoragePlan:
         freezing point itself (the same answer as checking every battery-day)."""
         lead = np.flatnonzero(self.fleet.lead)
         first = np.full(self.fleet.n, -1)
-        grid = np.linspace(0.0, 100.0, 1001)
-        freeze = freezing_point_at(grid)  # falls as the charge rises
-        below = np.interp(-self.bay_min, -freeze, grid, left=-1.0, right=200.0) + 1.0
+        below = freezing_charge(self.bay_min, none=-1.0, every=200.0) + 1.0
         open_ = np.ones(len(lead), dtype=bool)
         for day in range(len(self.dates)):
             bays = self.bay_daily[lead, day]

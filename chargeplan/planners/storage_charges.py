@@ -20,11 +20,17 @@ import numpy as np
 
 from chargeplan.model.storage import DAY_S
 
-__all__ = ["REFERENCE_AH", "ChargeSetting", "battery_file", "charge_settings",
-           "maintainer_holds"]
+__all__ = ["REFERENCE_AH", "ChargeSetting", "battery_file", "charge_settings", "maintainer_holds",
+           "scaled_current"]
 
 #: The capacity each kind of charge is planned at (its currents scale with the capacity).
 REFERENCE_AH = 100.0
+
+
+def scaled_current(current_a: Any, capacity_ah: Any) -> Any:
+    """A current planned at REFERENCE_AH, for a battery of ``capacity_ah`` (numbers or
+    arrays)."""
+    return current_a * capacity_ah / REFERENCE_AH
 
 
 @dataclass(frozen=True)
@@ -44,7 +50,7 @@ class ChargeSetting:
         """This setting for a battery of ``capacity_ah`` (planned at REFERENCE_AH)."""
         from dataclasses import replace
 
-        return replace(self, current_a=self.current_a * capacity_ah / REFERENCE_AH)
+        return replace(self, current_a=scaled_current(self.current_a, capacity_ah))
 
     @property
     def hours(self) -> float:

@@ -33,6 +33,7 @@ __all__ = [
     "Remedy",
     "Season",
     "Visits",
+    "freezing_charge",
     "freezing_point_at",
     "run_season",
 ]
@@ -203,14 +204,22 @@ class _State:
             self.parts[name].append(np.asarray(columns[name], dtype=_DTYPES.get(name)))
 
 
-def _safe_soc(bay_min: np.ndarray) -> np.ndarray:
-    """The least lead-acid state of charge whose electrolyte freezes at least FREEZE_MARGIN_K
-    below the day's minimum (the inverse of TM 5-1185 with the BCI table; 101: none)."""
+def freezing_charge(temperature_c: np.ndarray, *, none: float, every: float) -> np.ndarray:
+    """The lead-acid state of charge whose electrolyte freezes at ``temperature_c`` (the
+    inverse of TM 5-1185 with the BCI table, on a 0.1 % grid): a charge below it freezes.
+    ``none`` where even an empty battery stays liquid, ``every`` where even a full one
+    freezes."""
     grid = np.linspace(0.0, 100.0, 1001)
     freeze = freezing_point_at(grid)  # falls as the charge rises
+    return np.interp(-np.asarray(temperature_c), -freeze, grid, left=none, right=every)
+
+
+def _safe_soc(bay_min: np.ndarray) -> np.ndarray:
+    """The least lead-acid state of charge whose electrolyte freezes at least FREEZE_MARGIN_K
+    below the day's minimum (101: none is)."""
     need = bay_min - FREEZE_MARGIN_K  # freezing point must be below this
-    safe = np.interp(-need, -freeze, grid, left=0.0, right=101.0)
-    return np.where(need >= freeze[0], 0.0, safe)
+    safe = freezing_charge(need, none=0.0, every=101.0)
+    return np.where(need >= freezing_point_at(np.array(0.0)), 0.0, safe)
 
 
 def chargeable(s: Season, bays: np.ndarray, idx: np.ndarray, d: int,

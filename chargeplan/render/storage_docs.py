@@ -19,7 +19,7 @@ import numpy as np
 from chargeplan.fmt import duration
 from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
-from chargeplan.planners.storage_charges import REFERENCE_AH, ChargeSetting
+from chargeplan.planners.storage_charges import ChargeSetting, scaled_current
 from chargeplan.planners.storage_kernel import CHARGES, Act, Kind, Remedy
 from chargeplan.profiles import ProfileSet
 from chargeplan.render.columns import Column, by_key, csv_lines, csv_text, distinct, floats, pack
@@ -87,7 +87,7 @@ def setting_currents(plan: StoragePlan, visits: np.ndarray) -> np.ndarray:
     per = np.array([s.current_a for s in plan.settings] + [np.nan])
     which = (plan.visit_setting[visits] if plan.visit_setting is not None
              else np.full(len(visits), -1))
-    return per[which] * plan.fleet.capacity_ah[plan.visits.battery[visits]] / REFERENCE_AH
+    return scaled_current(per[which], plan.fleet.capacity_ah[plan.visits.battery[visits]])
 
 
 def _charge_words(plan: StoragePlan, k: int, i: int) -> str:

@@ -341,7 +341,8 @@ def _entry_env() -> dict[str, str]:
     import os
 
     env = {k: v for k, v in os.environ.items()
-           if k not in ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS")}
+           if k not in ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS",
+                         "NUMPY_MADVISE_HUGEPAGE")}
     env["PYTHONPATH"] = os.pathsep.join(filter(None, [str(REPO), env.get("PYTHONPATH")]))
     return env
 

@@ -406,3 +406,23 @@ def test_console_entry_point_is_quiet_when_the_reader_stops_early(tmp_path):
         reader.wait(timeout=60)
     assert "Traceback" not in stderr and "Exception ignored" not in stderr, stderr
     assert reader.returncode == 0
+
+
+def test_console_entry_point_sets_the_process_up_and_keeps_the_users_values(tmp_path):
+    # chargeplan.__main__.run sets its three variables before the command line (and numpy)
+    # is imported, each only where the user has not set it; numpy reads
+    # NUMPY_MADVISE_HUGEPAGE at import (numpy's "Global state" page)
+    import subprocess
+    import sys
+
+    names = ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS", "NUMPY_MADVISE_HUGEPAGE")
+    probe = ("import os, sys, types; sys.modules['chargeplan.cli'] = types.SimpleNamespace("
+             "main=lambda: print(*(os.environ[n] for n in %r), 'numpy' in sys.modules)); "
+             "from chargeplan.__main__ import run; run()" % (names,))
+    ours = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
+                          env=_entry_env(), cwd=tmp_path, check=True)
+    assert ours.stdout.split() == ["__all__", "1", "0", "False"]
+    theirs = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
+                            env={**_entry_env(), **dict.fromkeys(names, "7")}, cwd=tmp_path,
+                            check=True)
+    assert theirs.stdout.split() == ["7", "7", "7", "False"]

@@ -91,11 +91,11 @@ class Site(InputModel):
         if self.end is not None and self.end <= self.start:
             raise ValueError("end is not after start; check the dates")
         if self.round_interval_s % DAY_S:
-            raise ValueError(f"round_interval is {self.round_interval_s / 3600:g} h, not a "
-                             "whole number of days; give it in days, e.g. '14 d'")
+            raise ValueError(f"round_interval is {_days_and_hours(self.round_interval_s)}, not "
+                             "a whole number of days; give it in days, e.g. '14 d'")
         if self.duration_s is not None and self.duration_s % DAY_S:
-            raise ValueError(f"duration is {self.duration_s / 3600:g} h, not a whole number of "
-                             "days; give it in days, e.g. '180 d'")
+            raise ValueError(f"duration is {_days_and_hours(self.duration_s)}, not a whole "
+                             "number of days; give it in days, e.g. '180 d'")
         # the calendar needs the day after the last one: dates end at 9999-12-31
         if self.days > (dt.date.max - self.start).days:
             raise ValueError("the season runs to the end of the year 9999, past the last date "
@@ -112,6 +112,11 @@ class Site(InputModel):
     @property
     def round_days(self) -> int:
         return int(self.round_interval_s // DAY_S)
+
+
+def _days_and_hours(seconds: float) -> str:
+    """A length as days and as hours ('14.5 d (348 h)'), however it was written."""
+    return f"{seconds / DAY_S:g} d ({seconds / 3600:g} h)"
 
 
 class InventoryRow(BatteryRow):

@@ -192,6 +192,46 @@ def test_schedule_csv_columns_and_ics_sequence(tmp_path):
     assert all(n == 1 for n in events(moved).values())  # RFC 5545 3.8.7.4: raised on change
 
 
+def test_ics_keeps_an_unchanged_jobs_stamp_and_drops_a_finished_job_uncancelled(tmp_path):
+    # the one calendar writer (render/ics.py) for the bench: an unchanged event keeps its
+    # DTSTAMP and SEQUENCE (RFC 5545 3.8.7.2, 3.8.7.4); a job that finished is not in the
+    # re-plan and is dropped, not written as STATUS:CANCELLED (3.8.1.11), which would tell
+    # staff it never ran; each event names its channel as LOCATION
+    bench = _bench([_battery(i, soc="40 %") for i in range(3)],
+                   [{"name": "A", **PROBE}, {"name": "B", **PROBE}])
+    plan = plan_bench(bench)
+    path = tmp_path / "schedule.ics"
+    path.write_bytes(schedule_ics(plan))
+
+    def events(data):
+        return {str(e["UID"]): e for e in icalendar.Calendar.from_ical(data).walk("VEVENT")}
+
+    first = events(path.read_bytes())
+    finished = next(j for j in plan.jobs if plan.moment(j.start_min).hour == 8)
+    name = plan.batteries[finished.battery].id
+    channel = plan.bench.channels[finished.channel].name
+    later = dt.datetime.combine(DAY, dt.time(8, 0)) + dt.timedelta(
+        minutes=finished.end_min - finished.start_min + 1)
+    running = next(j for j in plan.jobs if j is not finished
+                   and plan.moment(j.start_min).hour == 8)  # still on charge: unchanged
+    rows = [ProgressRow(battery=name, channel=channel,
+                        started=plan.moment(finished.start_min),
+                        finished=plan.moment(finished.end_min)),
+            ProgressRow(battery=plan.batteries[running.battery].id,
+                        channel=plan.bench.channels[running.channel].name,
+                        started=plan.moment(running.start_min))]
+    again = events(schedule_ics(plan_bench(bench, now=later, progress=Progress(rows=rows)),
+                                path))
+    gone = set(first) - set(again)
+    assert len(gone) == 1 and all(str(e["STATUS"]) != "CANCELLED" for e in again.values())
+    unchanged = [uid for uid, e in again.items() if int(e["SEQUENCE"]) == 0]
+    assert unchanged
+    for uid, event in again.items():
+        assert str(event["LOCATION"]).startswith("bench channel ")
+        if uid in unchanged:  # the same stamp as before
+            assert event["DTSTAMP"].to_ical() == first[uid]["DTSTAMP"].to_ical()
+
+
 def test_cli_prints_what_moved_and_writes_the_sheets(tmp_path):
     path = tmp_path / "bench.yaml"
     import json

@@ -417,8 +417,8 @@ def test_console_entry_point_sets_the_process_up_and_keeps_the_users_values(tmp_
 
     names = ("PYDANTIC_DISABLE_PLUGINS", "OPENBLAS_NUM_THREADS", "NUMPY_MADVISE_HUGEPAGE")
     probe = ("import os, sys, types; sys.modules['chargeplan.cli'] = types.SimpleNamespace("
-             "main=lambda: print(*(os.environ[n] for n in %r), 'numpy' in sys.modules)); "
-             "from chargeplan.__main__ import run; run()" % (names,))
+             f"main=lambda: print(*(os.environ[n] for n in {names!r}), 'numpy' in sys.modules));"
+             " from chargeplan.__main__ import run; run()")
     ours = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
                           env=_entry_env(), cwd=tmp_path, check=True)
     assert ours.stdout.split() == ["__all__", "1", "0", "False"]

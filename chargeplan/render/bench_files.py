@@ -89,26 +89,29 @@ def _uid(battery_id: str) -> str:
 
 
 def schedule_ics(plan: BenchPlan, previous_ics: str | Path | None = None) -> bytes:
-    """One event per job; the UID is the battery's, SEQUENCE one more than in the calendar
-    at ``previous_ics`` for an event that changed."""
-    from chargeplan.render.ics import calendar_bytes, new_event, previous_events, sequence_for
+    """One event per job; the UID is the battery's. Compared with the calendar at
+    ``previous_ics`` (render/ics.py): an unchanged job keeps its SEQUENCE and DTSTAMP, a
+    changed one gets SEQUENCE raised and the plan's day as its DTSTAMP, and a job no longer
+    planned (finished, or taken off the bench) is dropped, not cancelled."""
+    from chargeplan.render.ics import EventSpec, read_previous, write_calendar
 
-    before = previous_events(previous_ics) if previous_ics is not None else {}
+    before = read_previous(previous_ics) if previous_ics is not None else {}
     names = [c.name for c in plan.bench.channels]
+    # the plan's day, not the clock: a re-plan that changes nothing writes the same bytes
     stamp = dt.datetime.combine(plan.calendar.origin.date(), dt.time(0, 0), tzinfo=dt.UTC)
     events = []
     for job in sorted(plan.jobs, key=lambda j: (j.start_min, j.channel)):
         b = plan.batteries[job.battery]
         warnings = warning_ids(plan, job.battery, job.channel)
-        event = new_event(
+        events.append(EventSpec(
             _uid(b.id), plan.moment(job.start_min), plan.moment(job.end_min),
-            f"Charge {b.id} on {names[job.channel]}", stamp=stamp,
-            location=f"bench channel {names[job.channel]}",
-            description=(f"{b.chemistry}, {b.capacity_ah:g} Ah"
-                         + (f"; warnings {' '.join(warnings)}" if warnings else "")
-                         + "; see cards.html for the setup"))
-        events.append(sequence_for(event, before))
-    return calendar_bytes("-//chargeplan//charging bench//EN", events)
+            f"Charge {b.id} on {names[job.channel]}",
+            f"{b.chemistry}, {b.capacity_ah:g} Ah"
+            + (f"; warnings {' '.join(warnings)}" if warnings else "")
+            + "; see cards.html for the setup",
+            location=f"bench channel {names[job.channel]}"))
+    return write_calendar(events, before, prodid="-//chargeplan//charging bench//EN",
+                          now=stamp, cancel_missing=False)
 
 
 def bench_outputs(plan: BenchPlan, folder: str | Path) -> tuple[dict[str, str | bytes],

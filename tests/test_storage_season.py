@@ -269,6 +269,32 @@ def test_calendar_signals_changed_and_cancelled_rounds(tmp_path):
     assert not any(u.startswith("2027-04-01") for u in uids)
 
 
+def test_calendar_over_one_with_timed_events_cancels_them_and_keeps_its_rounds(tmp_path):
+    # a calendar.ics with timed events (a bench's, copied into the folder): read back, its
+    # events are written once as CANCELLED (RFC 5545 3.8.1.11) among the all-day rounds,
+    # in order of start, with no error for comparing a date with a date-time
+    import icalendar
+
+    from chargeplan.planners.storage import load_site
+    from chargeplan.render.ics import EventSpec, read_previous, write_calendar
+    from chargeplan.render.storage_docs import calendar_ics
+
+    path = tmp_path / "calendar.ics"
+    path.write_bytes(write_calendar(
+        [EventSpec("job-1@bench", dt.datetime(2026, 10, 15, 8, 0),
+                   dt.datetime(2026, 10, 15, 15, 24), "Charge b0 on A", "agm, 60 Ah",
+                   location="bench channel A")], {}, prodid="-//test//EN",
+        now=dt.datetime(2026, 10, 1, tzinfo=dt.UTC)))
+    data = calendar_ics(plan_storage(load_site(_lakeside())), read_previous(path),
+                        dt.datetime(2026, 10, 2, tzinfo=dt.UTC))
+    events = list(icalendar.Calendar.from_ical(data).walk("VEVENT"))
+    job = [e for e in events if str(e["uid"]) == "job-1@bench"]
+    assert len(job) == 1 and str(job[0]["status"]) == "CANCELLED"
+    assert job[0].decoded("dtstart") == dt.datetime(2026, 10, 15, 8, 0)
+    starts = [e.decoded("dtstart").isoformat() for e in events]
+    assert starts == sorted(starts) and len(events) > 1
+
+
 def test_round_sheets_and_their_readings_template(tmp_path):
     out = tmp_path / "out"
     result = runner.invoke(app, ["storage", str(_lakeside()), "-o", str(out)])

@@ -153,6 +153,88 @@ def test_reading_flags_reach_every_document():
     assert any(text in r["reading"] for r in _rows(plan))
 
 
+@pytest.mark.parametrize("volts, why", [
+    (-12.6, "leads are reversed"),  # CP103 (core rules): a negative reading is reversed leads
+    (125.0, "more than a rested 6-cell"),  # a slipped decimal point
+    (0.0125, "dead or shorted cell"),  # 12.5 mV: the meter on the wrong range
+    (10.2, "reads like 5"),  # 1.70 V/cell: a shorted cell (BCI: 1.75 V/cell is flat)
+])
+def test_a_reading_is_judged_as_an_intake_would_be(volts, why):
+    # the same core rules refuse the same voltage at intake; a reading they refuse is flagged
+    # and does not reset the plan (the forecast is kept)
+    day = dt.date(2026, 12, 3)
+    intake = plan_storage(_reading_site(rest=f"{volts} V"))
+    assert any(why in n.text for n in intake.notes if n.code == "refused")
+    plain = plan_storage(_reading_site())
+    plan = plan_storage(_reading_site(), readings=[Reading(day, "T-1", volts)])
+    flags = [f for f in plan.reading_flags if f.battery == "T-1"]
+    assert [f.code for f in flags] == ["implausible"] and why in flags[0].text
+    assert "Measure again" in flags[0].text
+    assert not (plan.visits.kind == Kind.READING).any()
+    np.testing.assert_array_equal(plan.soc_daily, plain.soc_daily)
+
+
+def test_the_sheets_checks_and_gravity_are_read_back(tmp_path):
+    # readings.csv as staff fill it in: a hydrometer reading (SG 1.150 is about 20 %, BCI
+    # table via physics.electrolyte, corrected to the bay's temperature, TM 5-4210-230-14&P-1),
+    # a bulging case, low electrolyte and a note; a LiFePO4 pack's own display
+    from chargeplan.physics.electrolyte import (
+        specific_gravity_corrected,
+        state_of_charge_from_gravity_bci,
+    )
+    from chargeplan.planners.storage import read_readings
+    from chargeplan.render.storage_rounds import READINGS_COLUMNS
+
+    path = tmp_path / "readings.csv"
+    row = dict.fromkeys(READINGS_COLUMNS, "")
+    first = {**row, "date": "2026-12-03", "battery": "T-1", "specific_gravity": "1.150",
+             "electrolyte_level_ok": "no", "terminals_case_ok": "No", "notes": "case bulging"}
+    second = {**row, "date": "2026-12-03", "battery": "T-2", "state_of_charge": "45 %",
+              "returned_to_bay": "yes"}
+    with path.open("w", newline="") as out:
+        writer = csv.DictWriter(out, READINGS_COLUMNS)
+        writer.writeheader()
+        writer.writerows([first, second])
+    readings = read_readings(path)
+    assert readings[0].specific_gravity == 1.150 and readings[0].terminals_case_ok is False
+    assert readings[1].state_of_charge_pct == 45.0 and readings[1].returned_to_bay is True
+    site = _site([{**_battery(1, "flooded"), "bay": "A"}, _battery(2, "lifepo4", soc="45 %")],
+                 mean="-5 degC", low="-12 degC", days=120, round_days=14)
+    plan = plan_storage(site, readings=readings)
+    codes = {f.code for f in plan.reading_flags if f.battery == "T-1"}
+    assert {"damaged", "electrolyte", "note"} <= codes
+    assert any("case bulging" in f.text for f in plan.reading_flags)
+    d = (dt.date(2026, 12, 3) - plan.dates[0]).days
+    reset = plan.visits.kind == Kind.READING
+    by_battery = dict(zip(plan.visits.battery[reset].tolist(),
+                          plan.visits.soc_before[reset].tolist(), strict=True))
+    expected = float(state_of_charge_from_gravity_bci(
+        specific_gravity_corrected(1.150, float(plan.bay_mean[0, d]))))
+    assert by_battery[0] == pytest.approx(expected, abs=0.01) and expected < 30
+    assert by_battery[1] == 45.0
+    page = procedure(plan, profiles=ProfileSet(use_environment=False))
+    assert "do not charge it until it is checked" in page and "case bulging" in page
+
+
+@pytest.mark.parametrize("column, text, fragment", [
+    ("electrolyte_level_ok", "maybe", "write yes or no"),
+    ("specific_gravity", "1.9", "outside 1.000-1.350"),
+    ("state_of_charge", "145 %", "outside 0-100 %"),
+])
+def test_a_bad_sheet_answer_names_its_line_and_column(tmp_path, column, text, fragment):
+    path = tmp_path / "readings.csv"
+    path.write_text(f"date,battery,rest_voltage,{column}\n2026-12-03,T-1,,{text}\n")
+    site = tmp_path / "site.yaml"
+    site.write_text("site: {name: D, start: 2026-11-01, duration: 60 d}\n"
+                    "monthly: [{month: 11, mean: 5 degC, min: 0 degC}, "
+                    "{month: 12, mean: 5 degC, min: 0 degC}]\nbays: [{name: A}]\n"
+                    "inventory: [{id: T-1, chemistry: flooded, nominal_voltage: 12 V, "
+                    "capacity: 60 Ah, state_of_charge: 90 %, bay: A}]\n")
+    result = runner.invoke(app, ["storage", str(site), "--readings", str(path)])
+    assert result.exit_code == 2
+    assert f"{path}: line 2: {column}" in result.stderr and fragment in result.stderr
+
+
 def test_flat_lifepo4_readings_are_reported_not_skipped():
     # LiFePO4's rest voltage is flat from about 20 to 90 % (BU-409 curves; common practice)
     plan = plan_storage(_site([_battery(1, "lifepo4", soc="45 %")], days=60, round_days=14),
@@ -293,6 +375,35 @@ def test_calendar_over_one_with_timed_events_cancels_them_and_keeps_its_rounds(t
     assert job[0].decoded("dtstart") == dt.datetime(2026, 10, 15, 8, 0)
     starts = [e.decoded("dtstart").isoformat() for e in events]
     assert starts == sorted(starts) and len(events) > 1
+
+
+def test_round_sheets_carry_the_freeze_remedies_staff_carry_out():
+    # 2 A on 18 Ah empties a battery in about 9 h (Ah / A); empty lead-acid electrolyte
+    # (SG about 1.100, BCI) freezes near -8 degC (TM 5-1185), so in a -18 degC yard one whose
+    # load must stay on is moved to the warm room, and one whose load may come off has it
+    # disconnected; the sheet says so, the arrow runs from the yard to the warm room, and
+    # later rounds never ask to reconnect the load
+    from chargeplan.render.storage_rounds import sheets
+
+    bays = [{"name": "yard", "mains": True}, {"name": "shop", "mains": True, "offset": "+25 K"}]
+    plan = plan_storage(_site([
+        {**_battery(1, "flooded"), "bay": "yard", "parasitic_draw": "2 A", "loads": "connected",
+         "capacity": "18 Ah"},
+        {**_battery(2, "agm"), "bay": "yard", "parasitic_draw": "2 A", "capacity": "18 Ah"}],
+        bays=bays, warm_room="shop", mean="-8 degC", low="-18 degC", days=60, round_days=14))
+    v = plan.visits
+    assert v.remedy[(v.battery == 0) & (v.kind == Kind.INTAKE)][0] == Remedy.MOVE
+    assert v.remedy[(v.battery == 1) & (v.kind == Kind.INTAKE)][0] == Remedy.DISCONNECT
+    found, _left = sheets(plan)
+    lines = {line.battery: line for line in found[0].lines + found[1].lines
+             if found[0].date == found[1].date} if len(found) > 1 else {
+        line.battery: line for line in found[0].lines}
+    assert lines["T-1"].location == "yard -> shop"
+    assert "move it to shop and keep it there" in lines["T-1"].action
+    assert "store it as it is" not in lines["T-1"].action
+    assert "disconnect its load and leave it off" in lines["T-2"].action
+    later = [line for sheet in found[1:] for line in sheet.lines if line.battery == "T-2"]
+    assert later and not any("reconnect" in line.action for line in later)
 
 
 def test_round_sheets_and_their_readings_template(tmp_path):

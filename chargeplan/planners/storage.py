@@ -42,6 +42,7 @@ from chargeplan.planners.storage_kernel import (
     FREEZE_MARGIN_K,
     Act,
     Kind,
+    Remedy,
     Season,
     Visits,
     freezing_charge,
@@ -59,8 +60,9 @@ FAST_LOSS_POINTS = 10.0
 MEMORY_LIMIT_BYTES = 6 * 1024**3
 #: Notes and reading flags the console summary shows (the procedure lists them all).
 SUMMARY_LINES = 20
-#: The readings log's columns (more may follow: the round sheet's template has them).
-READING_COLUMNS = ("date", "battery", "rest_voltage")
+#: The readings log's columns it must have, with one of rest_voltage, state_of_charge and
+#: specific_gravity (more may follow: the round sheet's template has them).
+READING_COLUMNS = ("date", "battery")
 
 
 def load_site(path: str | Path) -> SiteFile:
@@ -75,16 +77,42 @@ def read_inventory(path: str | Path) -> list[InventoryRow]:
 
 @dataclass(frozen=True)
 class Reading:
+    """One row of the readings log (the round sheet's readings.csv as filled in): a measured
+    state (a rest voltage, the pack's own display or a battery monitor's state of charge, a
+    hydrometer's specific gravity) and the sheet's yes/no checks; None where left blank."""
+
     date: dt.date
     battery: str
-    rest_voltage_v: float
+    rest_voltage_v: float | None = None
+    state_of_charge_pct: float | None = None
+    specific_gravity: float | None = None
+    electrolyte_ok: bool | None = None
+    terminals_case_ok: bool | None = None
+    returned_to_bay: bool | None = None
+    notes: str = ""
+
+    @property
+    def measured(self) -> bool:
+        return (self.rest_voltage_v, self.state_of_charge_pct,
+                self.specific_gravity) != (None, None, None)
+
+
+#: The answers a yes/no column of the readings log takes (any case), and what they mean.
+YES_NO = {"yes": True, "y": True, "ok": True, "no": False, "n": False, "not ok": False}
+#: The checks of the readings log: column -> the Reading's field.
+READING_CHECKS = {"electrolyte_level_ok": "electrolyte_ok",
+                  "terminals_case_ok": "terminals_case_ok", "returned_to_bay": "returned_to_bay"}
+#: Specific gravities a hydrometer can read in battery acid (the state command's range).
+GRAVITY_RANGE = (1.000, 1.350)
 
 
 def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
-    from chargeplan.units import parse_quantity
+    from chargeplan.units import parse_number, parse_quantity
 
-    if not data.get("rest_voltage"):
-        return None  # a row of the template left blank: not measured
+    filled = {k: v for k, v in data.items() if k in (
+        "rest_voltage", "state_of_charge", "specific_gravity", "notes", *READING_CHECKS)}
+    if not filled:
+        return None  # a row of the template left blank: not measured, not checked
     try:
         date = dt.date.fromisoformat(data.get("date", ""))
     except ValueError:
@@ -92,25 +120,57 @@ def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
                 "YYYY-MM-DD, e.g. 2026-12-01")
     if not data.get("battery"):
         return f"{where}: battery: is empty; give the battery id"
-    try:
-        volts = parse_quantity(data["rest_voltage"], "voltage")
-    except ValueError as error:
-        return f"{where}: rest_voltage: {error}"
-    return Reading(date, data["battery"], volts)
+    values: dict[str, Any] = {}
+    for column, kind, name in (("rest_voltage", "voltage", "rest_voltage_v"),
+                               ("state_of_charge", "fraction", "state_of_charge_pct")):
+        if column in filled:
+            try:
+                values[name] = parse_quantity(filled[column], kind)
+            except ValueError as error:
+                return f"{where}: {column}: {error}"
+    soc = values.get("state_of_charge_pct")
+    if soc is not None and not 0 <= soc <= 100:
+        return (f"{where}: state_of_charge: {soc:g} % is outside 0-100 %; write the pack's "
+                "display as shown, e.g. '45 %'")
+    if "specific_gravity" in filled:
+        try:
+            gravity = parse_number(filled["specific_gravity"])
+        except ValueError as error:
+            return f"{where}: specific_gravity: {error}"
+        low, high = GRAVITY_RANGE
+        if not low <= gravity <= high:
+            return (f"{where}: specific_gravity: {gravity:g} is outside {low:.3f}-{high:.3f}; "
+                    "read the hydrometer again (battery acid lies in 1.100-1.300)")
+        values["specific_gravity"] = gravity
+    for column, name in READING_CHECKS.items():
+        if column in filled:
+            answer = YES_NO.get(filled[column].strip().lower())
+            if answer is None:
+                return (f"{where}: {column}: '{filled[column][:40]}' is not an answer; write "
+                        "yes or no (or leave it blank if not checked)")
+            values[name] = answer
+    return Reading(date, data["battery"], notes=filled.get("notes", ""), **values)
 
 
 def read_readings(path: str | Path) -> list[Reading]:
     """The readings log (or the round sheet's readings.csv as filled in): columns date
-    (YYYY-MM-DD), battery, rest_voltage ('12.41 V'); other columns are ignored and a row with
-    no rest_voltage was not measured."""
+    (YYYY-MM-DD), battery, and rest_voltage ('12.41 V') or state_of_charge (the pack's own
+    display, '45 %') or specific_gravity (1.000-1.350); optionally the sheet's checks
+    electrolyte_level_ok, terminals_case_ok and returned_to_bay (yes or no) and notes. Other
+    columns (owner, bay, expected_rest_voltage) are ignored; a row with nothing filled in
+    was not measured."""
     shown, reader = csv_reader(path)
     if reader.fieldnames is None:
         raise InputError("is empty", file=shown,
                          fix="write the header date,battery,rest_voltage, then one row a reading")
-    missing = [c for c in READING_COLUMNS if c not in [f.strip() for f in reader.fieldnames]]
+    header = [f.strip() for f in reader.fieldnames]
+    missing = [c for c in READING_COLUMNS if c not in header]
+    if not missing and not {"rest_voltage", "state_of_charge", "specific_gravity"} & set(header):
+        missing = ["rest_voltage"]
     if missing:
         raise InputError(f"has no {', '.join(missing)} column", file=shown, field=missing[0],
-                         fix="write the header date,battery,rest_voltage")
+                         fix="write the header date,battery,rest_voltage (or state_of_charge "
+                             "for a pack's own display)")
     readings: list[Reading] = []
     errors: list[str] = []
     for line, data in csv_rows(reader, shown, errors):
@@ -126,7 +186,9 @@ def read_readings(path: str | Path) -> list[Reading]:
 
 @dataclass(frozen=True)
 class ReadingFlag:
-    code: str  # unknown-battery, outside-season, flat-curve, fast-loss, reset
+    # unknown-battery, outside-season, implausible, flat-curve, sealed, disagree, damaged,
+    # electrolyte, not-returned, note, fast-loss, reset
+    code: str
     battery: str
     date: dt.date
     text: str
@@ -228,6 +290,17 @@ class StoragePlan:
         v = self.visits
         waits = np.flatnonzero(v.act == Act.WAIT)
         return [(int(v.battery[k]), int(v.day[k])) for k in waits]
+
+    @cached_property
+    def visit_connected(self) -> np.ndarray:
+        """Per visit: the battery's load is connected as staff find it (connected at intake
+        and not disconnected at an earlier visit against the freeze; it is never
+        reconnected before the release)."""
+        v, f = self.visits, self.fleet
+        off = np.full(f.n, np.iinfo(np.int64).max)
+        cut = v.remedy == Remedy.DISCONNECT
+        np.minimum.at(off, v.battery[cut], v.day[cut].astype(np.int64))
+        return f.connected[v.battery] & (v.day <= off[v.battery]) & (f.draw_pct_day[v.battery] > 0)
 
     @cached_property
     def first_freeze_day(self) -> np.ndarray:
@@ -430,26 +503,38 @@ def _temperatures(site_file: SiteFile, dates: list[dt.date],
 def _refused(fleet: Fleet, profile_set: ProfileSet) -> list[tuple[int, str]]:
     """Batteries whose intake voltage the core rules refuse (reversed, dead or shorted cell,
     over-discharged lithium): they are not to be stored as they are."""
-    from chargeplan.engine.planner import derive_state
-    from chargeplan.errors import PlanRefused
-    from chargeplan.model.battery import State
-
     refused = []
     for i, row in enumerate(fleet.rows):
         if row.rest_voltage_v is None:
             continue
-        data = battery_file(fleet.chemistry[i], int(fleet.cells[i]), row.capacity_ah, 20.0,
-                            name=row.id)
-        data = data.model_copy(update={"state": State.model_construct(
-            rest_voltage_v=row.rest_voltage_v)})
-        if row.nominal_voltage_v is not None:
-            data = data.model_copy(update={"battery": data.battery.model_copy(
-                update={"nominal_voltage_v": row.nominal_voltage_v})})
-        try:
-            derive_state(data, profiles=profile_set)
-        except PlanRefused as refusal:
-            refused.append((i, refusal.reason))
+        why = voltage_refusal(fleet, i, row.rest_voltage_v, profile_set)
+        if why is not None:
+            refused.append((i, why))
     return refused
+
+
+def voltage_refusal(fleet: Fleet, i: int, rest_voltage_v: float,
+                    profile_set: ProfileSet) -> str | None:
+    """Why the core rules (CP103, through the engine's own derive_state) refuse a rest
+    voltage for battery ``i``, or None: the one check of an intake's voltage and of a
+    reading's, so a reading is judged as a fresh intake would be."""
+    from chargeplan.engine.planner import derive_state
+    from chargeplan.errors import PlanRefused
+    from chargeplan.model.battery import State
+
+    row = fleet.rows[i]
+    data = battery_file(fleet.chemistry[i], int(fleet.cells[i]), row.capacity_ah, 20.0,
+                        name=row.id)
+    data = data.model_copy(update={"state": State.model_construct(
+        rest_voltage_v=rest_voltage_v)})
+    if row.nominal_voltage_v is not None:
+        data = data.model_copy(update={"battery": data.battery.model_copy(
+            update={"nominal_voltage_v": row.nominal_voltage_v})})
+    try:
+        derive_state(data, profiles=profile_set)
+    except PlanRefused as refusal:
+        return refusal.reason
+    return None
 
 
 def _maintainer_policy(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray,
@@ -464,8 +549,11 @@ def _maintainer_policy(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray,
 
 
 def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
-                    profile_set: ProfileSet) -> tuple[list[tuple[int, int, float]],
-                                                      list[ReadingFlag]]:
+                    profile_set: ProfileSet, bay_mean: np.ndarray,
+                    on_maintainer: np.ndarray) -> tuple[list[tuple[int, int, float]],
+                                                        list[ReadingFlag]]:
+    """Each reading as an intake on its date (day, battery, state of charge), and the flags
+    staff must see: readings the plan cannot use, and the sheet's failed checks."""
     index = {row.id: i for i, row in enumerate(fleet.rows)}
     events, flags = [], []
     for r in readings:
@@ -478,16 +566,102 @@ def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
             flags.append(ReadingFlag("outside-season", r.battery, r.date,
                                      f"reading on {r.date.isoformat()} is outside its stay"))
             continue
-        table = profile_set.get(fleet.chemistry[i]).rest_voltage.table
-        soc = float(soc_from_ocv(r.rest_voltage_v / fleet.cells[i], table))
-        if flat_reading(fleet.profiles[i], soc):
-            flags.append(ReadingFlag(
-                "flat-curve", r.battery, r.date, f"{r.rest_voltage_v:.2f} V on "
-                f"{r.date.isoformat()} is not usable for state of charge (LiFePO4's flat "
-                "curve); the plan keeps its forecast"))
+        flags.extend(_check_flags(r, fleet, i))
+        found: list[tuple[float, str]] = []  # (state of charge, what it was read from)
+        if r.rest_voltage_v is not None:
+            found.extend(_from_voltage(r, fleet, i, profile_set, bool(on_maintainer[i]), flags))
+        if r.state_of_charge_pct is not None:
+            found.append((r.state_of_charge_pct, "the display"))
+        if r.specific_gravity is not None:
+            found.extend(_from_gravity(r, fleet, i, float(bay_mean[fleet.bay[i], day]), flags))
+        if not found:
             continue
+        soc, what = min(found)
+        if max(found)[0] - soc > READINGS_DISAGREE_POINTS:
+            each = ", ".join(f"{w} {s:.0f} %" for s, w in found)
+            flags.append(ReadingFlag(
+                "disagree", r.battery, r.date, f"the readings on {r.date.isoformat()} disagree "
+                f"({each}): the plan takes the lower, {what}; a stratified electrolyte, a bad "
+                "cell or a misread meter (check each cell)"))
         events.append((day, i, soc))
     return events, flags
+
+
+#: Readings of one battery on one day further apart than this are flagged (percentage
+#: points; common practice: a rest voltage and a hydrometer agree within about a tenth).
+READINGS_DISAGREE_POINTS = 15.0
+
+
+def _from_voltage(r: Reading, fleet: Fleet, i: int, profile_set: ProfileSet, maintained: bool,
+                  flags: list[ReadingFlag]) -> list[tuple[float, str]]:
+    """A rest voltage's state of charge, read off the curve as at intake; none where the core
+    rules refuse the voltage (reversed, dead, a slipped decimal point) or it lies on
+    LiFePO4's flat curve."""
+    assert r.rest_voltage_v is not None
+    why = voltage_refusal(fleet, i, r.rest_voltage_v, profile_set)
+    if why is not None:
+        flags.append(ReadingFlag(
+            "implausible", r.battery, r.date, f"{r.rest_voltage_v:.2f} V on "
+            f"{r.date.isoformat()} is not used: {why}. Measure again (meter on DC volts, red "
+            "to +" + (", the battery disconnected from its maintainer for at least 4 h"
+                      if maintained else ", no charger or load for at least 4 h")
+            + "); if it reads the same, take it out of storage and have it tested"))
+        return []
+    table = profile_set.get(fleet.chemistry[i]).rest_voltage.table
+    soc = float(soc_from_ocv(r.rest_voltage_v / fleet.cells[i], table))
+    if flat_reading(fleet.profiles[i], soc):
+        flags.append(ReadingFlag(
+            "flat-curve", r.battery, r.date, f"{r.rest_voltage_v:.2f} V on "
+            f"{r.date.isoformat()} is not usable for state of charge (LiFePO4's flat "
+            "curve); the plan keeps its forecast unless the pack's display is given "
+            "(state_of_charge)"))
+        return []
+    return [(soc, "the rest voltage")]
+
+
+def _from_gravity(r: Reading, fleet: Fleet, i: int, temperature_c: float,
+                  flags: list[ReadingFlag]) -> list[tuple[float, str]]:
+    """A hydrometer reading's state of charge, corrected to the bay's mean temperature that
+    day (TM 5-4210-230-14&P-1; BCI table), for vented (flooded) cells only."""
+    from chargeplan.physics.electrolyte import (
+        specific_gravity_corrected,
+        state_of_charge_from_gravity_bci,
+    )
+
+    assert r.specific_gravity is not None
+    profile = fleet.profiles[i]
+    if not profile.vented:
+        flags.append(ReadingFlag(
+            "sealed", r.battery, r.date, f"specific gravity {r.specific_gravity:.3f} on "
+            f"{r.date.isoformat()} is not used: {profile.name} cells are sealed and cannot be "
+            "read with a hydrometer; give the rest voltage"))
+        return []
+    corrected = float(specific_gravity_corrected(r.specific_gravity, temperature_c))
+    return [(float(state_of_charge_from_gravity_bci(corrected)), "the specific gravity")]
+
+
+def _check_flags(r: Reading, fleet: Fleet, i: int) -> list[ReadingFlag]:
+    """The round sheet's checks that failed, and staff's notes, for the procedure."""
+    on = r.date.isoformat()
+    out = []
+    if r.terminals_case_ok is False:
+        out.append(ReadingFlag(
+            "damaged", r.battery, r.date, f"terminals or case not OK on {on}: do not charge it "
+            "until it is checked; a cracked, bulging or leaking case takes it out of service "
+            "(clean and tighten corroded terminals)"))
+    if r.electrolyte_ok is False:
+        out.append(ReadingFlag(
+            "electrolyte", r.battery, r.date,
+            f"electrolyte low on {on}: before charging add distilled water just to cover the "
+            "plates, and top up to the level mark after the charge" if fleet.profiles[i].vented
+            else f"electrolyte_level_ok: no on {on}, but its cells are sealed: a sealed "
+            "battery that leaks is taken out of service"))
+    if r.returned_to_bay is False:
+        out.append(ReadingFlag("not-returned", r.battery, r.date,
+                               f"not back in its bay on {on}: find it and return it"))
+    if r.notes:
+        out.append(ReadingFlag("note", r.battery, r.date, f"staff note on {on}: {r.notes}"))
+    return out
 
 
 def _reading_results(events: list[tuple[int, int, float]], plan: StoragePlan) -> None:
@@ -563,7 +737,8 @@ def plan_storage(
     refused = np.zeros(fleet.n, dtype=bool)
     refused[[i for i, _ in refusals]] = True
     on_maintainer = _maintainer_policy(site_file, fleet, bay_mean, bay_min, refused)
-    events, flags = _reading_events(readings or [], fleet, dates, profile_set)
+    events, flags = _reading_events(readings or [], fleet, dates, profile_set, bay_mean,
+                                   on_maintainer)
     season = _season(site_file, fleet, bay_mean, bay_min, on_maintainer, refused, events)
     result = run_season(season)
     plan = StoragePlan(site_file, fleet, dates, season.round_days,
@@ -586,9 +761,13 @@ def _notes(plan: StoragePlan) -> None:
                                "at intake: after its charge, check it holds its charge before "
                                "storing it"))
     for i in np.flatnonzero(f.connected & (f.draw_pct_day > 0)):
-        plan.notes.append(Note(int(i), "load-connected", f"its "
-                               f"{f.rows[i].parasitic_draw_a * 1000:.0f} mA load stays "
-                               "connected (loads: connected): it drains the battery"))
+        draw = f"its {f.rows[i].parasitic_draw_a * 1000:.0f} mA load"
+        plan.notes.append(Note(int(i), "load-connected", (
+            f"{draw} stays connected (loads: connected): it drains the battery"
+            if f.rows[i].loads == "connected" else
+            f"{draw} is left connected (loads: not given): it drains the battery; the plan "
+            "disconnects it where it would freeze the battery. Write loads: disconnected if "
+            "it may come off at intake, loads: connected if it must stay on")))
     _fast_losers(plan)
     waits = v.act == Act.WAIT
     since = np.full(f.n, len(plan.dates))
@@ -619,9 +798,12 @@ def _fast_losers(plan: StoragePlan) -> None:
     np.minimum.at(lowest, b[1:][fell], before[1:][fell])
     for i in np.flatnonzero(np.isfinite(lowest)):
         low = float(lowest[i])
+        remedies = ("disconnect its load, put it on a maintainer, or round more often"
+                    if f.lead[i] else "disconnect its load or round more often (lithium is "
+                    "never put on a maintainer, rule CP206); an over-discharged lithium pack "
+                    "is checked cell by cell before it is charged (BU-808a)")
         plan.notes.append(Note(int(i), "loses-fast", f"falls to {low:.0f} % between rounds even "
-                               "when charged full: disconnect its load, put it on a maintainer, "
-                               "or round more often"))
+                               f"when charged full: {remedies}"))
 
 
 def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:

@@ -415,13 +415,34 @@ def _remedies(st: _State, idx: np.ndarray, d: int,
         risk = forecast.at_risk() & eligible
     if risk.any():
         first = forecast.first_cold_day()
-        sooner = risk & (first > 0)
+        sooner = risk & (first > 1)  # the day before is after today: a top-up can be called
+        sooner[sooner] = _can_top_up(st, idx[sooner], d + first[sooner] - 1, forecast,
+                                     np.flatnonzero(sooner))
         remedy[sooner] = Remedy.SOONER
         remedy_day[sooner] = d + first[sooner] - 1
         for i, day in zip(idx[sooner], remedy_day[sooner], strict=True):
             st.extra.setdefault(int(day), []).append(int(i))
         remedy[risk & ~sooner] = Remedy.NOTHING
     return remedy, remedy_day
+
+
+def _can_top_up(st: _State, idx: np.ndarray, days: np.ndarray, forecast: _Forecast,
+                rows: np.ndarray) -> np.ndarray:
+    """Whether each battery ``idx`` (rows ``rows`` of the visit) can be charged on its day
+    ``days``: in its bay or the warm room, with mains, inside its charge window and not
+    frozen at the charge forecast for that day; else a top-up by then is no remedy."""
+    s = st.s
+    position = np.full(len(forecast.idx), -1)
+    position[forecast.lead] = np.arange(len(forecast.lead))
+    soc = forecast.pred[position[rows], days - forecast.d]
+    freeze_c = freezing_point_at(soc)
+    ok = np.zeros(len(idx), dtype=bool)
+    for day in np.unique(days).tolist():  # a few days: the batteries of one day at once
+        on = np.flatnonzero(days == day)
+        ok[on] = chargeable(s, st.bay[idx[on]], idx[on], day, freeze_c[on])
+        if s.warm >= 0:
+            ok[on] |= chargeable(s, np.full(len(on), s.warm), idx[on], day, freeze_c[on])
+    return ok
 
 
 def _decision_days(s: Season) -> list[int]:

@@ -128,9 +128,23 @@ def _check_words(plan: StoragePlan, k: int, i: int) -> str:
         return ("check the pack's own state-of-charge display; its rest voltage cannot tell "
                 "20 % from 90 %")
     load = (f"disconnect its load for at least {REST_HOURS:g} h, measure, reconnect it"
-            if f.connected[i] and f.draw_pct_day[i] > 0 else
+            if plan.visit_connected[k] else
             f"measure the rested voltage (no charger or load for at least {REST_HOURS:g} h)")
     return load
+
+
+def _freeze_words(plan: StoragePlan, k: int) -> str:
+    """The freeze remedy of visit ``k``, as staff carry it out at the visit."""
+    v = plan.visits
+    remedy = int(v.remedy[k])
+    if not v.freeze[k] or remedy in (Remedy.NONE, Remedy.CHARGE_NOW):
+        return ""
+    head = "freeze risk: its charge would reach its freezing range before the next round"
+    if remedy == Remedy.MOVE:
+        return f"{head}: move it to {plan.bay_names[int(v.bay[k])]} and keep it there"
+    if remedy == Remedy.DISCONNECT:
+        return f"{head}: disconnect its load and leave it off until the release"
+    return f"{head}: {freeze_action(plan, k)}"
 
 
 def action_text(plan: StoragePlan, k: int) -> str:
@@ -160,6 +174,9 @@ def action_text(plan: StoragePlan, k: int) -> str:
         parts.append("store it as it is" + ("" if f.lead[i] else " (inside 40-50 %)"))
     else:
         parts.append(_check_words(plan, k, i))
+    freeze = _freeze_words(plan, k)
+    if freeze:
+        parts = [p for p in parts if not p.startswith("store it as it is")] + [freeze]
     if act != ACT.MAINTAINER and kind == KIND.INTAKE and f.lead[i]:
         parts.append("flooded: check the electrolyte level, top up with distilled water only"
                      if plan.chemistry[i] == "flooded" else "check terminals and case")
@@ -183,7 +200,8 @@ def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> Column:
     for flag in plan.reading_flags:
         i = index.get(flag.battery)
         if i is not None:
-            flags[(i, (flag.date - plan.dates[0]).days)] = f"{flag.code}: {flag.text}"
+            pair, text = (i, (flag.date - plan.dates[0]).days), f"{flag.code}: {flag.text}"
+            flags[pair] = f"{flags[pair]}; {text}" if pair in flags else text
     if not flags:
         return Column.constant("", len(chosen))
     v = plan.visits
@@ -216,10 +234,12 @@ def _action_keys(plan: StoragePlan, chosen: np.ndarray, chemistry: Column) -> np
     hold = np.where(act == Act.MAINTAINER, np.nan_to_num(np.round(holds * 100), nan=-1), 0)
     temp = np.where(act == Act.MAINTAINER, np.round(plan.bay_mean[v.bay[chosen],
                                                                   v.day[chosen]]), 0)
-    load = f.connected[b] & (f.draw_pct_day[b] > 0)
+    load = plan.visit_connected[chosen]
     chem = chemistry.codes[b]
+    frozen = np.where(v.freeze[chosen], v.remedy[chosen] + 1, 0)
+    remedy_day = np.where(v.freeze[chosen], v.remedy_day[chosen], 0)
     return pack(v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen], chem,
-                f.cells[b], load, cap, hold, temp)
+                f.cells[b], load, cap, hold, temp, frozen, remedy_day)
 
 
 def action_column(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> Column:

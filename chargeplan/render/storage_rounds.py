@@ -30,8 +30,8 @@ __all__ = ["READINGS_COLUMNS", "SHEET_VISITS_MAX", "Sheet", "expected_rest_volta
 #: run, which takes this round's readings (they change the plan anyway).
 SHEET_VISITS_MAX = 20_000
 READINGS_COLUMNS = ("date", "battery", "owner", "bay", "expected_rest_voltage", "rest_voltage",
-                    "electrolyte_level_ok", "specific_gravity", "terminals_case_ok",
-                    "returned_to_bay", "notes")
+                    "state_of_charge", "electrolyte_level_ok", "specific_gravity",
+                    "terminals_case_ok", "returned_to_bay", "notes")
 
 
 class Line(NamedTuple):
@@ -100,9 +100,13 @@ def _expected(plan: StoragePlan, kept: np.ndarray) -> Column:
 
 
 def _location(plan: StoragePlan, k: int) -> str:
+    """Where the battery is, and where it goes: to its charger (and back, says the action),
+    or, moved against the freeze, from its bay to the warm room."""
     v = plan.visits
     where, home = plan.bay_names[int(v.where[k])], plan.bay_names[int(v.bay[k])]
-    return home if where == home else f"{home} -> {where}"
+    if where == home:
+        return home
+    return f"{home} -> {where}" if v.act[k] in CHARGES else f"{where} -> {home}"
 
 
 def _lines(plan: StoragePlan, kept: np.ndarray, round_of: np.ndarray,
@@ -118,7 +122,8 @@ def _lines(plan: StoragePlan, kept: np.ndarray, round_of: np.ndarray,
                                v.where[kept], v.bay[kept], np.isin(v.act[kept], CHARGES),
                                f.lead[b]),
                     lambda k: _checks(plan, k, rounds[int(v.day[k])]))
-    location = by_key(kept, pack(v.where[kept], v.bay[kept]), lambda k: _location(plan, k))
+    location = by_key(kept, pack(v.where[kept], v.bay[kept], np.isin(v.act[kept], CHARGES)),
+                      lambda k: _location(plan, k))
     columns = [texts.ids.of(b), texts.owners.of(b), location, action_column(plan, kept, texts),
                charge_columns(plan, kept)[0], _expected(plan, kept)]
     return list(map(Line._make, zip(*(c.values() for c in [*columns, checks]), strict=True)))
@@ -198,4 +203,4 @@ def readings_template(plan: StoragePlan, *,
     return csv_text(READINGS_COLUMNS, csv_lines([
         Column([sheet.date for sheet in shown], per_line), distinct(line[0] for line in lines),
         distinct(line[1] for line in lines), Column([sheet.bay for sheet in shown], per_line),
-        distinct(expected), *[Column.constant("", len(lines))] * 6]))
+        distinct(expected), *[Column.constant("", len(lines))] * 7]))

@@ -147,12 +147,22 @@ def _freeze(plan: StoragePlan) -> Section:
                 f"{v.margin_k[k]:.1f} K", freeze_action(plan, k) or "charged"]
 
     rows, more = _battery_rows(plan, chosen, cells)
+    frozen = np.flatnonzero(plan.first_freeze_day >= 0)
+    freezes = [] if not frozen.size else [
+        "Under this plan these batteries freeze (the bay's minimum reaches their electrolyte's "
+        "freezing point): " + ", ".join(
+            f"{plan.rows[int(i)].id} on {plan.dates[int(plan.first_freeze_day[i])].isoformat()}"
+            for i in frozen[:LISTED_MAX])
+        + (f" and {frozen.size - LISTED_MAX} more" if frozen.size > LISTED_MAX else "")
+        + ". Store them indoors, above freezing, before then; a frozen battery is never "
+        "charged, and its case may crack."]
     return Section("Freeze risk", paragraphs=[
         "Each interval in which a lead-acid battery's predicted charge reaches its freezing "
         "range (its electrolyte's freezing point, US Army TM 5-1185 Table III, within 3 K of "
         "the bay's minimum), with the margin (bay minimum minus freezing point) after the "
         "action." if chosen.size else "No lead-acid battery reaches its freezing range under "
-        "this plan."], items=more,
+        "this plan." if not frozen.size else "No interval of a visited battery is listed.",
+        *freezes], items=more,
         header=["from", "to", "battery", "bay", "freezes at", "bay minimum", "margin",
                 "action"] if chosen.size else [], rows=rows)
 

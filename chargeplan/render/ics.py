@@ -8,9 +8,11 @@ floating local date-times, RFC 5545 3.3.5 form #1), reads the calendar already o
 - an unchanged event keeps its SEQUENCE and DTSTAMP, so a re-run writes identical bytes;
 - a changed event (its start, end, summary, location, description or status) gets SEQUENCE
   raised (3.8.7.4) and a DTSTAMP of the time of writing (3.8.7.2);
-- an event that disappeared is written once more with STATUS:CANCELLED (3.8.1.11) and
-  dropped on the next run, where the planner asks for that (a storage round that is no
-  longer planned); else it is dropped (a bench job that finished is not cancelled).
+- an event that disappeared is written with STATUS:CANCELLED (3.8.1.11) and SEQUENCE raised,
+  where the planner asks for that (a storage round that is no longer planned), and kept so
+  on later runs: should the round come back, its SEQUENCE is raised again, never reset to
+  0 (a calendar that saw the cancellation would take a lower one as stale, 3.8.7.4); else
+  it is dropped (a bench job that finished is not cancelled).
 """
 
 from __future__ import annotations
@@ -93,9 +95,12 @@ def write_calendar(events: list[EventSpec], previous: dict[str, Previous], *, pr
     chosen = [_stamped(e, previous.get(e.uid), now) for e in events]
     uids = {e.uid for e in events}
     for uid, old in previous.items():
-        if cancel_missing and uid not in uids and old.spec.status != "CANCELLED":
-            cancelled = replace(old.spec, status="CANCELLED")
-            chosen.append((cancelled, old.sequence + 1, now))
+        if not cancel_missing or uid in uids:
+            continue
+        if old.spec.status == "CANCELLED":  # kept as it was: its SEQUENCE never goes back
+            chosen.append((old.spec, old.sequence, old.stamp))
+        else:
+            chosen.append((replace(old.spec, status="CANCELLED"), old.sequence + 1, now))
     cal = icalendar.Calendar()
     cal.add("prodid", prodid)
     cal.add("version", "2.0")

@@ -428,7 +428,8 @@ BENCH_COLUMNS = ("id", "chemistry", "cells_in_series", "capacity", "state_of_cha
 def bench_batteries(plan: StoragePlan, texts: FleetTexts | None = None) -> dict[str, str]:
     """Per day on which the warm room charges, its charge jobs as a bench batteries CSV
     (``chargeplan bench FILE --batteries warm-room-DATE.csv``; ``texts`` as for
-    schedule_csv)."""
+    schedule_csv). A battery's temperature is that of the bay it comes from (its minimum that
+    day), so the bench warms cold lithium before its charge."""
     site = plan.site_file.site
     if site.warm_room is None:
         return {}
@@ -436,12 +437,16 @@ def bench_batteries(plan: StoragePlan, texts: FleetTexts | None = None) -> dict[
     v, f = plan.visits, plan.fleet
     chosen = np.flatnonzero(np.isin(v.act, CHARGES) & (v.where == warm))
     b, day, soc = v.battery[chosen], v.day[chosen], v.soc_before[chosen]
+    # the battery's own temperature as it comes in: its bay's minimum that day (the cold it
+    # sat in, so the bench plans a lithium warm-up, CP104), the room's mean if it lives there
+    home = v.bay[chosen]
+    temperature = np.where(home == warm, plan.bay_mean[warm, day], plan.bay_min[home, day])
     texts = texts or FleetTexts(plan)
     lines = np.array(csv_lines([
         texts.id_fields.of(b), texts.chemistry.of(b), distinct(f.cells[b].tolist()),
         floats(f.capacity_ah[b], "g", suffix=" Ah"),
         floats(np.where(np.isfinite(soc), soc, np.nan), ".0f", blank="", suffix=" %"),
-        floats(plan.bay_mean[warm, day], ".0f", suffix=" degC")]), dtype=object)
+        floats(temperature, ".0f", suffix=" degC")]), dtype=object)
     return {f"warm-room-{plan.dates[d].isoformat()}.csv":
             csv_text(BENCH_COLUMNS, lines[day == d].tolist())
             for d in sorted(set(day.tolist()))}

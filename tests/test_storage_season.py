@@ -274,6 +274,9 @@ def test_input_is_forgiving_where_it_can_be(tmp_path):
                                {**_battery(3, "lifepo4", soc="45 %"), "nominal_voltage": "24 V"}],
                               days=30))
     assert plan.chemistry == ["lifepo4", "agm", "lifepo4"]
+    loaded = plan_storage(_site([{**_battery(1, "agm"), "parasitic_draw": "20 mA",
+                                  "loads": " Connected"}], days=30))
+    assert loaded.rows[0].loads == "connected"  # in any case, as the chemistry is
     assert plan.cells.tolist() == [4, 6, 8]
     site = tmp_path / "site.yaml"
     site.write_text("site: {name: D, start: 2026-11-01, duration: 60 d, round_interval: 36 h}\n"

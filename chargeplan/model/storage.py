@@ -8,7 +8,7 @@ from functools import cache
 from itertools import pairwise
 from typing import Literal
 
-from pydantic import Field, model_validator
+from pydantic import Field, field_validator, model_validator
 
 from chargeplan.model.fields import InputModel, Text, quantity
 from chargeplan.model.rows import BatteryRow
@@ -63,6 +63,13 @@ class Bay(InputModel):
     opening_area_cm2: quantity("area", ge=0, le=1e8) | None = Field(
         default=None, alias="opening_area",
         description="free area of each of the inlet and outlet, for natural ventilation")
+
+    @model_validator(mode="after")
+    def _one_temperature(self) -> Bay:
+        if self.monthly is not None and self.offset_k is not None:
+            raise ValueError(f"bay {self.name} has its own monthly temperatures and an offset; "
+                             "give one of them (the offset applies to the site's months)")
+        return self
 
 
 class Site(InputModel):
@@ -136,6 +143,11 @@ class InventoryRow(BatteryRow):
     depart: dt.date | None = Field(default=None, description="the day it leaves, if before "
                                    "the season's end")
     notes: str = Field(default="", description="free text carried to the round sheets")
+
+    @field_validator("loads", mode="before")
+    @classmethod
+    def _loads_any_case(cls, value: object) -> object:
+        return value.strip().lower() if isinstance(value, str) else value
 
     @model_validator(mode="after")
     def _reading(self) -> InventoryRow:

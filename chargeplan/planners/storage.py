@@ -363,7 +363,7 @@ class StoragePlan:
                          "charge_below_v": float(ocv_from_soc(f.threshold[i], table)) * n,
                          "full_v": float(ocv_from_soc(100.0, table)) * n,
                          "storage_v": float(ocv_from_soc(f.storage_soc[i], table)) * n,
-                         "expected": None}
+                         "flat": bool(f.lfp[i]), "expected": None}
         return list(seen.values())
 
     def ventilation(self) -> list[Any]:

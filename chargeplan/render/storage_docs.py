@@ -69,9 +69,15 @@ def _charge_frame(s: ChargeSetting) -> tuple[str, str | None]:
             " A: " + " -> ".join(s.stages) + f", then disconnect{time}")
 
 
+def amps(current_a: float) -> str:
+    """A charger current in amperes with the digits a setting needs: 0.1 A steps from 1 A,
+    three decimals below (a 0.05 Ah battery's 0.005 A is not '0.0')."""
+    return f"{current_a:.1f}" if current_a >= 0.95 else f"{current_a:.3f}"
+
+
 def _with_current(frame: tuple[str, str | None], current_a: float) -> str:
     head, tail = frame
-    return head if tail is None else f"{head}{current_a:.1f}{tail}"
+    return head if tail is None else f"{head}{amps(current_a)}{tail}"
 
 
 def charge_text(plan: StoragePlan, k: int) -> str:
@@ -274,7 +280,7 @@ def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
         made = [cell(s) for s in settings]
         return [made[s] if s >= 0 else "" for s in shown]
 
-    currents = [f"{a:.1f}" if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
+    currents = [amps(a) if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
     codes = codes.ravel()
     return [Column(texts, codes), Column(cells(lambda s: s.chemistry_setting), codes),
             Column(cells(lambda s: f"{s.voltage_v:.2f}"), codes), Column(currents, codes),

@@ -127,9 +127,16 @@ def _rounds(plan: StoragePlan) -> Section:
         "After a top-up in the warm room, return the battery to its bay.",
         "Warm room: keep it ventilated while lead-acid charges there (hydrogen, IEC 62485-2 "
         "cl. 7), no sparks or flames within 0.5 m.",
+        *(["LiFePO4: its rest voltage is flat from about 20 to 90 % and cannot be acted on: "
+           "read the pack's own state-of-charge display (write it as state_of_charge in "
+           "readings.csv), or count the charge from full"] if any(b["flat"] for b in bands)
+          else []),
     ], header=["battery", "charge below", "storage level", "full"], rows=[
-        [f"{b['chemistry']}, {b['cells']} cells", f"{b['charge_below_v']:.2f} V "
-         f"({b['threshold_pct']:.0f} %)", f"{b['storage_v']:.2f} V", f"{b['full_v']:.2f} V"]
+        [f"{b['chemistry']}, {b['cells']} cells",
+         f"{b['threshold_pct']:.0f} % (by the pack's display)" if b["flat"] else
+         f"{b['charge_below_v']:.2f} V ({b['threshold_pct']:.0f} %)",
+         "not by voltage (flat curve)" if b["flat"] else f"{b['storage_v']:.2f} V",
+         f"{b['full_v']:.2f} V"]
         for b in bands])
 
 

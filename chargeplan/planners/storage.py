@@ -242,6 +242,9 @@ class StoragePlan:
     settings: list[ChargeSetting] = field(default_factory=list)
     visit_setting: np.ndarray | None = None  # per visit: index into settings, -1 none
     visit_hold_v: np.ndarray | None = None  # per visit: the maintainer's hold voltage
+    # per visit: the bay temperature that hold is for (the warmest daily mean until the next
+    # visit, so the hold never runs high as the bay warms)
+    visit_hold_c: np.ndarray | None = None
     notes: list[Note] = field(default_factory=list)
     reading_flags: list[ReadingFlag] = field(default_factory=list)
 
@@ -340,9 +343,9 @@ class StoragePlan:
         v = self.visits
         for k in np.flatnonzero(v.act == Act.MAINTAINER):
             i = int(v.battery[k])
-            if i not in out and self.visit_hold_v is not None:
-                temp = self.bay_mean[int(v.bay[k]), int(v.day[k])]
-                out[i] = f"on a maintainer at {self.visit_hold_v[k]:.2f} V (for {temp:.0f} degC)"
+            if i not in out and self.visit_hold_v is not None and self.visit_hold_c is not None:
+                out[i] = (f"on a maintainer at {self.visit_hold_v[k]:.2f} V (for "
+                          f"{self.visit_hold_c[k]:.0f} degC)")
         return out
 
     def bands(self) -> list[dict[str, Any]]:
@@ -822,7 +825,20 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
     plan.settings = charge_settings(keys, profile_set)
     plan.visit_setting = np.full(len(v), -1)
     plan.visit_setting[charge] = which
-    held = np.flatnonzero(v.act == Act.MAINTAINER)
+    # a battery on a maintainer is held from each visit (a check, or its intake charge) to
+    # the next, at the warmest daily mean of its bay over that stretch (compensation lowers
+    # the voltage as it warms, BU-410: set for the warmest, it never runs high)
+    held = np.flatnonzero(plan.on_maintainer[v.battery] & np.isin(v.act, (Act.MAINTAINER,
+                                                                       Act.TOP_UP)))
+    temp = temp.astype(float)
+    stretch = _pack(v.bay[held], v.day[held], v.end_day[held])
+    stretches, at = np.unique(stretch, return_inverse=True)
+    first_of = held[_firsts(stretch, stretches)]
+    warmest = np.array([plan.bay_mean[int(v.bay[k]), int(v.day[k]):int(v.end_day[k]) + 1].max()
+                        for k in first_of.tolist()])
+    plan.visit_hold_c = np.full(len(v), np.nan)
+    plan.visit_hold_c[held] = warmest[at.ravel()] if held.size else []
+    temp = np.round(np.where(np.isnan(plan.visit_hold_c), temp, plan.visit_hold_c)).astype(int)
     hcodes = _pack(kind[v.battery[held]], temp[held])
     hunique, hwhich = np.unique(hcodes, return_inverse=True)
     hkeys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(temp[k]))

@@ -126,7 +126,7 @@ def _check_words(plan: StoragePlan, k: int, i: int) -> str:
     act = int(v.act[k])
     if act == ACT.MAINTAINER:
         hold = plan.visit_hold_v[k] if plan.visit_hold_v is not None else np.nan
-        at = f" holding {hold:.2f} V (for this month's {plan.bay_mean[v.bay[k], v.day[k]]:.0f} °C)"
+        at = f" set to {hold:.2f} V{_hold_for(plan, k)}"
         return (f"check the maintainer is connected and{at if np.isfinite(hold) else ''}; read "
                 "its own display; do not measure the rest voltage while it is connected (to "
                 f"measure, disconnect it for at least {REST_HOURS:g} h first)")
@@ -137,6 +137,21 @@ def _check_words(plan: StoragePlan, k: int, i: int) -> str:
             if plan.visit_connected[k] else
             f"measure the rested voltage (no charger or load for at least {REST_HOURS:g} h)")
     return load
+
+
+def _hold_for(plan: StoragePlan, k: int) -> str:
+    """What a maintainer's hold at visit ``k`` is set for (the warmest until the next visit)."""
+    temp = plan.visit_hold_c[k] if plan.visit_hold_c is not None else np.nan
+    return (f" (for up to {temp:.0f} °C, the bay's warmest month until the next round)"
+            if np.isfinite(temp) else "")
+
+
+def _maintainer_words(plan: StoragePlan, k: int) -> str:
+    """After an intake charge of a battery on a maintainer: connect it, at which hold."""
+    hold = plan.visit_hold_v[k] if plan.visit_hold_v is not None else np.nan
+    if not np.isfinite(hold):
+        return ""
+    return f"then connect its maintainer, set to {hold:.2f} V{_hold_for(plan, k)}"
 
 
 def _freeze_words(plan: StoragePlan, k: int) -> str:
@@ -169,7 +184,8 @@ def action_text(plan: StoragePlan, k: int) -> str:
     if v.thaw[k]:
         parts.append(THAW)
     if act in CHARGING:
-        parts += [p for p in (_where_words(plan, k, i), _charge_words(plan, k, i)) if p]
+        parts += [p for p in (_where_words(plan, k, i), _charge_words(plan, k, i),
+                              _maintainer_words(plan, k)) if p]
     elif act == ACT.DISCHARGE:
         parts.append(f"discharge it to its storage level ({f.storage_soc[i]:.0f} %): to "
                      f"{f.storage_voltage_v[i]:.2f} V at rest")
@@ -237,9 +253,9 @@ def _action_keys(plan: StoragePlan, chosen: np.ndarray, chemistry: Column) -> np
     act = v.act[chosen]
     cap = np.where(act == Act.COUNT_DOWN, np.round(f.capacity_ah[b] * 10), 0)
     holds = plan.visit_hold_v[chosen] if plan.visit_hold_v is not None else np.zeros(len(b))
-    hold = np.where(act == Act.MAINTAINER, np.nan_to_num(np.round(holds * 100), nan=-1), 0)
-    temp = np.where(act == Act.MAINTAINER, np.round(plan.bay_mean[v.bay[chosen],
-                                                                  v.day[chosen]]), 0)
+    hold = np.nan_to_num(np.round(holds * 100), nan=-1)
+    temps = plan.visit_hold_c[chosen] if plan.visit_hold_c is not None else np.zeros(len(b))
+    temp = np.nan_to_num(np.round(temps), nan=-99)
     load = plan.visit_connected[chosen]
     chem = chemistry.codes[b]
     frozen = np.where(v.freeze[chosen], v.remedy[chosen] + 1, 0)

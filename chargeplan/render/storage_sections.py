@@ -12,9 +12,8 @@ import numpy as np
 from chargeplan.cautions import DEFERRAL, cautions_for
 from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
-from chargeplan.planners.storage_kernel import CHARGES, Act, Kind
+from chargeplan.planners.storage_kernel import CHARGES, Kind
 from chargeplan.profiles import ProfileSet
-from chargeplan.render.columns import pack
 
 __all__ = ["LISTED_MAX", "Section", "procedure_sections"]
 
@@ -97,23 +96,22 @@ def _intake(plan: StoragePlan) -> Section:
 
 def _maintainers(plan: StoragePlan) -> Section:
     v = plan.visits
-    chosen = np.flatnonzero((v.act == Act.MAINTAINER) & (v.kind == Kind.ROUND))
-    month = np.array([d.year * 100 + d.month for d in plan.dates])[v.day[chosen]]
-    _u, first = np.unique(pack(v.battery[chosen], month),
-                          return_index=True) if chosen.size else (None, np.zeros(0, int))
-    picked = chosen[np.sort(first)][:LISTED_MAX]  # each battery's first visit in each month
+    held = (np.isfinite(plan.visit_hold_v) if plan.visit_hold_v is not None
+            else np.zeros(len(v), dtype=bool))
+    picked = np.flatnonzero(held)[:LISTED_MAX]  # every setting, visit by visit
     rows = [[plan.rows[int(v.battery[k])].id, plan.bay_names[int(v.bay[k])],
-             f"{plan.dates[int(v.day[k])]:%Y-%m}",
-             f"{plan.visit_hold_v[k]:.2f} V" if plan.visit_hold_v is not None
-             and np.isfinite(plan.visit_hold_v[k]) else "as the maintainer sets"]
-            for k in picked]
+             plan.dates[int(v.day[k])].isoformat(), plan.dates[int(v.end_day[k])].isoformat(),
+             f"{plan.visit_hold_v[k]:.2f} V", f"{plan.visit_hold_c[k]:.0f} °C"]
+            for k in picked] if plan.visit_hold_c is not None else []
     return Section("Maintainers", items=[
         "Only lead-acid goes on a maintainer; lithium is never floated (rule CP206): it is "
         "kept at its storage level and checked on rounds.",
-        "The hold voltage follows the bay's temperature: set it each month as listed.",
+        "The hold voltage follows the bay's temperature: set it at each round as listed, for "
+        "the warmest month until the next round (a hold set for a colder month runs high as "
+        "the bay warms, BU-410).",
         "Never measure the rest voltage of a battery on a maintainer: read the maintainer's "
         f"display, or disconnect it for at least {REST_HOURS:g} h first."],
-        header=["battery", "bay", "month", "hold voltage"], rows=rows)
+        header=["battery", "bay", "from", "to", "hold voltage", "for up to"], rows=rows)
 
 
 def _rounds(plan: StoragePlan) -> Section:

@@ -462,6 +462,12 @@ def test_warm_room_jobs_go_to_the_bench_and_its_air_is_checked(tmp_path):
     assert day.airflow_m3_per_h == pytest.approx(expected)
     assert float(ventilation_airflow_iec62485(6, 75, 20)) == pytest.approx(0.45)
     assert "Ventilation of workshop" in (out / "procedure.md").read_text()
+    # and every other bay where lead-acid charges: LS-002 (AGM, 6 cells, 60 Ah) at intake in
+    # shed south, Q = 0.05 x 6 x 8 x 60 x 10^-3 m3/h (IEC 62485-2 cl. 7, VRLA boost)
+    south = plan.bay_names.index("shed south")
+    assert south in plan.charging_bays()
+    assert plan.ventilation(south)[0].airflow_m3_per_h == pytest.approx(0.05 * 6 * 8 * 60e-3)
+    assert "Ventilation of shed south" in (out / "procedure.md").read_text()
 
 
 def test_maintainer_hold_follows_the_month():

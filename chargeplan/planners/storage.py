@@ -369,22 +369,34 @@ class StoragePlan:
                          "flat": bool(f.lfp[i]), "expected": None}
         return list(seen.values())
 
-    def ventilation(self) -> list[Any]:
-        """The warm room's ventilation on each day it charges lead-acid (IEC 62485-2 cl. 7)."""
+    def ventilation(self, bay: int | None = None) -> list[Any]:
+        """The ventilation of ``bay`` (the warm room when None) on each day it charges
+        lead-acid (IEC 62485-2 cl. 7)."""
         from chargeplan.planners.storage_ventilation import warm_room_ventilation
         from chargeplan.planners.ventilation import available_airflow
 
         site = self.site_file.site
-        if site.warm_room is None:
-            return []
-        warm = self.bay_names.index(site.warm_room)
-        room = self.site_file.bays[warm]
+        if bay is None:
+            if site.warm_room is None:
+                return []
+            bay = self.bay_names.index(site.warm_room)
+        room = self.site_file.bays[bay]
         given = room.airflow_m3_per_h is not None or room.opening_area_cm2 is not None
         f = self.fleet
         return warm_room_ventilation(
-            self.visits, warm, f.lead, np.array([p.vented for p in f.profiles], dtype=bool),
+            self.visits, bay, f.lead, np.array([p.vented for p in f.profiles], dtype=bool),
             f.cells, f.capacity_ah, self.dates,
             available_airflow(room.airflow_m3_per_h, room.opening_area_cm2) if given else None)
+
+    def charging_bays(self) -> list[int]:
+        """The bays in which the plan charges lead-acid, the warm room first: each needs its
+        ventilation checked (IEC 62485-2 cl. 7 applies wherever batteries charge)."""
+        v = self.visits
+        charging = np.isin(v.act, CHARGES) & self.fleet.lead[v.battery]
+        bays = sorted(set(v.where[charging].tolist()))
+        warm = self.site_file.site.warm_room
+        first = [self.bay_names.index(warm)] if warm in self.bay_names else []
+        return [b for b in first if b in bays] + [b for b in bays if b not in first]
 
     def expected_rest_v(self, k: int) -> float:
         """The rested voltage visit ``k``'s predicted charge means (the profile's table); NaN

@@ -123,8 +123,9 @@ def _rounds(plan: StoragePlan) -> Section:
         "rounds; top up with distilled water only, after charging.",
         "Every round: terminals clean and tight, case not cracked or bulging, vents clear.",
         "After a top-up in the warm room, return the battery to its bay.",
-        "Warm room: keep it ventilated while lead-acid charges there (hydrogen, IEC 62485-2 "
-        "cl. 7), no sparks or flames within 0.5 m.",
+        "Wherever lead-acid charges (the warm room, or a bay with mains): keep it ventilated "
+        "while it charges (hydrogen, IEC 62485-2 cl. 7; each such room's check follows), no "
+        "sparks or flames within 0.5 m.",
         *(["LiFePO4: its rest voltage is flat from about 20 to 90 % and cannot be acted on: "
            "read the pack's own state-of-charge display (write it as state_of_charge in "
            "readings.csv), or count the charge from full"] if any(b["flat"] for b in bands)
@@ -172,12 +173,17 @@ def _freeze(plan: StoragePlan) -> Section:
                 "action"] if chosen.size else [], rows=rows)
 
 
-def _ventilation(plan: StoragePlan) -> Section | None:
-    days = plan.ventilation()
+def _ventilations(plan: StoragePlan) -> list[Section]:
+    """One ventilation check for each bay in which lead-acid charges (IEC 62485-2 cl. 7)."""
+    return [s for bay in plan.charging_bays() if (s := _ventilation(plan, bay)) is not None]
+
+
+def _ventilation(plan: StoragePlan, bay: int) -> Section | None:
+    days = plan.ventilation(bay)
     if not days:
         return None
     worst = max(days, key=lambda d: d.airflow_m3_per_h)
-    room = plan.site_file.site.warm_room
+    room = plan.bay_names[bay]
     shown = [d for d in days if d.ok is not True][:LISTED_MAX]
     given = worst.available_m3_per_h
     verdict = ("its ventilation is not given: make sure it gives at least that" if given is None
@@ -227,6 +233,6 @@ def _closing(plan: StoragePlan, profiles: ProfileSet) -> list[Section]:
 
 def procedure_sections(plan: StoragePlan, profiles: ProfileSet) -> tuple[str, list[Section]]:
     sections = [_overview(plan), _bays(plan), _intake(plan), _maintainers(plan), _rounds(plan),
-                _freeze(plan), _ventilation(plan), _readings(plan), *_closing(plan, profiles)]
+                _freeze(plan), *_ventilations(plan), _readings(plan), *_closing(plan, profiles)]
     return (f"Winter storage procedure: {plan.site_file.site.name}",
             [s for s in sections if s is not None])

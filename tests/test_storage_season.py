@@ -414,6 +414,25 @@ def test_round_sheets_carry_the_freeze_remedies_staff_carry_out():
     assert later and not any("reconnect" in line.action for line in later)
 
 
+def test_calendar_has_every_visit_day_and_no_empty_round():
+    # staff go by the calendar (RFC 5545 events read back with icalendar): an arrival between
+    # rounds is an event; a round with nobody in store is none; a departure before the
+    # season's end is a release, not the spring release
+    import icalendar
+
+    from chargeplan.render.storage_docs import calendar_ics
+
+    plan = plan_storage(_site([
+        _battery(1, "agm", arrive=dt.date(2026, 11, 20)),
+        _battery(2, "agm", depart=dt.date(2026, 11, 5))], days=61, round_days=14))
+    events = list(icalendar.Calendar.from_ical(calendar_ics(plan, {}, None)).walk("VEVENT"))
+    days = {e.decoded("dtstart"): str(e["summary"]) for e in events}
+    assert days[dt.date(2026, 11, 20)].startswith("Battery visit")
+    assert days[dt.date(2026, 11, 5)].startswith("Release, ")
+    assert days[dt.date(2026, 12, 31)].startswith("Spring release")
+    assert dt.date(2026, 11, 15) not in days  # the round of 11-15: nobody is in store
+
+
 def test_round_sheets_and_their_readings_template(tmp_path):
     out = tmp_path / "out"
     result = runner.invoke(app, ["storage", str(_lakeside()), "-o", str(out)])

@@ -54,6 +54,9 @@ from chargeplan.profiles import ProfileSet
 __all__ = ["FREEZE_MARGIN_K", "InputErrors", "Note", "Reading", "ReadingFlag", "StoragePlan",
            "TopUp", "load_site", "plan_storage", "read_inventory", "read_readings"]
 
+#: Lithium's lowest discharge (and so storage) temperature: BU-410 Table 1, Li-ion discharge
+#: -20 to 60 degC (from memory); a maker's datasheet may allow less cold.
+LITHIUM_DISCHARGE_MIN_C = -20.0
 #: Percentage points below the prediction at which a reading is flagged (common practice).
 FAST_LOSS_POINTS = 10.0
 #: Bytes per battery-day the planner may use at most (its day arrays), in all.
@@ -771,7 +774,8 @@ def plan_storage(
 def _notes(plan: StoragePlan) -> None:
     """What staff must know about single batteries, each with its code."""
     f, v = plan.fleet, plan.visits
-    for i in np.flatnonzero(f.lead & (np.nan_to_num(f.intake_soc, nan=100.0) < 50)):
+    for i in np.flatnonzero(f.lead & (np.nan_to_num(f.intake_soc, nan=100.0) < 50)
+                            & ~plan.refused):
         plan.notes.append(Note(int(i), "lead-acid-low", f"lead-acid at {f.intake_soc[i]:.0f} % "
                                "at intake: after its charge, check it holds its charge before "
                                "storing it"))
@@ -794,6 +798,15 @@ def _notes(plan: StoragePlan) -> None:
                                f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
                                f"inside its charge window; it falls to {low:.0f} % this season: "
                                "move it to a warm room with mains"))
+    lithium = np.flatnonzero(~f.lead)
+    lowest = plan.bay_min.min(axis=1)[f.bay[lithium]] if lithium.size else np.zeros(0)
+    for i, low in zip(lithium.tolist(), lowest.tolist(), strict=True):
+        if low < LITHIUM_DISCHARGE_MIN_C:
+            plan.notes.append(Note(i, "lithium-cold", (
+                f"its bay falls to {low:.0f} degC, below lithium's {LITHIUM_DISCHARGE_MIN_C:.0f} "
+                "degC discharge limit (BU-410 Table 1): store it where it stays warmer (the "
+                "maker's datasheet gives its own storage range), and never charge or discharge "
+                "it in that cold")))
     for i in np.flatnonzero(plan.would_freeze):
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "

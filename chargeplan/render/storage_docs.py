@@ -177,6 +177,9 @@ def action_text(plan: StoragePlan, k: int) -> str:
         parts.append("reading taken: the plan restarts from it")
     if act == ACT.REFUSED:
         return "do not store it as it is (see the notes); set it aside for testing"
+    if act == ACT.RELEASE and plan.refused[i]:
+        return ("release: it was set aside, not stored (see the notes); hand it back with "
+                "what its test found")
     if act == ACT.RELEASE:
         return ("spring release: " + ("measure the rested voltage and charge it fully above "
                                       "0 °C" if f.lead[i] else "charge it as the owner needs, "
@@ -261,7 +264,7 @@ def _action_keys(plan: StoragePlan, chosen: np.ndarray, chemistry: Column) -> np
     frozen = np.where(v.freeze[chosen], v.remedy[chosen] + 1, 0)
     remedy_day = np.where(v.freeze[chosen], v.remedy_day[chosen], 0)
     return pack(v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen], chem,
-                f.cells[b], load, cap, hold, temp, frozen, remedy_day)
+                f.cells[b], load, cap, hold, temp, frozen, remedy_day, plan.refused[b])
 
 
 def action_column(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> Column:
@@ -394,7 +397,8 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
 
 
 def calendar_events(plan: StoragePlan) -> list[Any]:
-    """One event per round day and one per release day (each battery's departure, or the
+    """One event per day with visits (each round with a battery in store, each arrival,
+    reading or extra top-up day) and one per release day (each battery's departure, or the
     season's end), with stable UIDs."""
     import datetime as dt
     import hashlib
@@ -407,7 +411,8 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     events = []
     charging = np.flatnonzero(np.isin(v.act, CHARGES) & (v.kind != Kind.RELEASE))
     charge_day = v.day[charging]
-    for d in plan.round_days:
+    rounds = set(plan.round_days)
+    for d in sorted(set(v.day[v.kind != Kind.RELEASE].tolist())):
         due = charging[charge_day == d]
         lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
                  for k in due[:LISTED]]
@@ -416,7 +421,8 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
         lines.append("Check every stored battery; see rounds.html and procedure.md.")
         events.append(EventSpec(
             f"{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
-            plan.dates[d] + dt.timedelta(days=1), f"Battery round, {name}: " + (
+            plan.dates[d] + dt.timedelta(days=1),
+            f"Battery {'round' if d in rounds else 'visit'}, {name}: " + (
                 f"{len(due)} charge{'s' if len(due) != 1 else ''}" if len(due) else "checks only"),
             "\n".join(lines)))
     release = np.flatnonzero(v.kind == Kind.RELEASE)
@@ -427,7 +433,8 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
         count = len(leaving)
         events.append(EventSpec(
             f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],
-            plan.dates[d] + dt.timedelta(days=1), f"Spring release, {name}: {count} "
+            plan.dates[d] + dt.timedelta(days=1),
+            f"{'Spring release' if d == len(plan.dates) - 1 else 'Release'}, {name}: {count} "
             f"batter{'ies' if count != 1 else 'y'}", "Release: " + ", ".join(ids)
             + (f" and {count - LISTED} more" if count > LISTED else "")
             + "\nMeasure, charge as procedure.md says, reconnect loads, hand back."))

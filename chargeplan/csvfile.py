@@ -150,8 +150,9 @@ def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
     ``line_num`` is the physical line.
 
     The file is read through :func:`chargeplan.loading.read_input` (a regular file, at most
-    MAX_CSV_BYTES); NUL bytes, a header naming a column twice and an over-long header cell
-    are refused with their line.
+    MAX_CSV_BYTES); NUL bytes, a header naming a column twice (in any case) and an over-long
+    header cell are refused with their line, and so is a file separated by semicolons.
+    Column names are read in any case.
     """
     import io
 
@@ -172,6 +173,12 @@ def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
         header = reader.fieldnames
     except csv.Error as error:
         raise _csv_error(error, shown, reader.reader.line_num) from None
+    if header is not None:  # column names in any case ("ID", "Owner"), as chemistry names
+        reader.fieldnames = [name.lower() for name in header]
+        header = reader.fieldnames
+    if header is not None and len(header) == 1 and header[0].count(";") >= 2:
+        raise InputError("line 1: the columns are separated by ';', not ','", file=shown,
+                         fix="save it as comma-separated CSV (a spreadsheet's 'CSV UTF-8')")
     names = [csv_unguard(name.strip()) for name in header or []]
     for name in names:
         if len(name) > MAX_CELL_CHARS:

@@ -414,6 +414,27 @@ def test_round_sheets_carry_the_freeze_remedies_staff_carry_out():
     assert later and not any("reconnect" in line.action for line in later)
 
 
+def test_lithium_load_that_would_drain_it_is_disconnected_and_kept_off():
+    # BU-702: lithium is stored at 40-50 % with its loads off; 1 A on 20 Ah is 5 %/h, below
+    # the 40 % threshold within hours; a load that may come off is disconnected at intake
+    # and never reconnected; one that must stay on (loads: connected) is not
+    plan = plan_storage(_site([_battery(1, "lifepo4", soc="50 %", capacity="20 Ah",
+                                        parasitic_draw="1 A"),
+                               _battery(2, "lifepo4", soc="50 %", capacity="20 Ah",
+                                        parasitic_draw="1 A", loads="connected")],
+                              days=60, round_days=14))
+    v = plan.visits
+    intake = v.kind == Kind.INTAKE
+    assert v.remedy[intake & (v.battery == 0)][0] == Remedy.DISCONNECT
+    assert v.remedy[intake & (v.battery == 1)][0] == Remedy.NONE
+    assert not v.freeze.any()  # not a freeze remedy: lithium has no electrolyte to freeze
+    assert float(np.nanmin(plan.soc_daily[0])) > 40
+    rows = [r for r in _rows(plan) if r["battery"] == "T-1"]
+    assert "disconnect its load and leave it off" in rows[0]["action"]
+    assert rows[0]["freeze_action"] == ""
+    assert not any("reconnect" in r["action"] for r in rows[1:] if r["visit"] == "round")
+
+
 def test_calendar_has_every_visit_day_and_no_empty_round():
     # staff go by the calendar (RFC 5545 events read back with icalendar): an arrival between
     # rounds is an event; a round with nobody in store is none; a departure before the

@@ -379,18 +379,39 @@ def _visit(st: _State, idx: np.ndarray, d: int, end: int, kind: np.ndarray,
     after = np.where(np.isnan(after), s.unknown_soc, after)  # unknown, waiting: the worst
     forecast.update(np.flatnonzero(after != known), after)
     remedy, remedy_day = _remedies(st, idx, d, forecast)
+    drained = _lithium_loads(st, idx, d, end, after)
+    remedy = np.where(drained, Remedy.DISCONNECT, remedy)
     remedy = np.where(before_risk & (remedy == Remedy.NONE) & charging, Remedy.CHARGE_NOW,
                       remedy)
     st.soc[idx] = after
     # the margin until the next visit: the next round, or the extra top-up called for
     until = np.where(remedy == Remedy.SOONER, remedy_day, end - 1)
     freeze_c, low_c, margin = forecast.margins(until)
-    risk = before_risk | (remedy != Remedy.NONE)
+    risk = before_risk | ((remedy != Remedy.NONE) & s.lead[idx])
     st.record(day=np.full(len(idx), d), battery=idx, kind=kind, act=act, where=where,
               bay=st.bay[idx].copy(), soc_before=soc, soc_after=after, thaw=thaw,
               freeze=risk & ~s.on_maintainer[idx], remedy=remedy, remedy_day=remedy_day,
               freeze_c=freeze_c, low_c=low_c, margin_k=margin,
               end_day=until)
+
+
+def _lithium_loads(st: _State, idx: np.ndarray, d: int, end: int,
+                   soc: np.ndarray) -> np.ndarray:
+    """Lithium whose load would drain it below its threshold before the next round has the
+    load disconnected, where it may come off (BU-702: store lithium with its loads off)."""
+    s = st.s
+    rows = np.flatnonzero(~s.lead[idx] & st.connected[idx] & s.may_disconnect[idx]
+                          & (s.draw_pct_day[idx] > 0) & ~s.refused[idx])
+    out = np.zeros(len(idx), dtype=bool)
+    if not rows.size:
+        return out
+    i = idx[rows]
+    k = st.key(i)
+    last = soc[rows] - ((st.cum[k, end] - st.cum[k, d]) + s.draw_pct_day[i] * (end - d))
+    cut = rows[last < s.threshold[i]]
+    st.connected[idx[cut]] = False
+    out[cut] = True
+    return out
 
 
 def _remedies(st: _State, idx: np.ndarray, d: int,

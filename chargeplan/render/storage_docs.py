@@ -200,6 +200,10 @@ def action_text(plan: StoragePlan, k: int) -> str:
     else:
         parts.append(_check_words(plan, k, i))
     freeze = _freeze_words(plan, k)
+    if not f.lead[i] and v.remedy[k] == Remedy.DISCONNECT:
+        freeze = ("disconnect its load and leave it off until the release (it would drain "
+                  "the battery below its threshold before the next round; BU-702: lithium is "
+                  "stored with its loads off)")
     if freeze:
         parts = [p for p in parts if not p.startswith("store it as it is")] + [freeze]
     if act != ACT.MAINTAINER and kind == KIND.INTAKE and f.lead[i]:
@@ -210,6 +214,8 @@ def action_text(plan: StoragePlan, k: int) -> str:
 
 def freeze_action(plan: StoragePlan, k: int) -> str:
     v = plan.visits
+    if not v.freeze[k]:
+        return ""
     remedy = int(v.remedy[k])
     text = REMEDY_TEXT[Remedy(remedy)]
     if remedy == Remedy.SOONER:
@@ -261,7 +267,8 @@ def _action_keys(plan: StoragePlan, chosen: np.ndarray, chemistry: Column) -> np
     temp = np.nan_to_num(np.round(temps), nan=-99)
     load = plan.visit_connected[chosen]
     chem = chemistry.codes[b]
-    frozen = np.where(v.freeze[chosen], v.remedy[chosen] + 1, 0)
+    frozen = np.where(v.freeze[chosen] | (v.remedy[chosen] == Remedy.DISCONNECT),
+                      v.remedy[chosen] + 1, 0)
     remedy_day = np.where(v.freeze[chosen], v.remedy_day[chosen], 0)
     return pack(v.kind[chosen], act, v.thaw[chosen], v.where[chosen], v.bay[chosen], chem,
                 f.cells[b], load, cap, hold, temp, frozen, remedy_day, plan.refused[b])
@@ -344,7 +351,7 @@ def _columns(plan: StoragePlan, chosen: np.ndarray, texts: FleetTexts) -> list[C
         *setting_cells,
         floats(v.freeze_c[chosen], ".1f", blank=""), floats(v.low_c[chosen], ".1f", blank=""),
         floats(v.margin_k[chosen], ".1f", blank=""),
-        by_key(chosen, pack(v.remedy[chosen], v.remedy_day[chosen]),
+        by_key(chosen, pack(v.remedy[chosen], v.remedy_day[chosen], v.freeze[chosen]),
                lambda k: freeze_action(plan, k)),
         _reading_cells(plan, chosen)]
 

@@ -435,6 +435,25 @@ def test_lithium_load_that_would_drain_it_is_disconnected_and_kept_off():
     assert not any("reconnect" in r["action"] for r in rows[1:] if r["visit"] == "round")
 
 
+def test_inventory_notes_and_extra_columns_reach_the_round_sheets(tmp_path):
+    # README: "other columns are kept as notes on the round sheets"
+    inventory = tmp_path / "inventory.csv"
+    inventory.write_text("id,owner,chemistry,nominal_voltage,capacity,state_of_charge,bay,berth,"
+                         "notes\nB1,harbour crew,flooded,12 V,100 Ah,80 %,A,9,keep upright\n")
+    site = tmp_path / "site.yaml"
+    site.write_text("site: {name: D, start: 2026-11-01, duration: 30 d, round_interval: 14 d}\n"
+                    "monthly: [{month: 11, mean: 5 degC, min: 0 degC}]\n"
+                    "bays: [{name: A, mains: true}]\n")
+    out = tmp_path / "out"
+    result = runner.invoke(app, ["storage", str(site), "--inventory", str(inventory), "-o",
+                                 str(out)])
+    assert result.exit_code == 0, result.stderr
+    for name in ("rounds.md", "rounds.html"):
+        page = html.unescape((out / name).read_text())
+        assert "keep upright" in page and "berth: 9" in page, name
+    assert "keep upright" not in (out / "readings.csv").read_text()
+
+
 def test_calendar_has_every_visit_day_and_no_empty_round():
     # staff go by the calendar (RFC 5545 events read back with icalendar): an arrival between
     # rounds is an event; a round with nobody in store is none; a departure before the

@@ -42,6 +42,7 @@ class Line(NamedTuple):
     charger: str
     expected: str
     checks: tuple[str, ...] = ()
+    notes: str = ""  # the inventory's notes and extra columns ("berth: 9; keep upright")
 
 
 @dataclass
@@ -126,7 +127,9 @@ def _lines(plan: StoragePlan, kept: np.ndarray, round_of: np.ndarray,
                       lambda k: _location(plan, k))
     columns = [texts.ids.of(b), texts.owners.of(b), location, action_column(plan, kept, texts),
                charge_columns(plan, kept)[0], _expected(plan, kept)]
-    return list(map(Line._make, zip(*(c.values() for c in [*columns, checks]), strict=True)))
+    notes = distinct(plan.rows[i].notes for i in b.tolist())
+    return list(map(Line._make, zip(*(c.values() for c in [*columns, checks, notes]),
+                                    strict=True)))
 
 
 def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[Sheet], int]:
@@ -151,11 +154,16 @@ def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[She
     return [out[key] for key in sorted(out)], len(chosen) - len(kept)
 
 
+def _owner(line: Line) -> str:
+    """The owner cell: the owner, then the inventory's notes for staff to see."""
+    return f"{line.owner} (note: {line.notes})" if line.notes else line.owner
+
+
 def _md_bodies(shown: list[Sheet]) -> list[str]:
     """Each sheet's table rows in Markdown, the owner's and the action's ``|`` shown as
     ``/``."""
     checks = lru_cache(maxsize=None)(lambda c: "; ".join(f"[ ] {x}" for x in c))
-    return ["".join(f"| [ ] | {line.battery} | {line.owner.replace('|', '/')} | "
+    return ["".join(f"| [ ] | {line.battery} | {_owner(line).replace('|', '/')} | "
                     f"{line.location} | {line.action.replace('|', '/')} | {line.charger} | "
                     f"{line.expected} | ______ | {checks(line.checks)} |\n"
                     for line in sheet.lines) for sheet in shown]
@@ -170,7 +178,7 @@ def _html_bodies(shown: list[Sheet]) -> list[Any]:
         f'<span class="box">&#9744;</span> {text(x)}<br>' for x in c))
     return [Markup("".join(
         f'<tr><td class="box">&#9744;</td><td>{text(line.battery)}</td>'
-        f"<td>{text(line.owner)}</td><td>{text(line.location)}</td>"
+        f"<td>{text(_owner(line))}</td><td>{text(line.location)}</td>"
         f"<td>{text(line.action)}</td><td>{text(line.charger)}</td>"
         f'<td>{text(line.expected)}</td><td class="blank"></td><td>{checks(line.checks)}</td>'
         "</tr>\n" for line in sheet.lines)) for sheet in shown]
@@ -198,8 +206,8 @@ def readings_template(plan: StoragePlan, *,
     shown, _left = found or sheets(plan)
     lines = [line for sheet in shown for line in sheet.lines]
     per_line = np.repeat(np.arange(len(shown)), [len(sheet.lines) for sheet in shown])
-    expected = (e.split(" after")[0] if e.endswith("rest") else "" for _b, _o, _l, _a, _c, e, _k
-                in lines)
+    expected = (line.expected.split(" after")[0] if line.expected.endswith("rest") else ""
+                for line in lines)
     return csv_text(READINGS_COLUMNS, csv_lines([
         Column([sheet.date for sheet in shown], per_line), distinct(line[0] for line in lines),
         distinct(line[1] for line in lines), Column([sheet.bay for sheet in shown], per_line),

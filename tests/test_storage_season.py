@@ -454,6 +454,17 @@ def test_inventory_notes_and_extra_columns_reach_the_round_sheets(tmp_path):
     assert "keep upright" not in (out / "readings.csv").read_text()
 
 
+def test_a_waiting_charge_names_why_the_warm_room_will_not_do():
+    # BU-410 Table 1: no lithium charge below 0 degC; a warm room that itself falls to
+    # -3 degC is no place for it, and the sheet says so instead of sending it there
+    bays = [{"name": "A", "mains": True}, {"name": "lab", "mains": True, "offset": "+9 K"}]
+    plan = plan_storage(_site([_battery(1, "nmc", soc="20 %")], bays=bays, warm_room="lab",
+                              mean="-10 degC", low="-12 degC", days=30, round_days=14))
+    rows = _rows(plan)
+    assert rows[0]["action"].startswith("a charge is due")
+    assert "lab falls to -3 degC itself" in rows[0]["action"]
+
+
 def test_calendar_has_every_visit_day_and_no_empty_round():
     # staff go by the calendar (RFC 5545 events read back with icalendar): an arrival between
     # rounds is an event; a round with nobody in store is none; a departure before the

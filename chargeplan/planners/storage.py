@@ -297,6 +297,17 @@ class StoragePlan:
         waits = np.flatnonzero(v.act == Act.WAIT)
         return [(int(v.battery[k]), int(v.day[k])) for k in waits]
 
+    def warmer_room_words(self) -> str:
+        """Where to take a battery whose charge waits for a warmer bay: a room with mains,
+        saying so where the site's warm room is itself too cold or has none."""
+        warm = self.site_file.site.warm_room
+        if warm is None:
+            return "move it to a warm room with mains"
+        b = self.bay_names.index(warm)
+        why = ("has no mains" if not self.site_file.bays[b].mains else
+               f"falls to {self.bay_min[b].min():.0f} degC itself")
+        return f"move it to a room with mains that stays above 0 degC ({warm} {why})"
+
     @cached_property
     def visit_connected(self) -> np.ndarray:
         """Per visit: the battery's load is connected as staff find it (connected at intake
@@ -797,7 +808,7 @@ def _notes(plan: StoragePlan) -> None:
         plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
                                f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
                                f"inside its charge window; it falls to {low:.0f} % this season: "
-                               "move it to a warm room with mains"))
+                               + plan.warmer_room_words()))
     lithium = np.flatnonzero(~f.lead)
     lowest = plan.bay_min.min(axis=1)[f.bay[lithium]] if lithium.size else np.zeros(0)
     for i, low in zip(lithium.tolist(), lowest.tolist(), strict=True):

@@ -194,7 +194,7 @@ def action_text(plan: StoragePlan, k: int) -> str:
                      f"{f.storage_voltage_v[i]:.2f} V at rest")
     elif act == ACT.WAIT:
         parts.append("a charge is due, but no bay with mains is inside its charge window "
-                     "today: move it to a warm room with mains")
+                     "today: " + plan.warmer_room_words())
     elif act == ACT.STORE and kind != KIND.ROUND:
         parts.append("store it as it is" + ("" if f.lead[i] else " (inside 40-50 %)"))
     else:

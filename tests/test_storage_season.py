@@ -172,6 +172,9 @@ def test_a_reading_is_judged_as_an_intake_would_be(volts, why):
     assert "Measure again" in flags[0].text
     assert not (plan.visits.kind == Kind.READING).any()
     np.testing.assert_array_equal(plan.soc_daily, plain.soc_daily)
+    # and a good reading of a battery set aside at intake is not taken as used
+    again = plan_storage(_reading_site(rest=f"{volts} V"), readings=[Reading(day, "T-1", 12.6)])
+    assert [f.code for f in again.reading_flags if f.battery == "T-1"] == ["set-aside"]
 
 
 def test_the_sheets_checks_and_gravity_are_read_back(tmp_path):

@@ -189,8 +189,8 @@ def read_readings(path: str | Path) -> list[Reading]:
 
 @dataclass(frozen=True)
 class ReadingFlag:
-    # unknown-battery, outside-season, implausible, flat-curve, sealed, disagree, damaged,
-    # electrolyte, not-returned, note, fast-loss, reset
+    # unknown-battery, outside-season, set-aside, implausible, flat-curve, sealed, disagree,
+    # damaged, electrolyte, not-returned, note, fast-loss, reset
     code: str
     battery: str
     date: dt.date
@@ -578,9 +578,9 @@ def _maintainer_policy(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray,
 
 
 def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
-                    profile_set: ProfileSet, bay_mean: np.ndarray,
-                    on_maintainer: np.ndarray) -> tuple[list[tuple[int, int, float]],
-                                                        list[ReadingFlag]]:
+                    profile_set: ProfileSet, bay_mean: np.ndarray, on_maintainer: np.ndarray,
+                    refused: np.ndarray) -> tuple[list[tuple[int, int, float]],
+                                                  list[ReadingFlag]]:
     """Each reading as an intake on its date (day, battery, state of charge), and the flags
     staff must see: readings the plan cannot use, and the sheet's failed checks."""
     index = {row.id: i for i, row in enumerate(fleet.rows)}
@@ -596,6 +596,12 @@ def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
                                      f"reading on {r.date.isoformat()} is outside its stay"))
             continue
         flags.extend(_check_flags(r, fleet, i))
+        if refused[i] and r.measured:
+            flags.append(ReadingFlag(
+                "set-aside", r.battery, r.date, f"reading on {r.date.isoformat()} is not used: "
+                "the battery was set aside at intake (see its note); if its test found it "
+                "sound, enter it again with this reading as its intake"))
+            continue
         found: list[tuple[float, str]] = []  # (state of charge, what it was read from)
         if r.rest_voltage_v is not None:
             found.extend(_from_voltage(r, fleet, i, profile_set, bool(on_maintainer[i]), flags))
@@ -767,7 +773,7 @@ def plan_storage(
     refused[[i for i, _ in refusals]] = True
     on_maintainer = _maintainer_policy(site_file, fleet, bay_mean, bay_min, refused)
     events, flags = _reading_events(readings or [], fleet, dates, profile_set, bay_mean,
-                                   on_maintainer)
+                                   on_maintainer, refused)
     season = _season(site_file, fleet, bay_mean, bay_min, on_maintainer, refused, events)
     result = run_season(season)
     plan = StoragePlan(site_file, fleet, dates, season.round_days,

@@ -721,3 +721,23 @@ charger: {name: shed lithium channel, max_voltage: 15 V, max_current: 30 A, min_
     assert _codes(tmp_path, doc, kind, battery_file=battery) == set()
     _lfp_table_one_it(doc)
     assert {"CK704", "CK802"} <= _codes(tmp_path, doc, kind, battery_file=battery)
+
+
+def test_a_version_3_precharge_stage_does_not_loosen_the_lithium_bulk_timer():
+    """CK316 bounds a lithium bulk timer at the lowest current the charge runs at; a
+    version-3 pre-charge stage (0.1 It, its own timer; BU-808a) is not one of them, or its
+    small current would allow a bulk timer of many hours more."""
+    from chargeplan.firmware.check import stages_lithium_bounded, subject_for
+
+    doc = _doc(N)
+    doc["version"] = 3
+    bulk = doc["stages"][0]
+    precharge = {**bulk, "kind": "precharge", "voltage_mV": 9000, "current_mA": 50,
+                 "timer_s": 5400, "exits": [{"condition": "voltage_reached",
+                                             "voltage_mV": 9000, "then": "next"}]}
+    doc["stages"].insert(0, precharge)
+    # the lowest current after the pre-charge is the cool zone's 1250 mA: 2 x 5000 mAh
+    # takes 28,800 s there; 40,000 s is refused, though at 50 mA it would take 200 h
+    bulk["timer_s"] = 40_000
+    found = list(stages_lithium_bounded(subject_for(doc)))
+    assert any("stage 2 (bulk) timer 40000 s" in line for line in found), found

@@ -452,7 +452,8 @@ def stages_lithium_bounded(s: Subject) -> Iterator[str]:
     the document runs at (BU-409: no float, end on the tail or a set time)."""
     if not s.limits.lithium or s.limits.cv_timer_max_s is None:
         return
-    lowest = min([st["current_mA"] for st in s.stages]
+    # the pre-charge (a version-3 stage) runs on its own timer; the rest at these currents
+    lowest = min([st["current_mA"] for st in s.stages if st["kind"] != "precharge"]
                  + [row["current_max_mA"] for row in _rows(s)]
                  + ([s.lock["cool_zone"]["current_max_mA"]] if s.lock["cool_zone"] else []))
     for name, stage in s.named():

@@ -692,12 +692,21 @@ def test_a_user_profile_envelope_tightens_the_limits(tmp_path):
     path = folder / "shed-lfp.yaml"
     path.write_text(path.read_text().replace("max_cell_voltage: {value: 3.65 V/cell",
                                              "max_cell_voltage: {value: 3.60 V/cell"))
+    path.write_text(path.read_text()
+                    .replace("charge_temperature_max: {value: 45 degC",
+                             "charge_temperature_max: {value: 40 degC")
+                    .replace("forbidden_stages: [equalization, desulfation]",
+                             "forbidden_stages: [equalization, desulfation, storage_hold]"))
     found = read_user_profiles([folder])
     assert found["shed-lfp"].limits.cell_max_mV == 3600
+    assert found["shed-lfp"].limits.charge_max_dC == 400
+    assert "storage_hold" in found["shed-lfp"].limits.forbidden_stages
     assert found["shed-lfp"].chemistry == "lifepo4"
     loose = folder / "shed-lfp.yaml"
-    loose.write_text(loose.read_text().replace("3.60 V/cell", "4.20 V/cell"))
+    loose.write_text(loose.read_text().replace("3.60 V/cell", "4.20 V/cell")
+                     .replace("{value: 40 degC", "{value: 60 degC"))
     assert read_user_profiles([folder])["shed-lfp"].limits.cell_max_mV == 3650
+    assert read_user_profiles([folder])["shed-lfp"].limits.charge_max_dC == 450
 
 
 @pytest.mark.parametrize("kind", ["json", "image"])

@@ -999,10 +999,20 @@ def read_user_profiles(paths: Iterable[str | Path]) -> dict[str, UserProfile]:
             envelope = {}
         cell_v = _envelope_value(envelope, "max_cell_voltage", "cell_voltage", str(path))
         rate = _envelope_value(envelope, "max_current", "c_rate", str(path))
+        t_min = _envelope_value(envelope, "charge_temperature_min", "temperature", str(path))
+        t_max = _envelope_value(envelope, "charge_temperature_max", "temperature", str(path))
+        forbidden = envelope.get("forbidden_stages")
         limits = dataclasses.replace(
             base,
             cell_max_mV=min(base.cell_max_mV, round(cell_v * 1000)) if cell_v else base.cell_max_mV,
-            current_max_it=min(base.current_max_it, rate) if rate else base.current_max_it)
+            current_max_it=min(base.current_max_it, rate) if rate else base.current_max_it,
+            charge_min_dC=(max(base.charge_min_dC, round(t_min * 10)) if t_min is not None
+                           else base.charge_min_dC),
+            charge_max_dC=(min(base.charge_max_dC, round(t_max * 10)) if t_max is not None
+                           else base.charge_max_dC),
+            forbidden_stages=base.forbidden_stages | (
+                frozenset(str(k) for k in forbidden) if isinstance(forbidden, list)
+                else frozenset()))
         found[pid] = UserProfile(pid, chemistry, limits)
     return found
 

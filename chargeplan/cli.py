@@ -303,6 +303,7 @@ def check(
                                                                     "is for")] = None,
     charger: Annotated[Path | None, typer.Option("--charger", help="the channel file it "
                                                                     "will run on")] = None,
+    profiles: ProfilePaths = None,
 ) -> None:
     """Check a setpoint file before flashing: exit 1 and every violation if it fails."""
     with _errors():
@@ -314,7 +315,8 @@ def check(
 
             battery_file = load_battery_file(battery)
         channel = load_channel_file(charger) if charger is not None else None
-        report = check_file(file, battery_file=battery_file, channel=channel)
+        report = check_file(file, battery_file=battery_file, channel=channel,
+                            profiles=profiles or [])
         if report.ok:
             what = "schema, digest" if report.kind == "json" else "CRC-32"
             typer.echo(f"{file}: ok: {what} and {report.checks_run} checks passed")

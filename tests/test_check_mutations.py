@@ -62,7 +62,8 @@ NO_LIMIT: dict[tuple[str, str], str] = {
     ("*", "temperature_table.rows[*].temperature_dC"): "a row may sit anywhere in the window "
     "(rows at refused temperatures are left out); its limits are checked at its temperature",
     ("*", "stages[*].timer_s"): "a timer 10 % longer stays inside every sourced limit (lead-acid "
-    "dwell at most 48 h, BU-403); no source bounds a lithium stage's timer",
+    "dwell at most 48 h, BU-403; a lithium constant-voltage stage at most 4 h, BU-409, and a "
+    "lithium bulk timer at most 2 x the capacity at its lowest current)",
     ("*", "stages[*].exits[*].current_below.current_mA"): "a tail current 10 % lower stays above "
     "the smallest sensible tail (BU-403 0.5 % of C lead-acid, BU-409 1 % of C lithium)",
     ("*", "interlocks.current_max_mA"): "the current interlock may sit above the stage currents, "
@@ -256,6 +257,33 @@ def test_the_checkers_guard_bounds_pass_the_bundled_profiles_guards():
         assert term.current_rise.value <= mine.guard_current_rise_max_it + 1e-12
 
 
+def test_the_checkers_stage_bounds_hold_the_bundled_profiles():
+    """The bounds CK315-CK317, P411 and P412 add (firmware/limits.py, each sourced there) are
+    the loosest a program may carry: the bundled profiles' own values (sourced in profiles/)
+    sit inside them, so the rules' programs pass."""
+    from chargeplan.firmware.charge_program import (
+        LITHIUM_RESTART_BELOW_V_CELL,
+        LITHIUM_RESTART_FILTER_S,
+        TIMER_BEYOND_EXIT,
+    )
+    from chargeplan.profiles import load_builtin
+
+    for chemistry in CHEMISTRIES:
+        mine, profile = LIMITS[chemistry], load_builtin(chemistry)
+        c, rest = profile.charge, profile.rest_voltage
+        assert rest.dead_below.value * 1000 >= mine.dead_cell_min_mV, chemistry
+        if not mine.lithium:
+            assert c.absorption_voltage.value * 1000 <= mine.charge_cell_max_mV, chemistry
+            assert c.float_voltage.value * 1000 <= mine.hold_cell_max_mV, chemistry
+            assert c.storage_voltage.value * 1000 <= mine.hold_cell_max_mV, chemistry
+            continue
+        assert c.absorption_time_max.value * TIMER_BEYOND_EXIT <= mine.cv_timer_max_s
+        assert c.storage_voltage.value * 1000 <= mine.storage_cell_max_mV, chemistry
+        assert c.precharge_below.value * 1000 >= mine.precharge_cell_min_mV, chemistry
+        assert LITHIUM_RESTART_BELOW_V_CELL * 1000 >= mine.restart_below_cell_min_mV
+        assert LITHIUM_RESTART_FILTER_S >= mine.restart_filter_min_s
+
+
 def test_checks_run_one_at_a_time():
     """Each check is a function on its own: a violation of one rule comes from its check."""
     from chargeplan.firmware import check as module
@@ -328,6 +356,17 @@ def _channel(**fields):
 F, A, G, L, N = range(5)
 
 
+def _relabelled_battery(index: int, chemistry: str):
+    """The example's battery file with its chemistry renamed (a user profile's id)."""
+    battery = load_battery_file(example_paths()[index])
+    return battery.model_copy(update={"battery": battery.battery.model_copy(
+        update={"chemistry": chemistry})})
+
+
+def _rows(change):
+    return lambda d: [change(row) for row in d["temperature_table"]["rows"]]
+
+
 def _edit(index, change, **given):
     def build():
         doc = copy.deepcopy(_doc(index))
@@ -370,6 +409,13 @@ ONE_EACH = {
     "CK312": _edit(F, _put(("stages", 2, "voltage_mV"), 15006)),
     "CK313": _edit(N, _put(("finish",), "hold")),
     "CK314": _edit(L, _put(("stages", 0, "current_mA"), 21000)),
+    # float at 2.498 V/cell, still below absorption (so CK312 passes): BU-403 floats at
+    # 2.25-2.27 V/cell
+    "CK315": _edit(F, _put(("stages", 2, "voltage_mV"), 14990)),
+    # BU-409: no float for lithium; the constant-voltage stage ends within hours
+    "CK316": _edit(N, _put(("stages", 1, "timer_s"), 4_000_000_000)),
+    # BU-702: store lithium at 40-50 %, not at 3.65 V/cell
+    "CK317": _edit(L, _put(("stages", 1, "voltage_mV"), 14600)),
     "CK401": _edit(F, _put(("interlocks", "charge_temperature_min_dC"), 600)),
     "CK402": _edit(L, _put(("interlocks", "charge_temperature_min_dC"), -50)),
     "CK403": _edit(N, _put(("interlocks", "cell_voltage_max_mV"), 4300)),
@@ -380,11 +426,19 @@ ONE_EACH = {
     "CK501": _edit(N, _put(("stages", 0, "compensated"), True)),
     "CK502": _edit(F, _put(("temperature_compensation", "coefficient_uV_per_K_per_cell"), 3000)),
     "CK503": _edit(F, _put(("temperature_compensation",), None)),
+    # BU-410: lead-acid is compensated (about -3 mV/K/cell)
+    "CK504": _edit(A, lambda d: [st.update(compensated=False) for st in d["stages"]]),
+    # the range written in degC instead of dC (BU-410: compensate up to 50 degC)
+    "CK505": _edit(A, lambda d: d["temperature_compensation"].update(range_min_dC=-20,
+                                                                      range_max_dC=50)),
     "CK601": _edit(F, lambda d: d["temperature_table"]["rows"].reverse()),
     "CK602": _edit(F, _put(("temperature_table", "rows", 0, "charge_voltage_mV"), 17000)),
     "CK603": _edit(L, _put(("temperature_table", "rows", 0, "current_max_mA"), 30000)),
     "CK604": _edit(F, _put(("temperature_table", "rows", 5, "hold_voltage_mV"), 16000)),
     "CK605": _edit(F, _put(("temperature_table", "rows", 5, "current_max_mA"), 5000)),
+    # AGM held at 2.53 V/cell at every temperature (BU-403 float 2.25-2.27; BU-410: lower
+    # when hot); no row rises with temperature, so CK605 passes
+    "CK606": _edit(A, _rows(lambda r: r.update(charge_voltage_mV=15300, hold_voltage_mV=15200))),
     "CK701": _edit(L, _put(("battery", "chemistry"), "nmc"), battery_file=lambda: _battery(L)),
     "CK702": _edit(N, _put(("battery", "capacity_mAh"), 50000), battery_file=lambda: _battery(N)),
     "CK703": _edit(L, _put(("cells_in_series",), 5), battery_file=lambda: _battery(L)),
@@ -392,6 +446,7 @@ ONE_EACH = {
         N, max_charge_current=_maker_current("1 A"))),
     "CK705": _edit(F, lambda d: None, battery_file=lambda: _battery(
         F, temperature_coefficient_mv_per_k_per_cell=-5.0)),
+    "CK706": _edit(L, lambda d: None, battery_file=lambda: _relabelled_battery(L, "shed-lfp")),
     "CK801": _edit(N, lambda d: None, channel=lambda: _channel(max_voltage="12 V")),
     "CK802": _edit(N, lambda d: None, channel=lambda: _channel(max_current="2 A")),
     "CK803": _edit(N, lambda d: None, channel=lambda: _channel(voltage_step="0.25 V")),
@@ -447,3 +502,251 @@ print(" ".join(sorted(m for m in sys.modules if m.startswith((
     out = subprocess.run([sys.executable, "-c", script], check=True, capture_output=True,
                          text=True).stdout
     assert out.strip() == ""
+
+
+# --- hand edits that loosen a guard without crossing a single field's limit ----------------
+
+
+def _lfp_hold_forever(d):
+    hold = d["stages"][1]
+    hold.update(voltage_mV=14600, exits=[], timer_s=4_000_000_000)
+
+
+def _nmc_storage_hold_appended(d):
+    absorption = d["stages"][1]
+    for e in absorption["exits"]:
+        e["then"] = "next"
+    d["stages"].append({**absorption, "kind": "storage_hold", "voltage_mV": 12600, "exits": [],
+                        "timer_s": 4_000_000_000})
+
+
+def _nmc_absorption_tail_only(d):
+    d["stages"][1].update(exits=[{"condition": "current_below", "current_mA": 50,
+                                  "then": "stop"}], timer_s=4_294_967_294)
+
+
+def _lithium_bulk_timer(d):
+    d["stages"][0]["timer_s"] = 4_000_000_000
+
+
+def _flooded_float_high(d):
+    for st in d["stages"]:
+        st["voltage_mV"] = 16000 if st["kind"] == "float" else 16020
+        for e in st["exits"]:
+            if e["condition"] == "voltage_reached":
+                e["voltage_mV"] = 16020
+    d["stages"][2]["timer_s"] = None
+    for row in d["temperature_table"]["rows"]:
+        row.update(charge_voltage_mV=16020, hold_voltage_mV=16000)
+
+
+def _agm_no_compensation(d):
+    d["temperature_compensation"] = None
+    for st in d["stages"]:
+        st["compensated"] = False
+
+
+def _lfp_table_one_it(d):
+    for row in d["temperature_table"]["rows"]:
+        if row["temperature_dC"] >= 100:
+            row["current_max_mA"] = 100_000
+
+
+def _version_3_with_equalization(d):
+    """The tester's downgrade: version 3, no program blocks, no fault guards, and an
+    automatic equalization at 2.67 V/cell for 3 h between absorption and float."""
+    d["version"] = 3
+    for key in ("precharge", "restart", "faults", "hysteresis"):
+        d.pop(key)
+    for st in d["stages"]:
+        st["exits"] = [e for e in st["exits"] if e["then"] != "fault"]
+    d["stages"].insert(2, {**d["stages"][1], "kind": "equalization", "voltage_mV": 16020,
+                           "timer_s": 3 * 3600, "estimated_duration_s": None,
+                           "charge_mAh": None, "energy_mWh": None, "exits": [
+                               {"condition": "duration", "duration_s": 3 * 3600 - 60,
+                                "then": "next"}]})
+
+
+#: (example, edit, what is given besides the file, codes that must all be found). Each is
+#: one class of the hand edits a test of the checker found passing; the source of each
+#: bound is beside it in chargeplan/firmware/limits.py.
+HOSTILE = {
+    # BU-409 / BU-808a: no float for lithium; end on the tail or a set time
+    "lithium storage hold at 3.65 V/cell with no exits": (L, _lfp_hold_forever, {},
+                                                          {"CK316", "CK317"}),
+    "NMC storage hold at 4.2 V/cell appended": (N, _nmc_storage_hold_appended, {},
+                                                {"CK316", "CK317"}),
+    "NMC absorption with a 136-year timer": (N, _nmc_absorption_tail_only, {}, {"CK316"}),
+    "lithium bulk timer of 126 years": (L, _lithium_bulk_timer, {}, {"CK316"}),
+    # BU-403: float 2.25-2.27 V/cell; 2.67 V/cell is equalization
+    "flooded charged and floated at 2.67 V/cell": (F, _flooded_float_high, {},
+                                                   {"CK315", "CK606"}),
+    # BU-410: lower the voltage when hot
+    "AGM table flat at 2.55/2.53 V/cell to 50 degC": (
+        A, _rows(lambda r: r.update(charge_voltage_mV=15300, hold_voltage_mV=15200)), {},
+        {"CK606"}),
+    "AGM without compensation": (A, _agm_no_compensation, {}, {"CK504"}),
+    "AGM compensation range 20-21 degC": (
+        A, lambda d: d["temperature_compensation"].update(range_min_dC=200, range_max_dC=210),
+        {}, {"CK505"}),
+    # BU-808a: never revive lithium below 1.5 V/cell; pre-charge a deeply discharged pack
+    "LiFePO4 no-battery threshold 1 mV": (
+        L, lambda d: d["faults"][-2].update(below_voltage_mV=1), {}, {"P411"}),
+    "LiFePO4 pre-charge only below 1.0 V/cell": (
+        L, lambda d: (d["faults"][-2].update(below_voltage_mV=4000),
+                      d["precharge"].update(below_voltage_mV=4001)), {}, {"P411"}),
+    # charger-IC practice (from memory): restart about 100 mV/cell below regulation
+    "NMC restart 1 mV below full, no filter": (
+        N, lambda d: d["restart"].update(voltage_mV=12599, filter_s=0), {}, {"P412"}),
+    # a downgrade to version 3 may not remove the guards or add an automatic equalization
+    "flooded rewritten as version 3 with equalization": (
+        F, _version_3_with_equalization, {}, {"P401", "P410"}),
+}
+
+
+def _codes(tmp_path, doc: dict, kind: str, **given) -> set[str]:
+    path = tmp_path / f"edited.{kind}"
+    if kind == "json":
+        path.write_text(json.dumps(dict(doc, digest=compute_digest(doc))))
+    else:
+        path.write_bytes(image.encode(doc))
+    return {v.code for v in check_file(path, **given).violations}
+
+
+def _example_index(doc: dict) -> int:
+    return next(i for i in range(5) if _doc(i)["battery"]["name"] == doc["battery"]["name"])
+
+
+#: image format 1 (version 3) is read, never written, by chargeplan: that edit is JSON only
+_HOSTILE_CASES = [(name, kind) for name in sorted(HOSTILE) for kind in ("json", "image")
+                  if not (kind == "image" and "version 3" in name)]
+
+
+@pytest.mark.parametrize(("name", "kind"), _HOSTILE_CASES)
+def test_hand_edits_that_loosen_a_guard_are_refused(tmp_path, name, kind):
+    index, change, given, codes = HOSTILE[name]
+    given = {key: make() for key, make in given.items()}
+    doc = _doc(index)
+    assert _codes(tmp_path, doc, kind, **given) == set(), "the unedited example must pass"
+    change(doc)
+    found = _codes(tmp_path, doc, kind, **given)
+    assert codes <= found, f"{name}: found {sorted(found)}"
+
+
+def _user_profile(tmp_path, chemistry="lifepo4", pid="shed-lfp"):
+    """A user profile: the bundled one under its own id (DEVELOPERS.md "A user profile")."""
+    from chargeplan.profiles import data_dir
+
+    text = (data_dir("profiles") / f"{chemistry}.yaml").read_text()
+    folder = tmp_path / "profiles"
+    folder.mkdir()
+    (folder / f"{pid}.yaml").write_text(text.replace(f"id: {chemistry}", f"id: {pid}", 1))
+    return folder
+
+
+def test_a_user_profile_battery_is_held_to_its_chemistry(tmp_path):
+    """README: with --battery the limits follow the battery file's chemistry; a user
+    profile's is the built-in chemistry it names (read from --profiles), so an LFP pack
+    relabelled as NMC at 4.1 V/cell is refused, and without --profiles nothing passes."""
+    from chargeplan.api import program_file
+    from chargeplan.profiles import ProfileSet
+
+    folder = _user_profile(tmp_path)
+    battery_path = tmp_path / "pack.yaml"
+    battery_path.write_text("battery: {name: Launch house pack, chemistry: shed-lfp, "
+                            "cells_in_series: 4, capacity: 100 Ah}\n"
+                            "conditions: {battery_temperature: 20 degC}\n")
+    battery = load_battery_file(battery_path)
+    doc = encode(program_file(battery_path, profiles=ProfileSet([folder])))
+    path = tmp_path / "shed.json"
+    path.write_text(json.dumps(doc))
+    assert check_file(path, battery_file=battery, profiles=[folder]).ok
+    assert {v.code for v in check_file(path, battery_file=battery).violations} == {"CK706"}
+
+    b, lock = doc["battery"], doc["interlocks"]
+    b.update(chemistry="nmc", nominal_voltage_mV=14400)
+    lock.update(cell_voltage_max_mV=4200, battery_voltage_max_mV=16800,
+                warm_zone={"above_dC": 440, "cell_voltage_max_mV": 4150})
+    for st in doc["stages"]:
+        st["voltage_mV"] = 16400  # 4.1 V/cell, far above LFP's 3.65 (cell handling guidelines)
+        for e in st["exits"]:
+            if e["condition"] == "voltage_reached":
+                e["voltage_mV"] = 16400
+    for row in doc["temperature_table"]["rows"]:
+        row["charge_voltage_mV"] = 16400
+    doc["restart"]["voltage_mV"] = 16000
+    doc["faults"][-1]["above_voltage_mV"] = 16800
+    path.write_text(json.dumps(dict(doc, digest=compute_digest(doc))))
+    found = {v.code for v in check_file(path, battery_file=battery, profiles=[folder])
+             .violations}
+    assert {"CK701", "CK303", "CK403"} <= found
+    assert {v.code for v in check_file(path, battery_file=battery).violations} == {"CK706"}
+
+
+def test_a_user_profile_envelope_tightens_the_limits(tmp_path):
+    """A user profile may only tighten its chemistry's envelope: its own 3.60 V/cell then
+    holds the document (DEVELOPERS.md: every user profile is held inside the envelope)."""
+    from chargeplan.firmware.check import read_user_profiles
+
+    folder = _user_profile(tmp_path)
+    path = folder / "shed-lfp.yaml"
+    path.write_text(path.read_text().replace("max_cell_voltage: {value: 3.65 V/cell",
+                                             "max_cell_voltage: {value: 3.60 V/cell"))
+    path.write_text(path.read_text()
+                    .replace("charge_temperature_max: {value: 45 degC",
+                             "charge_temperature_max: {value: 40 degC")
+                    .replace("forbidden_stages: [equalization, desulfation]",
+                             "forbidden_stages: [equalization, desulfation, storage_hold]"))
+    found = read_user_profiles([folder])
+    assert found["shed-lfp"].limits.cell_max_mV == 3600
+    assert found["shed-lfp"].limits.charge_max_dC == 400
+    assert "storage_hold" in found["shed-lfp"].limits.forbidden_stages
+    assert found["shed-lfp"].chemistry == "lifepo4"
+    loose = folder / "shed-lfp.yaml"
+    loose.write_text(loose.read_text().replace("3.60 V/cell", "4.20 V/cell")
+                     .replace("{value: 40 degC", "{value: 60 degC"))
+    assert read_user_profiles([folder])["shed-lfp"].limits.cell_max_mV == 3650
+    assert read_user_profiles([folder])["shed-lfp"].limits.charge_max_dC == 450
+
+
+@pytest.mark.parametrize("kind", ["json", "image"])
+def test_table_currents_are_held_to_the_maker_and_the_channel(tmp_path, kind):
+    """README: firmware takes the lower value of each column of the table, so a row may not
+    ask for more than the maker allows (CK704) or the channel gives (CK802): here 1 It on a
+    battery whose maker allows 0.2 It, from a 30 A channel."""
+    path = tmp_path / "maker.yaml"
+    path.write_text("""battery:
+  name: Launch house pack, berth 7
+  chemistry: lifepo4
+  nominal_voltage: 12 V
+  capacity: 100 Ah
+  overrides: {max_charge_current: 0.2 It}
+conditions: {battery_temperature: 6 degC}
+charger: {name: shed lithium channel, max_voltage: 15 V, max_current: 30 A, min_current: 0.5 A,
+          temperature_probe: true, can_disable_high_voltage_stages: true}
+""")
+    battery = load_battery_file(path)
+    doc = encode(program_file(path))
+    assert _codes(tmp_path, doc, kind, battery_file=battery) == set()
+    _lfp_table_one_it(doc)
+    assert {"CK704", "CK802"} <= _codes(tmp_path, doc, kind, battery_file=battery)
+
+
+def test_a_version_3_precharge_stage_does_not_loosen_the_lithium_bulk_timer():
+    """CK316 bounds a lithium bulk timer at the lowest current the charge runs at; a
+    version-3 pre-charge stage (0.1 It, its own timer; BU-808a) is not one of them, or its
+    small current would allow a bulk timer of many hours more."""
+    from chargeplan.firmware.check import stages_lithium_bounded, subject_for
+
+    doc = _doc(N)
+    doc["version"] = 3
+    bulk = doc["stages"][0]
+    precharge = {**bulk, "kind": "precharge", "voltage_mV": 9000, "current_mA": 50,
+                 "timer_s": 5400, "exits": [{"condition": "voltage_reached",
+                                             "voltage_mV": 9000, "then": "next"}]}
+    doc["stages"].insert(0, precharge)
+    # the lowest current after the pre-charge is the cool zone's 1250 mA: 2 x 5000 mAh
+    # takes 28,800 s there; 40,000 s is refused, though at 50 mA it would take 200 h
+    bulk["timer_s"] = 40_000
+    found = list(stages_lithium_bounded(subject_for(doc)))
+    assert any("stage 2 (bulk) timer 40000 s" in line for line in found), found

@@ -426,3 +426,28 @@ def test_console_entry_point_sets_the_process_up_and_keeps_the_users_values(tmp_
                             env={**_entry_env(), **dict.fromkeys(names, "7")}, cwd=tmp_path,
                             check=True)
     assert theirs.stdout.split() == ["7", "7", "7", "False"]
+
+
+def test_check_with_a_user_profile_battery_needs_profiles(tmp_path):
+    """README: with --battery the limits follow the battery file's chemistry; a user
+    profile's is read from --profiles (exit 0), and without it check refuses (exit 1, CK706)."""
+    from chargeplan.profiles import data_dir
+
+    folder = tmp_path / "profiles"
+    folder.mkdir()
+    text = (data_dir("profiles") / "lifepo4.yaml").read_text()
+    (folder / "shed-lfp.yaml").write_text(text.replace("id: lifepo4", "id: shed-lfp", 1))
+    battery_path = tmp_path / "pack.yaml"
+    battery_path.write_text("battery: {name: Launch house pack, chemistry: shed-lfp, "
+                            "cells_in_series: 4, capacity: 100 Ah}\n"
+                            "conditions: {battery_temperature: 20 degC}\n")
+    out = tmp_path / "pack.json"
+    made = runner.invoke(app, ["plan", str(battery_path), "--profiles", str(folder), "-f", "json",
+                               "-o", str(out)])
+    assert made.exit_code == 0, made.output
+    ok = runner.invoke(app, ["check", str(out), "--battery", str(battery_path), "--profiles",
+                             str(folder)])
+    assert ok.exit_code == 0, ok.output
+    refused = runner.invoke(app, ["check", str(out), "--battery", str(battery_path)])
+    assert refused.exit_code == 1
+    assert "give --profiles" in refused.output and "[CK706]" in refused.output

@@ -25,7 +25,12 @@ from pathlib import Path
 from typing import Any
 
 from chargeplan.errors import InputError
-from chargeplan.firmware.limits import LIMITS, ChemistryLimits, cell_count_candidates
+from chargeplan.firmware.limits import (
+    LEAD_REFERENCE_DC,
+    LIMITS,
+    ChemistryLimits,
+    cell_count_candidates,
+)
 from chargeplan.model.battery import BatteryFile
 from chargeplan.model.charger import ChargerChannel
 
@@ -34,12 +39,14 @@ __all__ = [
     "FORM_CHECKS",
     "CheckReport",
     "Subject",
+    "UserProfile",
     "Violation",
     "check_document",
     "check_file",
     "code",
     "load_channel_file",
     "read_setpoint_file",
+    "read_user_profiles",
     "subject_for",
 ]
 
@@ -89,6 +96,8 @@ class Subject:
     capacity_mAh: float  # the battery file's when given (the smaller), else the document's
     battery_file: BatteryFile | None = None
     channels: tuple[tuple[str, ChargerChannel], ...] = ()
+    #: the built-in chemistry the battery file's user profile names (``--profiles``)
+    profile_chemistry: str | None = None
 
     @property
     def stages(self) -> list[dict[str, Any]]:
@@ -378,6 +387,110 @@ def stages_obey_zones(s: Subject) -> Iterator[str]:
             yield f"{name} voltage is above the warm-zone limit it was planned in"
 
 
+def _maker_cell_mV(s: Subject, name: str) -> float | None:
+    """A maker's voltage override from the battery file, per cell in mV (None: not given)."""
+    if s.battery_file is None:
+        return None
+    spec = getattr(s.battery_file.battery.overrides, name)
+    return None if spec is None else spec.cell_volts(s.cells) * 1000
+
+
+def _lead_cap_mV(s: Subject, per_cell_25: float, t_dC: int) -> float:
+    """A lead-acid voltage cap at ``t_dC`` for the battery: ``per_cell_25`` at 25 degC, moved
+    by the steepest accepted coefficient in the cold and the shallowest in the heat (the
+    maker's, when the battery file gives one), inside the charge window (BU-410)."""
+    steep, shallow = s.limits.compensation_uV or (0, 0)
+    maker = (s.battery_file.battery.overrides.temperature_coefficient_mv_per_k_per_cell
+             if s.battery_file else None)
+    if maker is not None:
+        steep, shallow = min(steep, maker * 1000), max(shallow, maker * 1000)
+    t = min(max(t_dC, s.limits.charge_min_dC), s.limits.charge_max_dC)
+    slope_uV = steep if t < LEAD_REFERENCE_DC else shallow
+    return (per_cell_25 + slope_uV / 1000 * (t - LEAD_REFERENCE_DC) / 10) * s.cells
+
+
+def _lead_caps(s: Subject) -> tuple[float, float]:
+    """The charge and hold caps per cell at 25 degC: the table's, or the maker's where the
+    battery file raises them (inside the cell maximum, which CK303 holds)."""
+    charge = max(s.limits.charge_cell_max_mV or 0, _maker_cell_mV(s, "absorption_voltage") or 0)
+    hold = max(s.limits.hold_cell_max_mV or 0, _maker_cell_mV(s, "float_voltage") or 0,
+               _maker_cell_mV(s, "storage_voltage") or 0)
+    return charge, hold
+
+
+def _per_cell_at(s: Subject, voltage_mV: float, t_dC: int) -> str:
+    return f"{voltage_mV / s.cells:.0f} mV/cell at {t_dC / 10:g} degC"
+
+
+@code("CK315")
+def stages_lead_voltage_by_kind(s: Subject) -> Iterator[str]:
+    """Lead-acid: bulk and absorption no higher than the sourced charge voltage, float and
+    storage hold no higher than the sourced float band, each at the planned temperature
+    (BU-403; IEC 62485-2 Table 1; BU-410: lower when hot)."""
+    if s.limits.lithium or s.limits.charge_cell_max_mV is None:
+        return
+    charge, hold = _lead_caps(s)
+    t = s.doc["planned_temperature_dC"]
+    for name, stage in s.named():
+        per_cell = charge if stage["kind"] in _CHARGING else (
+            hold if stage["kind"] in _HOLDING else None)
+        if per_cell is None:
+            continue
+        cap = _lead_cap_mV(s, per_cell, t)
+        if stage["voltage_mV"] > cap + 1:
+            what = "charge" if stage["kind"] in _CHARGING else "float"
+            yield (f"{name} voltage {stage['voltage_mV']} mV ("
+                   f"{_per_cell_at(s, stage['voltage_mV'], t)}) is above the {what} limit "
+                   f"{cap:.0f} mV ({per_cell:.0f} mV/cell at 25 degC, compensated); lower it, or "
+                   "check with --battery giving the maker's voltage")
+
+
+@code("CK316")
+def stages_lithium_bounded(s: Subject) -> Iterator[str]:
+    """Lithium: a constant-voltage stage ends on a tail current or a duration and times out
+    within 4 h; a bulk timer lets in at most twice the rated capacity at the lowest current
+    the document runs at (BU-409: no float, end on the tail or a set time)."""
+    if not s.limits.lithium or s.limits.cv_timer_max_s is None:
+        return
+    # the pre-charge (a version-3 stage) runs on its own timer; the rest at these currents
+    lowest = min([st["current_mA"] for st in s.stages if st["kind"] != "precharge"]
+                 + [row["current_max_mA"] for row in _rows(s)]
+                 + ([s.lock["cool_zone"]["current_max_mA"]] if s.lock["cool_zone"] else []))
+    for name, stage in s.named():
+        timer = stage["timer_s"]
+        if stage["kind"] in _CONSTANT_VOLTAGE | _HOLDING:
+            ends = [e for e in stage["exits"] if e["condition"] in ("current_below", "duration")
+                    and e["then"] in _THEN]
+            if not ends:
+                yield (f"{name} at {stage['voltage_mV']} mV has no tail-current or duration exit: "
+                       "lithium would be held at it; give it both (BU-409)")
+            if timer is not None and timer > s.limits.cv_timer_max_s:
+                yield (f"{name} timer {timer} s is above the {s.limits.cv_timer_max_s} s a "
+                       "lithium constant-voltage stage may last; end it within 4 h (BU-409: no "
+                       "float)")
+        elif stage["kind"] == "bulk" and timer is not None and lowest > 0:
+            charge_mAh = timer * lowest / 3600
+            cap = s.limits.bulk_timer_charge_max_it * s.capacity_mAh
+            if charge_mAh > cap:
+                yield (f"{name} timer {timer} s lets in {charge_mAh:.0f} mAh at {lowest} mA, more "
+                       f"than {s.limits.bulk_timer_charge_max_it:g} x the {s.capacity_mAh:.0f} "
+                       "mAh capacity; shorten it")
+
+
+@code("CK317")
+def stages_lithium_storage_voltage(s: Subject) -> Iterator[str]:
+    """Lithium: a storage hold sits at a storage voltage, not at full charge (BU-702: store
+    at 40-50 %)."""
+    cap_cell = s.limits.storage_cell_max_mV
+    if cap_cell is None:
+        return
+    for name, stage in s.named():
+        if stage["kind"] == "storage_hold" and stage["voltage_mV"] > cap_cell * s.cells:
+            yield (f"{name} voltage {stage['voltage_mV']} mV is above the {s.limits.chemistry} "
+                   f"storage voltage {cap_cell * s.cells} mV ({cap_cell} mV/cell); a storage "
+                   "hold at charge voltage is a float: lower it (BU-702)")
+
+
 # --- 4xx: interlocks and zones -------------------------------------------------------------
 
 
@@ -511,6 +624,42 @@ def compensation_table_present(s: Subject) -> Iterator[str]:
         yield "the compensation range's minimum is not below its maximum"
 
 
+@code("CK504")
+def compensation_required(s: Subject) -> Iterator[str]:
+    """Lead-acid: the document carries temperature compensation and every bulk, absorption,
+    float and storage-hold stage is compensated (BU-410: about -3 mV/K/cell), unless the
+    battery file gives the maker's coefficient as zero."""
+    if s.limits.lithium or s.limits.compensation_uV is None:
+        return
+    maker = (s.battery_file.battery.overrides.temperature_coefficient_mv_per_k_per_cell
+             if s.battery_file else None)
+    if maker == 0:
+        return
+    if s.doc["temperature_compensation"] is None:
+        yield ("temperature_compensation is missing: lead-acid voltages must fall as the "
+               "battery warms (BU-410); write the document again with 'chargeplan plan'")
+    for name, stage in s.named():
+        if stage["kind"] in _CHARGING | _HOLDING and not stage["compensated"]:
+            yield (f"{name} is not compensated: a hot lead-acid battery would get the cold "
+                   "voltage (BU-410); set compensated: true")
+
+
+@code("CK505")
+def compensation_range(s: Subject) -> Iterator[str]:
+    """The compensation range reaches the top of the charge window, so a hot battery is never
+    held at a cooler, higher voltage (BU-410). (Its cold end may lie anywhere: a clamp in the
+    cold only lowers the voltage, and the interlocks stop the charge outside the window.)"""
+    comp = s.doc["temperature_compensation"]
+    if comp is None or s.limits.lithium:
+        return
+    t_max = s.lock["charge_temperature_max_dC"]
+    if comp["range_max_dC"] < t_max:
+        yield (f"temperature_compensation.range_max_dC {comp['range_max_dC']} is below the "
+               f"charge window's top {t_max} dC: above it a hot battery keeps a cooler, higher "
+               "voltage; the range is in 0.1 degC (dC), so write it up to "
+               f"{t_max}")
+
+
 # --- 6xx: the temperature table -----------------------------------------------------------
 
 
@@ -589,6 +738,25 @@ def table_trends(s: Subject) -> Iterator[str]:
             yield f"{where} has a lower current than the colder row before it"
 
 
+@code("CK606")
+def table_lead_voltage(s: Subject) -> Iterator[str]:
+    """Lead-acid: each row's charge and hold voltage keep to the sourced charge and float
+    limits at the row's temperature (BU-403; BU-410: lower when hot), as CK315 for stages."""
+    if s.limits.lithium or s.limits.charge_cell_max_mV is None:
+        return
+    charge, hold = _lead_caps(s)
+    for row in _rows(s):
+        t = row["temperature_dC"]
+        cap = _lead_cap_mV(s, charge, t)
+        if row["charge_voltage_mV"] > cap + 1:
+            yield (f"table row at {t} dC charge voltage {row['charge_voltage_mV']} mV is above "
+                   f"the charge limit {cap:.0f} mV there; lower it")
+        cap = _lead_cap_mV(s, hold, t)
+        if row["hold_voltage_mV"] is not None and row["hold_voltage_mV"] > cap + 1:
+            yield (f"table row at {t} dC hold voltage {row['hold_voltage_mV']} mV is above "
+                   f"the float limit {cap:.0f} mV there; lower it")
+
+
 # --- 7xx: the battery file -----------------------------------------------------------------
 
 
@@ -610,6 +778,9 @@ def battery_chemistry(s: Subject) -> Iterator[str]:
         yield f"the battery file is {_q(mine)}, the document {_q(doc_chemistry)}"
     elif mine not in LIMITS and profile is not None and mine != profile:
         yield f"the battery file's profile is {_q(mine)}, the document's {_q(profile)}"
+    if mine not in LIMITS and s.profile_chemistry not in (None, doc_chemistry):
+        yield (f"the battery file's profile {_q(mine)} is {_q(s.profile_chemistry)}, the "
+               f"document {_q(doc_chemistry)}")
 
 
 @code("CK702")
@@ -647,6 +818,10 @@ def battery_maker_current(s: Subject) -> Iterator[str]:
     for name, stage in s.named():
         if stage["current_mA"] > limit + 1e-6:
             yield f"{name} current is above the maker's {limit:.0f} mA"
+    for row in _rows(s):
+        if row["current_max_mA"] > limit + 1:
+            yield (f"table row at {row['temperature_dC']} dC current {row['current_max_mA']} mA "
+                   f"is above the maker's {limit:.0f} mA; lower it")
 
 
 @code("CK705")
@@ -659,6 +834,19 @@ def battery_maker_coefficient(s: Subject) -> Iterator[str]:
     if maker is not None and abs(comp["coefficient_uV_per_K_per_cell"] - maker * 1000) > 1:
         yield (f"the compensation coefficient {comp['coefficient_uV_per_K_per_cell']} "
                f"uV/K/cell is not the maker's {maker * 1000:.0f}")
+
+
+@code("CK706")
+def battery_chemistry_known(s: Subject) -> Iterator[str]:
+    """A battery file whose chemistry is a user profile is checked against that profile's
+    built-in chemistry (``--profiles``); without it the checker has no limits of its own."""
+    if s.battery_file is None:
+        return
+    mine = s.battery_file.battery.chemistry
+    if mine not in LIMITS and s.profile_chemistry is None:
+        yield (f"the battery file's chemistry {_q(mine)} is not built in and no profile "
+               "names it: give --profiles with its profile file or folder, so its chemistry's "
+               "limits apply")
 
 
 # --- 8xx: the charger channels (the battery file's charger section and --charger) --------
@@ -691,6 +879,11 @@ def channel_currents(s: Subject) -> Iterator[str]:
             if tail and tail["current_mA"] < bottom - 1:
                 yield (f"{name} tail current is below the {where}'s smallest "
                        f"{ch.min_current_a} A, which it cannot measure")
+        for row in _rows(s):
+            if row["current_max_mA"] > top:
+                yield (f"table row at {row['temperature_dC']} dC current "
+                       f"{row['current_max_mA']} mA is above the {where}'s "
+                       f"{ch.max_current_a} A; lower it")
 
 
 def _off_step(value_m: int, step: float | None) -> bool:
@@ -722,12 +915,15 @@ CHECKS: tuple[CheckFunction, ...] = (
     stages_current_limit, stages_within_interlocks, stages_end, stages_timer_covers_estimate,
     stages_lead_dwell, stages_exits_in_range, stages_precharge_below_bulk,
     stages_hold_below_charge, stages_lithium_stops, stages_obey_zones,
+    stages_lead_voltage_by_kind, stages_lithium_bounded, stages_lithium_storage_voltage,
     locks_window_order, locks_window_limits, locks_cell_voltage, locks_battery_voltage,
     locks_current, locks_cool_zone, locks_warm_zone,
     compensation_not_for_lithium, compensation_coefficient, compensation_table_present,
+    compensation_required, compensation_range,
     table_order, table_limits, table_zones, table_hold_below_charge, table_trends,
+    table_lead_voltage,
     battery_chemistry, battery_capacity, battery_cells, battery_maker_current,
-    battery_maker_coefficient,
+    battery_maker_coefficient, battery_chemistry_known,
     channel_voltages, channel_currents, channel_steps,
 )
 
@@ -737,12 +933,88 @@ def _run(checks: Iterable[CheckFunction], subject: Subject) -> list[Violation]:
             for check in checks for text in check(subject)]
 
 
-def _limits_for(doc: dict[str, Any], battery_file: BatteryFile | None) -> ChemistryLimits | None:
+def _limits_for(doc: dict[str, Any], battery_file: BatteryFile | None,
+                profile: UserProfile | None = None) -> ChemistryLimits | None:
     """The limits the document is held to: the battery file's chemistry when it names a
-    built-in one (a relabelled document cannot escape them), else the document's."""
+    built-in one, or the built-in chemistry of its user profile (tightened by the profile's
+    envelope), so a relabelled document cannot escape them; else the document's."""
     if battery_file is not None and battery_file.battery.chemistry in LIMITS:
         return LIMITS[battery_file.battery.chemistry]
+    if profile is not None:
+        return profile.limits
     return LIMITS.get(doc.get("battery", {}).get("chemistry"))
+
+
+@dataclass(frozen=True, slots=True)
+class UserProfile:
+    """What the checker reads of a user profile: its id, the built-in chemistry it names, and
+    that chemistry's limits tightened by the profile's own envelope."""
+
+    id: str
+    chemistry: str
+    limits: ChemistryLimits
+
+
+def _envelope_value(envelope: dict[str, Any], key: str, kind: str, file: str) -> float | None:
+    from chargeplan.units import QuantityError, parse_quantity
+
+    entry = envelope.get(key)
+    raw = entry.get("value") if isinstance(entry, dict) else entry
+    if raw is None:
+        return None
+    try:
+        return parse_quantity(raw, kind)
+    except QuantityError as error:
+        raise InputError(f"envelope.{key}: {error.problem}", file=file, fix=error.fix) from None
+
+
+def read_user_profiles(paths: Iterable[str | Path]) -> dict[str, UserProfile]:
+    """The user profiles in ``paths`` (files, or folders of .yaml/.yml/.json files), read as
+    plain files: the checker does not load the profile machinery it checks. A profile must
+    name a built-in ``chemistry``; its envelope may only tighten that chemistry's limits."""
+    import dataclasses
+
+    from chargeplan.loading import read_mapping
+
+    files: list[Path] = []
+    for entry in map(Path, paths):
+        if entry.is_dir():
+            files += sorted(p for p in entry.iterdir()
+                            if p.suffix.lower() in {".yaml", ".yml", ".json"})
+        else:
+            files.append(entry)
+    found: dict[str, UserProfile] = {}
+    for path in files:
+        data = read_mapping(path, what="profile")
+        pid, chemistry = data.get("id"), data.get("chemistry")
+        if chemistry not in LIMITS:
+            raise InputError(f"chemistry: {_q(chemistry)} is not a built-in chemistry",
+                             file=str(path), fix=f"name one of {', '.join(LIMITS)}")
+        if not isinstance(pid, str) or not pid:
+            raise InputError("id: a profile needs an id", file=str(path),
+                             fix="give it 'id: <name>'")
+        base = LIMITS[chemistry]
+        envelope = data.get("envelope") or {}
+        if not isinstance(envelope, dict):
+            envelope = {}
+        cell_v = _envelope_value(envelope, "max_cell_voltage", "cell_voltage", str(path))
+        rate = _envelope_value(envelope, "max_current", "c_rate", str(path))
+        t_min = _envelope_value(envelope, "charge_temperature_min", "temperature", str(path))
+        t_max = _envelope_value(envelope, "charge_temperature_max", "temperature", str(path))
+        forbidden = envelope.get("forbidden_stages")
+        limits = dataclasses.replace(
+            base,
+            cell_max_mV=min(base.cell_max_mV, round(cell_v * 1000)) if cell_v else base.cell_max_mV,
+            current_max_it=min(base.current_max_it, rate) if rate else base.current_max_it,
+            charge_min_dC=(max(base.charge_min_dC, round(t_min * 10)) if t_min is not None
+                           else base.charge_min_dC),
+            charge_max_dC=(min(base.charge_max_dC, round(t_max * 10)) if t_max is not None
+                           else base.charge_max_dC),
+            forbidden_stages=base.forbidden_stages | (
+                frozenset(str(k) for k in forbidden) if isinstance(forbidden, list)
+                else frozenset()))
+        found[pid] = UserProfile(pid, chemistry, limits)
+    return found
 
 
 def subject_for(
@@ -751,9 +1023,14 @@ def subject_for(
     battery_file: BatteryFile | None = None,
     channel: ChargerChannel | None = None,
     kind: str = "json",
+    profiles: dict[str, UserProfile] | None = None,
 ) -> Subject | None:
-    """What the checks read about ``doc``; None when its chemistry has no limits here."""
-    limits = _limits_for(doc, battery_file)
+    """What the checks read about ``doc``; None when its chemistry has no limits here.
+    ``profiles`` (:func:`read_user_profiles`) resolve a battery file's user profile."""
+    profile = None
+    if battery_file is not None:
+        profile = (profiles or {}).get(battery_file.battery.chemistry)
+    limits = _limits_for(doc, battery_file, profile)
     if limits is None:
         return None
     capacity = doc.get("battery", {}).get("capacity_mAh") or 0
@@ -764,7 +1041,8 @@ def subject_for(
         channels.append(("battery file's charger", battery_file.charger))
     if channel is not None:
         channels.append(("channel", channel))
-    return Subject(doc, kind, limits, capacity, battery_file, tuple(channels))
+    return Subject(doc, kind, limits, capacity, battery_file, tuple(channels),
+                   profile.chemistry if profile else None)
 
 
 def check_document(
@@ -773,10 +1051,12 @@ def check_document(
     battery_file: BatteryFile | None = None,
     channel: ChargerChannel | None = None,
     kind: str = "json",
+    profiles: dict[str, UserProfile] | None = None,
 ) -> list[Violation]:
     """Every way ``doc`` (a schema-valid document, or a decoded image) is unsafe or out of
     order: empty when it may be flashed."""
-    subject = subject_for(doc, battery_file=battery_file, channel=channel, kind=kind)
+    subject = subject_for(doc, battery_file=battery_file, channel=channel, kind=kind,
+                          profiles=profiles)
     if subject is None:
         chemistry = doc.get("battery", {}).get("chemistry")
         return [Violation("CK106", f"unknown chemistry {_q(chemistry)}: no limits to check "
@@ -857,9 +1137,11 @@ def check_file(
     *,
     battery_file: BatteryFile | None = None,
     channel: ChargerChannel | None = None,
+    profiles: Iterable[str | Path] = (),
 ) -> CheckReport:
     """Read and check one setpoint file. A value too large for its field type is an
-    InputError (exit 2); every other finding is a violation (exit 1)."""
+    InputError (exit 2); every other finding is a violation (exit 1). ``profiles``: user
+    profile files or folders, for a battery file whose chemistry is one of them."""
     from chargeplan.firmware.fieldtypes import require_fit
 
     doc, kind, found = read_setpoint_file(path)
@@ -873,8 +1155,8 @@ def check_file(
             return report
         require_fit(doc, file=str(path))
     report.violations += check_document(doc, battery_file=battery_file, channel=channel,
-                                        kind=kind)
-    if doc.get("version") == 4:
+                                        kind=kind, profiles=read_user_profiles(profiles))
+    if doc.get("version") in (3, 4):
         from chargeplan.firmware.check_program import program_violations
 
         for finding in program_violations(doc):

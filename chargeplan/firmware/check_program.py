@@ -2,7 +2,7 @@
 
 A tuple of small named checks, each reading only the document; each finding starts with
 its rule id (``P4nn``). :func:`program_violations` runs them all; ``check.py`` calls it
-for every version-4 document, JSON or image.
+for every version-4 document, JSON or image, and for a version-3 one (those that apply).
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ from typing import Any
 
 from chargeplan.firmware.limits import LIMITS
 
-__all__ = ["PROGRAM_CHECKS", "program_violations"]
+__all__ = ["PROGRAM_CHECKS", "VERSION_3_CHECKS", "program_violations"]
 
 Doc = dict[str, Any]
 
@@ -219,6 +219,48 @@ def hysteresis_window(doc: Doc) -> Iterator[str]:
                f"{_FILTER_MAX_S} s: an over-voltage would be held too long")
 
 
+def connection_floor(doc: Doc) -> Iterator[str]:
+    """P411: the no-battery threshold is no lower than a dead cell (BU-808a: never revive
+    lithium below 1.5 V/cell), and a lithium pre-charge covers every cell below the
+    chemistry's discharge cut-off (BU-808a: pre-charge at about 0.1 C)."""
+    limits = LIMITS.get(doc["battery"]["chemistry"])
+    cells = doc.get("cells_in_series") or 1
+    if limits is None:
+        return
+    none = {f["name"]: f for f in doc["faults"]}.get("no_battery", {}).get("below_voltage_mV")
+    floor = limits.dead_cell_min_mV * cells
+    if none is not None and none < floor:
+        yield (f"P411: no_battery.below_voltage_mV {none} is below {floor} mV "
+               f"({limits.dead_cell_min_mV} mV/cell): a dead {limits.chemistry} battery would "
+               "be charged; raise it to at least that")
+    if limits.precharge_cell_min_mV is not None:
+        below, floor = doc["precharge"]["below_voltage_mV"], limits.precharge_cell_min_mV * cells
+        if below < floor:
+            yield (f"P411: precharge.below_voltage_mV {below} is below {floor} mV "
+                   f"({limits.precharge_cell_min_mV} mV/cell): a deeply discharged "
+                   f"{limits.chemistry} battery would get the full current; raise it")
+
+
+def lithium_restart(doc: Doc) -> Iterator[str]:
+    """P412: a lithium restart lies well below the charge voltage and waits for the battery
+    to rest (charger-IC practice: about 100 mV/cell below regulation, from memory; BU-409:
+    no trickle or float charge)."""
+    limits = LIMITS.get(doc["battery"]["chemistry"])
+    if limits is None or limits.restart_below_cell_min_mV is None:
+        return
+    restart, cells = doc["restart"], doc.get("cells_in_series") or 1
+    top = max(stage["voltage_mV"] for stage in doc["stages"])
+    highest = top - limits.restart_below_cell_min_mV * cells
+    if restart["voltage_mV"] > highest:
+        yield (f"P412: restart.voltage_mV {restart['voltage_mV']} is within "
+               f"{limits.restart_below_cell_min_mV} mV/cell of the {top} mV charge voltage: a "
+               f"full battery would be topped up again and again; set it at most {highest}")
+    if restart["filter_s"] < limits.restart_filter_min_s:
+        yield (f"P412: restart.filter_s {restart['filter_s']} is below "
+               f"{limits.restart_filter_min_s} s: the voltage must rest below the restart "
+               "before a new charge")
+
+
 PROGRAM_CHECKS: tuple[Callable[[Doc], Iterator[str]], ...] = (
     stage_kinds,
     precharge_below_charge,
@@ -230,11 +272,32 @@ PROGRAM_CHECKS: tuple[Callable[[Doc], Iterator[str]], ...] = (
     connection_thresholds,
     hysteresis_window,
     lead_acid_guards,
+    connection_floor,
+    lithium_restart,
+)
+
+#: The program rules that also hold for a version-3 document, which has no program blocks:
+#: a version-3 file may not carry what version 4 forbids (operator-requested stages run
+#: automatically, a timer no longer than its stage's duration, an Ah cap outside its range,
+#: lead-acid without its fault guards), or rewriting "version": 4 as 3 would escape them.
+VERSION_3_CHECKS: tuple[Callable[[Doc], Iterator[str]], ...] = (
+    timers_beyond_exits,
+    caps_on_rated_capacity,
+    lead_acid_guards,
 )
 
 
 def program_violations(doc: Doc) -> list[str]:
-    """Every way the version-4 ``doc`` breaks a program rule (empty when none)."""
+    """Every way the version-4 ``doc`` breaks a program rule (empty when none); for a
+    version-3 document, the rules of :data:`VERSION_3_CHECKS` and no automatic
+    equalization or desulfation, each finding ending with the fix (write it again)."""
     if not doc.get("stages"):
         return ["P401: a program has no stages"]
+    if doc.get("version") == 3:
+        found = [f"P401: stage {n} ({stage['kind']}) is operator-requested: a version-3 "
+                 "document would run it automatically"
+                 for n, stage in enumerate(doc["stages"], 1) if stage["kind"] in _OPERATOR_STAGES]
+        found += [finding for check in VERSION_3_CHECKS for finding in check(doc)]
+        return [f"{finding} (version 3; write the document again as version 4 with "
+                "'chargeplan plan')" for finding in found]
     return [finding for check in PROGRAM_CHECKS for finding in check(doc)]

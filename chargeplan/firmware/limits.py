@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["LIMITS", "ChemistryLimits", "cell_count_candidates"]
+__all__ = ["LEAD_REFERENCE_DC", "LIMITS", "ChemistryLimits", "cell_count_candidates"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -38,6 +38,24 @@ class ChemistryLimits:
     guard_cap_it: float | None = None
     guard_rise_max_dK: int | None = None
     guard_current_rise_max_it: float | None = None
+    # lead-acid voltages by stage kind, per cell at the reference temperature (CK315, CK606):
+    # a charging stage (bulk, absorption) and a held one (float, storage hold)
+    charge_cell_max_mV: int | None = None
+    hold_cell_max_mV: int | None = None
+    # lithium: the longest constant-voltage stage (absorption, storage hold) and the most
+    # charge a bulk timer may allow at the lowest current the document runs at (CK316); the
+    # highest storage-hold cell voltage (CK317)
+    cv_timer_max_s: int | None = None
+    bulk_timer_charge_max_it: float | None = None
+    storage_cell_max_mV: int | None = None
+    # connection (P411): the lowest no-battery threshold per cell (below it a cell is dead,
+    # never revived), the lowest pre-charge threshold per cell (lithium)
+    dead_cell_min_mV: int = 0
+    precharge_cell_min_mV: int | None = None
+    # lithium restart (P412): at least this far below the charge voltage per cell, after at
+    # least this long below it
+    restart_below_cell_min_mV: int | None = None
+    restart_filter_min_s: int | None = None
 
     @property
     def lithium(self) -> bool:
@@ -49,6 +67,16 @@ class ChemistryLimits:
 #: (from memory), the margin this range allows. Positive (wrong sign) or ten times too large
 #: is refused.
 _LEAD_COMPENSATION = (-6000, -2000)
+#: The temperature the lead-acid stage voltages below are given at: 25 degC (common
+#: practice: datasheets and BU-403's voltages are quoted at 25 degC, from memory). Away from
+#: it a voltage may move by the coefficient range above: up to 6 mV/K/cell more in the cold,
+#: and at least 2 mV/K/cell less in the heat (BU-410: lower the voltage when hot), inside
+#: the charge window (BU-410 Table 1), unless the battery file gives the maker's coefficient.
+LEAD_REFERENCE_DC = 250
+#: A held lead-acid stage (float, storage hold): BU-403 float 2.25-2.27 V/cell, IEC 62485-2
+#: Table 1 2.23 V/cell vented and 2.27 V/cell VRLA; 2.30 V/cell is the top of the band with
+#: a margin (common practice: a float above about 2.30 V/cell gasses and dries the battery).
+_LEAD_HOLD_CELL_MV = 2300
 _LEAD = dict(
     family="lead_acid", nominal_cell_mV=2000,  # IEC 62485-2: nominal 2.0 V per cell
     nominal_tolerance=0.05,  # common practice: 12 V is 6 cells, 24 V is 12
@@ -60,6 +88,10 @@ _LEAD = dict(
     # charge that warms the battery 10 K within a stage goes into heat; BU-403: at constant
     # voltage a healthy battery's current falls, a rise of 1 % of C is thermal runaway
     guard_rise_max_dK=100, guard_current_rise_max_it=0.01,
+    hold_cell_max_mV=_LEAD_HOLD_CELL_MV,
+    # from memory: a lead-acid battery resting below about 1 V/cell has a shorted or ruined
+    # cell; the no-battery threshold may not sit lower (P411)
+    dead_cell_min_mV=1000,
 )
 _LITHIUM_FORBIDDEN = frozenset({"equalization", "desulfation", "float"})
 _LITHIUM = dict(
@@ -70,35 +102,69 @@ _LITHIUM = dict(
     # BU-808a / BU-702: no trickle or float for lithium-ion; never equalization or desulfation
     forbidden_stages=_LITHIUM_FORBIDDEN,
     tail_min_it=0.01,  # BU-409: terminate at 1-10 % of C
+    # BU-409: no trickle or float; the constant-voltage stage ends on the tail or a timer.
+    # 4 h: charger ICs time out the constant-voltage phase after a few hours (common
+    # practice, from memory; BU-409: a full charge takes about 3 h); the profiles' 2 h with
+    # its 1.1x margin sits inside it
+    cv_timer_max_s=4 * 3600,
+    # a bulk timer may let at most twice the rated capacity in at the lowest current the
+    # document runs at (the rules' timer margin 1.5x on a flat battery, common practice;
+    # more is a stage that never times out)
+    bulk_timer_charge_max_it=2.0,
+    # BU-808a: never revive lithium cells that sat below 1.5 V/cell
+    dead_cell_min_mV=1500,
+    # charger-IC practice: restart about 100 mV/cell below regulation (from memory); at
+    # least half of it, after at least 10 s of rest (common practice: the relaxation after a
+    # charge), else the charger tops the pack up again and again, a float (BU-409)
+    restart_below_cell_min_mV=50, restart_filter_min_s=10,
 )
 
 LIMITS: dict[str, ChemistryLimits] = {
     # flooded: 2.67 V/cell, the highest equalization voltage across sources
     # (2.67 V/cell, BU equalizing-charge text); 0.30 It BU-403 typical charge current
     # Ah cap 1.5 C: the published charge factor 1.10-1.30 (common practice) with a margin
+    # charging stages at most 2.50 V/cell at 25 degC: the profiles' 2.40-2.47 (IEC 62485-2
+    # Table 1 boost 2.40; EN 50342-1 cl. 8.2.2 test charge 2.47) with a margin for makers'
+    # deep-cycle values (from memory); 2.67 V/cell is equalization only
     "flooded": ChemistryLimits("flooded", cell_max_mV=2670, current_max_it=0.30,
-                               forbidden_stages=frozenset(), guard_cap_it=1.5, **_LEAD),
+                               forbidden_stages=frozenset(), guard_cap_it=1.5,
+                               charge_cell_max_mV=2500, **_LEAD),
     # AGM: 2.55 V/cell VRLA maker limits with cold compensation (from memory); 0.5 It
     # (from memory: AGM makers allow up to 0.3-0.5 C)
     # Ah cap 1.35 C: VRLA's charge factor 1.02-1.15 (common practice) with a margin
+    # charging stages at most 2.50 V/cell at 25 degC (from memory: AGM makers 2.40-2.50)
     "agm": ChemistryLimits("agm", cell_max_mV=2550, current_max_it=0.50,
-                           forbidden_stages=frozenset(), guard_cap_it=1.35, **_LEAD),
+                           forbidden_stages=frozenset(), guard_cap_it=1.35,
+                           charge_cell_max_mV=2500, **_LEAD),
     # gel: 2.50 V/cell, 0.30 It (from memory: gel maker limits); no equalization or
     # desulfation (common practice: gel and AGM get none unless the maker allows it)
     "gel": ChemistryLimits("gel", cell_max_mV=2500, current_max_it=0.30,
                            forbidden_stages=frozenset({"equalization", "desulfation"}),
-                           guard_cap_it=1.35, **_LEAD),
+                           # charging stages at most 2.45 V/cell at 25 degC (from memory: gel
+                           # makers 2.35-2.45)
+                           guard_cap_it=1.35, charge_cell_max_mV=2450, **_LEAD),
     # LiFePO4: nominal 3.2 V/cell, absolute maximum 3.65 V/cell, at most 0.2 C below 10 degC
     # (cell handling guidelines, common practice)
+    # storage hold at most 3.40 V/cell: about a rested full cell (from memory), so a hold
+    # never keeps it charged; the profile's 3.28 V/cell is 50 % (BU-702: store at 40-50 %);
+    # pre-charge below 2.0 V/cell at least (from memory: LFP discharge cut-off 2.0-2.5 V/cell)
     "lifepo4": ChemistryLimits("lifepo4", nominal_cell_mV=3200, cell_max_mV=3650,
-                               cool_below_dC=100, cool_current_it=0.20, **_LITHIUM),
+                               cool_below_dC=100, cool_current_it=0.20,
+                               storage_cell_max_mV=3400, precharge_cell_min_mV=2000,
+                               **_LITHIUM),
     # NMC: 4.20 V/cell (BU-808); nominal 3.6-3.7 V/cell (common practice). JEITA guideline
     # (2007), as summarised in charger-IC datasheets: cool zone 0-10 degC with the current
     # cut to 20-50 % (here: at most half the 1 It maximum); warm zone from 45 degC at the
     # latest, voltage cut to about 4.10-4.15 V/cell (here: at most 4.15 V/cell)
     "nmc": ChemistryLimits("nmc", nominal_cell_mV=3600, cell_max_mV=4200,
                            cool_below_dC=100, cool_current_it=0.50,
-                           warm_above_dC=450, warm_cell_max_mV=4150, **_LITHIUM),
+                           warm_above_dC=450, warm_cell_max_mV=4150,
+                           # storage hold at most 3.90 V/cell: BU-702 stores Li-ion at 40-50 %,
+                           # about 3.7-3.85 V/cell (from memory), with a margin; pre-charge
+                           # below 2.5 V/cell at least (BU-808a: pre-charge below the 2.5-3.0
+                           # V/cell cut-off)
+                           storage_cell_max_mV=3900, precharge_cell_min_mV=2500,
+                           **_LITHIUM),
 }
 
 

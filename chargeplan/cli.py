@@ -419,6 +419,10 @@ def thermistor(
         for row in table.rows:
             typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "
                        f"{row['code']:>4}")
+        from chargeplan.cautions import DEFERRAL, caution_text
+
+        typer.echo("\n" + (caution_text(plan.cautions) if plan is not None else DEFERRAL + "\n"),
+                   nl=False)
 
 
 @app.command()
@@ -544,8 +548,10 @@ def ventilation(
         if room is not None:
             verdict = "enough" if room >= need.airflow_m3_per_h else "NOT enough"
             typer.echo(f"the room gives {room:.4g} m3/h: {verdict}")
-        typer.echo("keep sparks and flames 0.5 m from the batteries; this does not replace "
-                   "local codes or licensed practice")
+        from chargeplan.cautions import caution_text, cautions_for
+
+        typer.echo("\n" + caution_text(cautions_for("lead_acid",
+                                                    vented=battery_type == "vented")), nl=False)
 
 
 @app.command("profiles")

@@ -473,3 +473,22 @@ def test_simulate_and_runtime_print_findings_cautions_and_the_deferral():
     rt = run("runtime", str(flooded), "--load", "5A")
     assert rt.exit_code == 0
     assert "hydrogen" in rt.stdout and "licensed practice" in rt.stdout
+
+
+def test_ventilation_and_thermistor_text_carry_cautions_and_the_deferral():
+    # project rule: every human-readable output shows its chemistry's cautions and defers
+    # to the maker's datasheet, local codes and licensed practice (chargeplan.cautions)
+    from chargeplan.demo import example_paths
+
+    room = run("ventilation", "--cells", "6", "--capacity", "100Ah", "--type", "vented")
+    assert room.exit_code == 0
+    assert "explodes at 4 % in air" in room.stdout and "Flooded cells vent" in room.stdout
+    assert "maker's datasheet, local codes or licensed practice" in room.stdout
+    vrla = run("ventilation", "--cells", "6", "--capacity", "100Ah", "--type", "vrla")
+    assert "Flooded cells vent" not in vrla.stdout and "explodes" in vrla.stdout
+    lfp = next(p for p in example_paths() if "lifepo4" in p.name)
+    codes = run("thermistor", "--r25", "10kohm", "--beta", "3950", "--bias", "10kohm",
+                "--battery", str(lfp))
+    assert codes.exit_code == 0
+    assert "Never charge lithium below 0 °C" in codes.stdout
+    assert "licensed practice" in codes.stdout

@@ -467,3 +467,18 @@ def test_each_round_sheet_carries_its_chemistries_cautions_and_the_deferral(tmp_
         families = {profiles.get(name).family for name in on_sheet}
         if families == {"lead_acid"}:  # a sheet of lead-acid only carries no lithium lines
             assert "thermal runaway" not in md_sheet
+
+
+def test_procedure_carries_each_profiles_own_cautions_as_its_plans_do():
+    # the procedure's Cautions hold every line a plan of each chemistry on site carries
+    # (chargeplan.cautions.profile_cautions, rule CP603), the profile's own lines included
+    from chargeplan.cautions import profile_cautions
+    from chargeplan.planners.storage import load_site
+
+    profiles = ProfileSet(use_environment=False)
+    plan = plan_storage(load_site(_lakeside()))
+    text = procedure(plan, profiles=profiles)
+    assert {"flooded", "agm"} <= set(plan.chemistry)
+    for name in set(plan.chemistry):
+        for line in profile_cautions(profiles.get(name))[:-1]:
+            assert line in text, (name, line)

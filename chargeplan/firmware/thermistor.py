@@ -165,7 +165,7 @@ def _check_codes(table: ThermistorTable) -> None:
     for name in ("cool_zone_below", "warm_zone_above"):
         code = codes.get(name)
         if code is not None and low is not None and high is not None and not (
-                high < code < low):
+                high <= code <= low):  # a zone may start at the window's edge
             raise InputError(f"the divider's code for {name} ({code}) does not lie inside "
                              f"the charge window's codes ({high} to {low})", field="--bias",
                              fix=fix)

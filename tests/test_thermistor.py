@@ -193,3 +193,20 @@ def test_cli_refuses_milliohms_and_its_example_says_kohm(tmp_path):
                                  "--beta", "3950"])
     assert result.exit_code == 2 and "'10 kohm'" in result.stderr
     assert "mohm'" not in result.stderr
+
+
+def test_window_codes_that_collapse_are_refused_even_when_the_probe_checks_can_trip():
+    # an NTC's code falls as it warms (the divider formula), so the window's minimum must
+    # read a higher code than its maximum; equal codes cannot tell 0 degC from 45 degC
+    from chargeplan.errors import InputError
+    from chargeplan.firmware.thermistor import ThermistorTable, _check_codes
+
+    table = ThermistorTable(NTC, interlocks=[
+        {"name": "charge_temperature_min", "temperature_dC": 0, "code": 1500},
+        {"name": "charge_temperature_max", "temperature_dC": 450, "code": 1500}],
+        probe=[{"name": "probe_open", "code_above": 3996},
+               {"name": "probe_short", "code_below": 27}])
+    with pytest.raises(InputError, match="cannot tell the charge window apart"):
+        _check_codes(table)
+    table.interlocks[0]["code"] = 3156
+    _check_codes(table)  # apart, and inside the probe thresholds: kept

@@ -6,7 +6,10 @@ own ``cautions`` are added after these.
 
 from __future__ import annotations
 
-__all__ = ["DEFERRAL", "cautions_for"]
+from collections.abc import Iterable
+from typing import Any
+
+__all__ = ["DEFERRAL", "caution_groups", "caution_text", "cautions_for", "profile_cautions"]
 
 LEAD_ACID = (
     "Charging lead-acid makes hydrogen, which explodes at 4 % in air: charge only in a "
@@ -52,3 +55,35 @@ def cautions_for(
     if vented:
         base += VENTED
     return [*base, *extra, DEFERRAL]
+
+
+def profile_cautions(profile: Any) -> list[str]:
+    """A profile's cautions, as every plan of it carries them (rule CP603): its family's,
+    the vented line where it vents, its own, then the deferral line. The one list that
+    plans, cards, sheets and the reading commands print."""
+    return cautions_for(profile.family, vented=profile.vented, extra=profile.cautions)
+
+
+FAMILY_LABELS = {"lead_acid": "Lead-acid", "lithium": "Lithium"}
+
+
+def caution_groups(profiles: Iterable[Any]) -> list[tuple[str, list[str]]]:
+    """The cautions of every profile given, once each, grouped by family ("Lead-acid
+    (flooded, AGM)", "Lithium (LiFePO4)"), without the deferral line (a document shows it
+    once, apart)."""
+    names: dict[str, list[str]] = {}
+    lines: dict[str, list[str]] = {}
+    for profile in sorted({id(p): p for p in profiles}.values(), key=lambda p: p.id):
+        label = FAMILY_LABELS.get(profile.family, profile.family)
+        if profile.name not in names.setdefault(label, []):
+            names[label].append(profile.name)
+        seen = lines.setdefault(label, [])
+        seen.extend(line for line in profile_cautions(profile)[:-1] if line not in seen)
+    return [(f"{label} ({', '.join(names[label])})", lines[label]) for label in sorted(lines)]
+
+
+def caution_text(cautions: list[str]) -> str:
+    """A caution list (the deferral line last, as :func:`cautions_for` makes it) as plain
+    text for a terminal: a heading, a line per caution, then the deferral."""
+    *lines, deferral = cautions
+    return "\n".join(["Cautions", *(f"  * {line}" for line in lines), deferral]) + "\n"

@@ -255,6 +255,7 @@ def state(
 ) -> None:
     """State of charge from a rest voltage or a hydrometer reading."""
     with _errors():
+        from chargeplan.cautions import caution_text
         from chargeplan.planners.readings import state_of_charge
         from chargeplan.units import option_number, option_quantity
 
@@ -273,6 +274,7 @@ def state(
         typer.echo(f"from: {reading.basis}")
         for note in reading.notes:
             typer.echo(f"note: {note}")
+        typer.echo("\n" + caution_text(reading.cautions), nl=False)
 
 
 @app.command()
@@ -284,6 +286,7 @@ def runtime(
     """How long a load takes to flatten the battery from its present state."""
     with _errors():
         from chargeplan.api import load_battery_file
+        from chargeplan.cautions import caution_text
         from chargeplan.fmt import duration
         from chargeplan.planners.readings import runtime as estimate_runtime
 
@@ -294,6 +297,7 @@ def runtime(
                    f"{result.exponent:g}, rated over {result.rated_h:g} h)")
         for note in result.notes:
             typer.echo(f"note: {note}")
+        typer.echo("\n" + caution_text(result.cautions), nl=False)
 
 
 @app.command()
@@ -417,6 +421,10 @@ def thermistor(
         for row in table.rows:
             typer.echo(f"{row['temperature_dC'] / 10:16.1f}  {row['resistance_ohm']:14.1f}  "
                        f"{row['code']:>4}")
+        from chargeplan.cautions import DEFERRAL, caution_text
+
+        typer.echo("\n" + (caution_text(plan.cautions) if plan is not None else DEFERRAL + "\n"),
+                   nl=False)
 
 
 @app.command()
@@ -542,8 +550,10 @@ def ventilation(
         if room is not None:
             verdict = "enough" if room >= need.airflow_m3_per_h else "NOT enough"
             typer.echo(f"the room gives {room:.4g} m3/h: {verdict}")
-        typer.echo("keep sparks and flames 0.5 m from the batteries; this does not replace "
-                   "local codes or licensed practice")
+        from chargeplan.cautions import caution_text, cautions_for
+
+        typer.echo("\n" + caution_text(cautions_for("lead_acid",
+                                                    vented=battery_type == "vented")), nl=False)
 
 
 @app.command("profiles")

@@ -9,9 +9,10 @@ from pathlib import Path
 
 import numpy as np
 
+from chargeplan.cautions import caution_text
 from chargeplan.csvfile import csv_row
 from chargeplan.fmt import amps, duration, num
-from chargeplan.plan import ChargePlan
+from chargeplan.plan import ChargePlan, Severity
 from chargeplan.profiles import ProfileSet
 
 __all__ = ["SimulationRun", "simulate_file", "simulate_plan"]
@@ -50,7 +51,13 @@ class SimulationRun:
         if soc.size:
             lines.append(f"  state of charge {num(soc[0] * 100, 0)} % -> "
                          f"{num(soc[-1] * 100, 0)} %")
-        return "\n".join(lines) + "\n"
+        lines.append("  (an estimate from the battery model: the stages still end on their "
+                     "exits, not on these times)")
+        if self.plan.findings:
+            marks = {Severity.INFO: "-", Severity.WARNING: "!", Severity.REFUSAL: "X"}
+            lines += ["", "Findings", *(f"  {marks[f.severity]} {f.message} [{f.rule_id}]"
+                                        for f in self.plan.findings)]
+        return "\n".join(lines) + "\n\n" + caution_text(self.plan.cautions)
 
     def csv(self) -> str:
         out = io.StringIO()

@@ -99,7 +99,7 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "fraction": ("percent", "60 %", "a percentage"),
     "coefficient": ("mV/K/cell", "-3 mV/K/cell", "a temperature coefficient per cell"),
     "power": ("W", "800 W", "a power"),
-    "resistance": ("ohm", "10 mohm", "a resistance"),
+    "resistance": ("ohm", "10 kohm", "a resistance"),
     "resistance_capacity": ("ohm*Ah", "0.08 ohm*Ah", "a resistance times capacity"),
     "current_per_capacity": ("mA/Ah", "1 mA/Ah", "a current per ampere-hour"),
     "rate": ("percent/day", "4 %/month", "a rate of charge loss such as '4 %/month'"),

@@ -399,3 +399,55 @@ def test_a_card_says_a_loaded_file_leaves_the_overcharge_to_the_person():
     assert "runs the normal charge only" in card and "desulfation stage below by hand" in card
     program = json.loads(next(iter(setpoint_files(plan).values())))
     assert "desulfation" not in [s["kind"] for s in program["stages"]]
+
+
+def test_a_lithium_charge_ends_while_someone_is_there_even_on_an_unattended_channel():
+    # the lithium caution says "do not leave the charge unattended" (chargeplan.cautions;
+    # common practice for lithium packs): an unattended channel takes lead-acid past
+    # closing, never lithium; one that cannot end inside a span is not scheduled, and says why
+    channel = {**LITHIUM, "unattended": True, "max_current": "2 A"}
+    hours = {"start": "08:00", "end": "12:00"}
+    plan = plan_bench(_bench([_battery(1, "lifepo4", "100 Ah", "20 %"),
+                              _battery(2, "nmc", "5 Ah", "20 %")],
+                             [{"name": "U", **channel}], hours=hours))
+    assert "bench.span" in plan.unscheduled[0]
+    assert any("never left unattended" in m.text for m in plan.misfits[0][0])
+    assert [plan.batteries[j.battery].id for j in plan.jobs] == ["b2"]
+    for job in plan.jobs:
+        span = plan.calendar.span_at(job.start_min)
+        assert span is not None and job.end_min <= plan.calendar.closes[span] + 1e-6
+    lead = plan_bench(_bench([_battery(3, "flooded", "60 Ah", "20 %")],
+                             [{"name": "U", **PROBE, "unattended": True, "max_current": "2 A"}],
+                             hours=hours))
+    assert any(j.end_min > lead.calendar.closes[lead.calendar.span_at(j.start_min)]
+               for j in lead.jobs)  # past closing
+    queues = _text(bench_sheets(plan)["queues.html"])
+    assert "a lead-acid charge may run past closing; lithium" in " ".join(queues.split())
+    md = bench_document(plan)
+    assert "unless its channel is marked" not in md
+
+
+def test_every_sheet_carries_the_plans_own_cautions_whole_and_the_deferral():
+    # project rule: every human-readable output shows its chemistry's cautions and defers to
+    # the maker's datasheet, local codes and licensed practice; a card shows the plan's list
+    # as the plan has it (one source: chargeplan.cautions.profile_cautions), not shortened
+    plan = plan_bench(_bench([_battery(1, "lifepo4"), _battery(2, "nmc", "5 Ah"),
+                              _battery(3, "flooded", "24 Ah")],
+                             [{"name": "L", **LITHIUM}, {"name": "A", **PROBE}]))
+    assert len(plan.jobs) == 3
+    sheets = {name: " ".join(_text(page).split()) for name, page in bench_sheets(plan).items()}
+    for name in ("cards.html", "queues.html", "tags.html", "logs.html"):
+        page = sheets[name]
+        assert "maker's datasheet, local codes or licensed practice" in page, name
+        for job in plan.jobs:
+            for line in plan.plan_of(job).cautions:
+                assert " ".join(line.split()) in page, (name, line)
+    for text in ("do not leave the charge unattended", "non-combustible surface",
+                 "no float or trickle on NMC", "Bring a cold battery indoors"):
+        assert text in sheets["cards.html"]
+    # each log sheet (printed apart) carries its own battery's cautions and the deferral
+    logs = sheets["logs.html"].split("Charge log:")[1:]
+    assert len(logs) == 3
+    for log in logs:
+        assert "licensed practice" in log
+        assert ("thermal runaway" in log) != ("hydrogen" in log)

@@ -451,3 +451,69 @@ def test_check_with_a_user_profile_battery_needs_profiles(tmp_path):
     refused = runner.invoke(app, ["check", str(out), "--battery", str(battery_path)])
     assert refused.exit_code == 1
     assert "give --profiles" in refused.output and "[CK706]" in refused.output
+
+
+def test_state_says_a_lead_acid_cell_count_was_guessed():
+    # 6.31 V flooded: 3 cells at 2.103 V/cell (Battery Council International table: about
+    # 96 %) or 6 cells at 1.05 V/cell, far gone; a reading needs the battery's nominal
+    # voltage (common practice)
+    result = run("state", "--rest-voltage", "6.31V", "--chemistry", "flooded")
+    assert result.exit_code == 0
+    assert "guess from the voltage alone" in result.stdout
+    assert "6-cell (12 V) battery far discharged" in result.stdout
+    assert "--cells or --nominal-voltage" in result.stdout
+    given = run("state", "--rest-voltage", "6.31V", "--chemistry", "flooded", "--cells", "3")
+    assert given.exit_code == 0 and "guess" not in given.stdout
+    named = run("state", "--rest-voltage", "12.6V", "--chemistry", "flooded",
+                "--nominal-voltage", "12V")
+    assert named.exit_code == 0 and "guess" not in named.stdout
+
+
+@pytest.mark.parametrize(("command", "family_text"), [
+    (["state", "--rest-voltage", "13.31V", "--chemistry", "lifepo4", "--cells", "4"],
+     "thermal runaway"),
+    (["state", "--rest-voltage", "12.4V", "--chemistry", "flooded", "--cells", "6"],
+     "hydrogen"),
+])
+def test_state_prints_the_chemistry_cautions_and_the_deferral(command, family_text):
+    # project rule: every human-readable output shows its chemistry's cautions and defers
+    # to the maker's datasheet, local codes and licensed practice (chargeplan.cautions)
+    result = run(*command)
+    assert result.exit_code == 0
+    assert family_text in result.stdout
+    assert "maker's datasheet, local codes or licensed practice" in result.stdout
+
+
+def test_simulate_and_runtime_print_findings_cautions_and_the_deferral():
+    from chargeplan.demo import example_paths
+
+    lfp = next(p for p in example_paths() if "lifepo4" in p.name)
+    sim = run("simulate", str(lfp))
+    assert sim.exit_code == 0
+    for text in ("do not leave the charge unattended", "no float or trickle on NMC",
+                 "Bring a cold battery indoors", "flat voltage curve", "[CP302]",
+                 "not on these times", "maker's datasheet, local codes or licensed practice"):
+        assert text in sim.stdout, text
+    flooded = next(p for p in example_paths() if "flooded" in p.name)
+    rt = run("runtime", str(flooded), "--load", "5A")
+    assert rt.exit_code == 0
+    assert "hydrogen" in rt.stdout and "licensed practice" in rt.stdout
+
+
+def test_ventilation_and_thermistor_text_carry_cautions_and_the_deferral():
+    # project rule: every human-readable output shows its chemistry's cautions and defers
+    # to the maker's datasheet, local codes and licensed practice (chargeplan.cautions)
+    from chargeplan.demo import example_paths
+
+    room = run("ventilation", "--cells", "6", "--capacity", "100Ah", "--type", "vented")
+    assert room.exit_code == 0
+    assert "explodes at 4 % in air" in room.stdout and "Flooded cells vent" in room.stdout
+    assert "maker's datasheet, local codes or licensed practice" in room.stdout
+    vrla = run("ventilation", "--cells", "6", "--capacity", "100Ah", "--type", "vrla")
+    assert "Flooded cells vent" not in vrla.stdout and "explodes" in vrla.stdout
+    lfp = next(p for p in example_paths() if "lifepo4" in p.name)
+    codes = run("thermistor", "--r25", "10kohm", "--beta", "3950", "--bias", "10kohm",
+                "--battery", str(lfp))
+    assert codes.exit_code == 0
+    assert "Never charge lithium below 0 °C" in codes.stdout
+    assert "licensed practice" in codes.stdout

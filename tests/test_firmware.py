@@ -674,3 +674,25 @@ def test_the_header_checks_the_image_byte_by_byte(tmp_path, compiler, flags):
     assert out == ["0", str(cells), str(0xCBF43926), "5", "4", str(capacity), str(planned)]
     assert (cells, capacity, planned) == (doc["cells_in_series"], doc["battery"]["capacity_mAh"],
                                           doc["planned_temperature_dC"])
+
+
+@pytest.mark.parametrize("chemistry", ["flooded", "lifepo4"])
+def test_c_header_carries_the_chemistry_cautions_in_ascii(write_yaml, chemistry):
+    # project rule: every human-readable output shows its chemistry's cautions; a C
+    # comment must stay ASCII (C99 5.2.1: the basic source character set), so degrees are
+    # written as degC
+    from chargeplan.api import program_file
+    from chargeplan.firmware.c_header import render_c_header
+    from chargeplan.firmware.setpoints import encode
+
+    from .conftest import battery
+
+    cells = {"lifepo4": 4}.get(chemistry, 6)
+    data = battery(battery={"chemistry": chemistry, "cells_in_series": cells})
+    data["battery"].pop("nominal_voltage", None)
+    plan = program_file(write_yaml(data))
+    header = render_c_header(plan, encode(plan))
+    comment = " ".join(line.lstrip(" *-") for line in header.split("*/")[0].splitlines())
+    for line in plan.cautions[:-1]:
+        assert line.replace("°C", "degC") in comment, line
+    assert header.isascii()

@@ -642,3 +642,50 @@ def test_plan_values_at_once_equal_each_visit_s_own():
     assert np.isfinite(expected).any() and np.isnan(expected).any()
     assert expected_rest_voltages(plan, every).tolist() == pytest.approx(
         expected, nan_ok=True, rel=0, abs=0)
+
+
+def test_each_round_sheet_carries_its_chemistries_cautions_and_the_deferral(tmp_path):
+    # project rule: every human-readable output shows the cautions of its chemistry and
+    # defers to the maker's datasheet, local codes and licensed practice; a round sheet
+    # ("charge it fully", the charger setting) is read on its own, so each carries them
+    from chargeplan.cautions import DEFERRAL, profile_cautions
+
+    out = tmp_path / "out"
+    result = runner.invoke(app, ["storage", str(_lakeside()), "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    profiles = ProfileSet(use_environment=False)
+    from chargeplan.planners.storage import load_site
+
+    plan = plan_storage(load_site(_lakeside()))
+    chemistry = {row.id: c for row, c in zip(plan.rows, plan.chemistry, strict=True)}
+    markdown = (out / "rounds.md").read_text().replace("\\", "")
+    page = html.unescape((out / "rounds.html").read_text())
+    md_sheets = markdown.split("\n## Round ")[1:]
+    html_sheets = page.split("<section>")[1:]
+    assert md_sheets and len(md_sheets) == len(html_sheets)
+    for md_sheet, html_sheet in zip(md_sheets, html_sheets, strict=True):
+        on_sheet = {c for battery, c in chemistry.items() if f"| {battery} |" in md_sheet}
+        assert on_sheet
+        for sheet in (md_sheet, html_sheet):
+            assert DEFERRAL in sheet
+            for name in on_sheet:
+                for line in profile_cautions(profiles.get(name))[:-1]:
+                    assert line in sheet, (name, line)
+        families = {profiles.get(name).family for name in on_sheet}
+        if families == {"lead_acid"}:  # a sheet of lead-acid only carries no lithium lines
+            assert "thermal runaway" not in md_sheet
+
+
+def test_procedure_carries_each_profiles_own_cautions_as_its_plans_do():
+    # the procedure's Cautions hold every line a plan of each chemistry on site carries
+    # (chargeplan.cautions.profile_cautions, rule CP603), the profile's own lines included
+    from chargeplan.cautions import profile_cautions
+    from chargeplan.planners.storage import load_site
+
+    profiles = ProfileSet(use_environment=False)
+    plan = plan_storage(load_site(_lakeside()))
+    text = procedure(plan, profiles=profiles)
+    assert {"flooded", "agm"} <= set(plan.chemistry)
+    for name in set(plan.chemistry):
+        for line in profile_cautions(profiles.get(name))[:-1]:
+            assert line in text, (name, line)

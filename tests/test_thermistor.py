@@ -144,3 +144,69 @@ def test_thermistor_command_json_and_refusals():
         assert "falls steadily" in result.stderr and "Traceback" not in result.stderr
     text = runner.invoke(app, base).stdout
     assert "full scale 4095" in text and "probe_open" in text
+
+
+@pytest.mark.parametrize(("r25", "bias", "field"), [
+    (0.01, 10_000, "--r25"),       # '10 mohm' is 10 milliohm, not 10 kohm
+    (10_000, 0.01, "--bias"),
+    (10e6, 10_000, "--r25"),       # 10 Mohm: no NTC of a charger's probe
+    (10_000, 50.0, "--bias"),
+])
+def test_a_resistance_outside_the_ntc_range_is_refused(r25, bias, field):
+    # NTC thermistors are made from about 100 ohm to 1 Mohm at 25 degC (from memory); a
+    # value outside is a unit slip, and its codes blind the interlocks
+    from chargeplan.errors import InputError
+
+    with pytest.raises(InputError) as caught:
+        thermistor_table(Divider(r25_ohm=r25, beta_k=3950, bias_ohm=bias, adc_bits=12))
+    assert caught.value.field == field and "10 kohm" in str(caught.value)
+
+
+def test_a_divider_whose_codes_cannot_tell_the_window_apart_is_refused():
+    # inside the range, but a 1 Mohm bias on a 100 ohm NTC: at 125 degC the divider reads
+    # R / (R + bias) x 4095 < 1 (the divider formula), so a short can never trip; and a 6-bit
+    # ADC with a 1 Mohm bias on a 10 kohm NTC puts 0 and 45 degC within a code or two
+    from chargeplan.errors import InputError
+
+    plan = plan_of(battery(battery={"chemistry": "lifepo4", "nominal_voltage": "12.8 V"}))
+    with pytest.raises(InputError, match="cannot trip"):
+        thermistor_table(Divider(r25_ohm=100, beta_k=3950, bias_ohm=1e6, adc_bits=12), plan)
+    with pytest.raises(InputError, match="cannot"):
+        thermistor_table(Divider(r25_ohm=10_000, beta_k=3950, bias_ohm=1e6, adc_bits=6), plan)
+    good = thermistor_table(NTC, plan)  # the common 10 kohm / 10 kohm divider is kept
+    codes = {row["name"]: row["code"] for row in good.interlocks}
+    assert codes["charge_temperature_min"] > codes["charge_temperature_max"]
+
+
+def test_cli_refuses_milliohms_and_its_example_says_kohm(tmp_path):
+    from typer.testing import CliRunner
+
+    from chargeplan.cli import app
+
+    runner = CliRunner()
+    for args in (["--r25", "10 mohm", "--bias", "10kohm"], ["--r25", "10kohm", "--bias",
+                                                            "10 mohm"]):
+        result = runner.invoke(app, ["thermistor", *args, "--beta", "3950"])
+        assert result.exit_code == 2 and "Traceback" not in result.output
+        assert "10 kohm" in result.stderr
+    result = runner.invoke(app, ["thermistor", "--r25", "10 Kohm", "--bias", "10kohm",
+                                 "--beta", "3950"])
+    assert result.exit_code == 2 and "'10 kohm'" in result.stderr
+    assert "mohm'" not in result.stderr
+
+
+def test_window_codes_that_collapse_are_refused_even_when_the_probe_checks_can_trip():
+    # an NTC's code falls as it warms (the divider formula), so the window's minimum must
+    # read a higher code than its maximum; equal codes cannot tell 0 degC from 45 degC
+    from chargeplan.errors import InputError
+    from chargeplan.firmware.thermistor import ThermistorTable, _check_codes
+
+    table = ThermistorTable(NTC, interlocks=[
+        {"name": "charge_temperature_min", "temperature_dC": 0, "code": 1500},
+        {"name": "charge_temperature_max", "temperature_dC": 450, "code": 1500}],
+        probe=[{"name": "probe_open", "code_above": 3996},
+               {"name": "probe_short", "code_below": 27}])
+    with pytest.raises(InputError, match="cannot tell the charge window apart"):
+        _check_codes(table)
+    table.interlocks[0]["code"] = 3156
+    _check_codes(table)  # apart, and inside the probe thresholds: kept

@@ -83,7 +83,10 @@ def render_c_header(plan: ChargePlan, doc: dict[str, Any]) -> str:
             "duration_exit": _exit(encoded, "duration", "duration_s"),
             "guards": [_exit(encoded, condition, key)[0] for condition, key in GUARDS],
         })
+    # the chemistry's cautions as the plan carries them (deferral apart), in ASCII words
+    cautions = [c.replace("°C", "degC") for c in plan.cautions[:-1]]
     return str(_template().render(doc=doc, plan=plan, stages=stages, kinds=_KIND_MACROS,
+                                  cautions=cautions,
                                   chemistries=CHEMISTRY_CODES, faults=FAULTS,
                                   trip_filter_ms=VOLTAGE_TRIP_FILTER_MS,
                                   image_version=IMAGE_VERSION))

@@ -66,6 +66,10 @@ class ThermistorTable:
         }
 
 
+#: The resistances of NTC thermistors and their bias resistors as made (R25 about 100 ohm
+#: to 1 Mohm; from memory); a value outside is a unit slip ('10 mohm' for '10 kohm').
+NTC_RESISTANCE_OHM = (100.0, 1e6)
+
 #: How a code relates to the divider (printed with every table).
 FULL_SCALE_NOTE = ("code = R / (R + bias) x (2^bits - 1): the ADC's reference is the divider's "
                    "supply and full scale is 2^bits - 1 (4095 at 12 bits)")
@@ -77,6 +81,13 @@ def _check(divider: Divider) -> None:
         if not (math.isfinite(value) and value > 0):
             raise InputError(f"{value:g} must be above zero", field=name,
                              fix="give the datasheet value, e.g. --r25 10kohm --beta 3950")
+    for name, value in (("--r25", divider.r25_ohm), ("--bias", divider.bias_ohm)):
+        low, high = NTC_RESISTANCE_OHM
+        if not low <= value <= high:
+            raise InputError(f"{value:g} ohm is outside the {low:g} ohm to {high / 1e6:g} Mohm "
+                             "of an NTC divider", field=name,
+                             fix="give the datasheet value in ohms, e.g. '10 kohm' "
+                                 "(kilohm: lower-case k; 'mohm' is milliohm)")
     if not 6 <= divider.adc_bits <= 24:
         raise InputError(f"{divider.adc_bits} bits is not an ADC", field="--adc-bits",
                          fix="give 6 to 24, e.g. 12")
@@ -128,6 +139,38 @@ def _probe_thresholds(divider: Divider, low_c: float, high_c: float) -> list[dic
     ]
 
 
+def _check_codes(table: ThermistorTable) -> None:
+    """Codes firmware can act on: the charge window's limits apart (a warmer battery reads
+    a lower code, so the minimum's code lies above the maximum's), every interlock between
+    the probe's open and short thresholds, and both thresholds reachable inside the ADC's
+    0 to full scale. Else the 0 degC lithium interlock, or the probe checks, never trip."""
+    full = table.full_scale_code
+    fix = "choose a bias resistor near the thermistor's resistance inside the window (e.g. " \
+          "--bias 10kohm for a 10 kohm NTC), or an ADC with more bits"
+    opened = next(int(p["code_above"]) for p in table.probe if p["name"] == "probe_open")
+    shorted = next(int(p["code_below"]) for p in table.probe if p["name"] == "probe_short")
+    if opened >= full:
+        raise InputError(f"the open-probe threshold (code above {opened}) cannot trip: full "
+                         f"scale is {full}", field="--bias", fix=fix)
+    if shorted <= 0:
+        raise InputError(f"the shorted-probe threshold (code below {shorted}) cannot trip: "
+                         "the lowest code is 0", field="--bias", fix=fix)
+    codes = {str(row["name"]): int(row["code"]) for row in table.interlocks}  # type: ignore[call-overload]
+    low, high = codes.get("charge_temperature_min"), codes.get("charge_temperature_max")
+    if low is not None and high is not None and not shorted < high < low < opened:
+        raise InputError(
+            f"the divider's codes cannot tell the charge window apart: minimum code {low}, "
+            f"maximum code {high}, probe short below {shorted}, open above {opened} (each "
+            "must lie above the next)", field="--bias", fix=fix)
+    for name in ("cool_zone_below", "warm_zone_above"):
+        code = codes.get(name)
+        if code is not None and low is not None and high is not None and not (
+                high <= code <= low):  # a zone may start at the window's edge
+            raise InputError(f"the divider's code for {name} ({code}) does not lie inside "
+                             f"the charge window's codes ({high} to {low})", field="--bias",
+                             fix=fix)
+
+
 def thermistor_table(
     divider: Divider,
     plan: ChargePlan | None = None,
@@ -153,6 +196,7 @@ def thermistor_table(
             result.interlocks.append({"name": name, "temperature_dC": t_dc,
                                       "code": int(rounding(exact)), "exact_code": exact})
     result.probe = _probe_thresholds(divider, low_c, high_c)
+    _check_codes(result)
     temps = np.arange(low_c, high_c + step_c / 2, step_c)
     codes = divider.code(temps)
     resistances = divider.resistance(temps)

@@ -35,7 +35,7 @@ from chargeplan.planners.bench_schedule import Job, Problem, lower_bound, peaks,
 from chargeplan.planners.ventilation import available_airflow, charge_airflow
 from chargeplan.profiles import ProfileSet
 
-__all__ = ["CHARGER_EFFICIENCY", "BenchPlan", "Job", "load_bench", "plan_bench",
+__all__ = ["CHARGER_EFFICIENCY", "BenchPlan", "Job", "attended_always", "load_bench", "plan_bench",
            "read_bench_batteries", "replan_at", "replan_bench"]
 
 #: The after-charge check: the rested voltage 12-24 h after charging (common practice)
@@ -154,11 +154,17 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                 continue
             got.minutes = total[0] / 60.0
             watched = overcharge_stage(got.plan)
-            if got.minutes > longest + 1e-6 and (watched or not channel.unattended):
+            if got.minutes > longest + 1e-6 and (watched or not channel.unattended
+                                                 or attended_always(got.plan)):
                 if watched:
                     text = (f"{got.minutes / 60:.1f} h with {watched} (needs a person there), "
                             f"past every {longest / 60:.1f} h working span: run the {watched} "
                             "on a later charge of its own, or on longer working hours")
+                elif attended_always(got.plan):
+                    text = (f"its lithium charge takes {got.minutes / 60:.1f} h, longer than "
+                            f"the longest working span ({longest / 60:.1f} h), and a lithium "
+                            "charge is never left unattended, even on an unattended channel: "
+                            "use a channel with a larger current, or longer working hours")
                 else:
                     text = (f"its charge takes {got.minutes / 60:.1f} h, longer than the "
                             f"longest working span ({longest / 60:.1f} h) on a channel that "
@@ -173,6 +179,14 @@ def _policy(rows: list[BenchBattery], bench: BenchFile, fit: list[list[Option | 
                     got.plan, found[i],
                     channel_may_equalize=not channel.can_disable_high_voltage_stages,
                     channel_max_current_a=channel.max_current_a)
+
+
+def attended_always(plan: ChargePlan) -> bool:
+    """Whether a charge needs someone there to the end on any channel: a lithium charge
+    (its caution: "do not leave the charge unattended", chargeplan.cautions) or one with a
+    desulfation or equalization (:func:`overcharge_stage`). Such a charge ends inside the
+    working span it starts in, even on a channel marked ``unattended``."""
+    return plan.battery.family == "lithium" or overcharge_stage(plan) is not None
 
 
 def overcharge_stage(plan: ChargePlan) -> str | None:
@@ -317,7 +331,7 @@ def _scheduled(intake: _Intake, now: dt.datetime | None, progress: Progress | No
         release=[start + w for w in intake.warm_ups], due=due,
         attended=[not c.unattended for c in bench.channels], calendar=calendar, room=room,
         budget=bench.mains_budget_w or math.inf, channel_free=[start] * len(bench.channels),
-        fixed=fixed, watched={k for k, o in options.items() if overcharge_stage(o.plan)})
+        fixed=fixed, watched={k for k, o in options.items() if attended_always(o.plan)})
     jobs, left = schedule(problem)
     from chargeplan.planners.bench_notes import why_not
 

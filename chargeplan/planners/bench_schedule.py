@@ -50,8 +50,9 @@ class Problem:
     budget: float
     channel_free: list[float]  # when each channel is first free
     fixed: list[Job] = field(default_factory=list)
-    #: (battery, channel) whose charge has a stage that needs someone present (desulfation,
-    #: equalization): it ends inside working hours even on an unattended channel
+    #: (battery, channel) whose charge needs someone present to the end (lithium; a
+    #: desulfation or equalization: bench.attended_always): it ends inside working hours
+    #: even on an unattended channel
     watched: set[tuple[int, int]] = field(default_factory=set)
 
     def attends(self, i: int, c: int) -> bool:

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from chargeplan.cautions import profile_cautions
 from chargeplan.cells import CellFields, check_rest_voltage, count_cells
 from chargeplan.errors import InputError
 from chargeplan.fmt import cell_volts, celsius, num, volts
@@ -30,6 +31,8 @@ class StateReading:
     state_of_charge_pct: float
     basis: str
     notes: list[str] = field(default_factory=list)
+    #: the chemistry's cautions, the deferral line last (chargeplan.cautions.profile_cautions)
+    cautions: list[str] = field(default_factory=list)
 
 
 #: The names the state command's messages give its inputs.
@@ -80,6 +83,9 @@ def _from_rest(profile: Profile, rest_voltage_v: float, temperature_c: float | N
     if check.verdict in ("reversed", "dead", "too_high", "fewer_cells"):
         raise InputError(check.problem, field="--rest-voltage",
                          fix="check the reading, the cell count and the chemistry")
+    guessed = cells is None and nominal_voltage_v is None
+    if guessed:
+        notes.append(_guessed_count(profile, count.cells, rest_voltage_v))
     if check.verdict in ("below_empty", "over_discharged"):
         notes.append(f"{check.problem}: check each cell before charging"
                      + (" (BU-808a)" if profile.family == "lithium" else ""))
@@ -91,7 +97,25 @@ def _from_rest(profile: Profile, rest_voltage_v: float, temperature_c: float | N
                      f"{num(band.low.value, 0)} and {num(band.high.value, 0)} %")
     return count.cells, soc, (
         f"rest voltage {volts(rest_voltage_v)} = {cell_volts(check.per_cell_v)} on "
-        f"{count.cells} cells ({profile.rest_voltage.table_source.split(';')[0]})")
+        f"{count.cells} cells" + (" (a guess from the voltage alone)" if guessed else "")
+        + f" ({profile.rest_voltage.table_source.split(';')[0]})")
+
+
+def _guessed_count(profile: Profile, cells: int, rest_voltage_v: float) -> str:
+    """What a cell count read off the voltage alone may hide: a battery of more cells, far
+    discharged (or with shorted cells), that reads the same without reading as dead."""
+    from chargeplan.cells import LEAD_ACID_CELLS
+
+    counts = LEAD_ACID_CELLS if profile.family == "lead_acid" else ()
+    dead = profile.rest_voltage.dead_below.value
+    larger = [n for n in counts if n > cells and rest_voltage_v / n >= dead][:2]
+    text = (f"the cell count ({cells} cells, {volts(cells * profile.nominal_cell_voltage.value)}"
+            " nominal) is a guess from the voltage alone")
+    if larger:
+        text += "; it could as well be " + " or ".join(
+            f"a {n}-cell ({volts(n * profile.nominal_cell_voltage.value)}) battery far "
+            f"discharged ({cell_volts(rest_voltage_v / n)})" for n in larger)
+    return text + ": give --cells or --nominal-voltage from the label"
 
 
 def state_of_charge(
@@ -140,7 +164,7 @@ def state_of_charge(
     elif rested_s is None:
         notes.append(f"read only after {num(REST_HOURS, 0)} h or more at rest: soon after "
                      "charging it reads high (common practice)")
-    return StateReading(profile.id, result_cells, soc, basis, notes)
+    return StateReading(profile.id, result_cells, soc, basis, notes, profile_cautions(profile))
 
 
 @dataclass
@@ -151,6 +175,8 @@ class Runtime:
     rated_h: float
     exponent: float
     notes: list[str] = field(default_factory=list)
+    #: the chemistry's cautions, the deferral line last (chargeplan.cautions.profile_cautions)
+    cautions: list[str] = field(default_factory=list)
 
 
 def runtime(
@@ -200,4 +226,5 @@ def runtime(
                      "battery's own self-discharge shortens this; Peukert's law does not "
                      "count it")
     notes.append("at low temperatures a battery delivers less than this (not modelled)")
-    return Runtime(current, full_h * soc / 100.0, soc, rated, exponent, notes)
+    return Runtime(current, full_h * soc / 100.0, soc, rated, exponent, notes,
+                   profile_cautions(ctx.profile))

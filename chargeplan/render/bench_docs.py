@@ -12,7 +12,7 @@ from functools import lru_cache
 from typing import Any
 
 from chargeplan import fmt
-from chargeplan.cautions import DEFERRAL
+from chargeplan.cautions import DEFERRAL, FAMILY_LABELS
 from chargeplan.plan import ChargePlan
 from chargeplan.planners.bench import (
     AFTER_CHECK_PASS_SOC_PCT,
@@ -25,17 +25,25 @@ from chargeplan.planners.bench_notes import headline
 from chargeplan.render.bench_chart import gantt_svg
 from chargeplan.render.text import describe_exit
 
-__all__ = ["BENCH_CAUTIONS", "bench_document", "bench_sheets", "file_name", "gantt_svg",
-           "setpoint_files"]
+__all__ = ["BENCH_CAUTIONS", "UNATTENDED_RULE", "bench_document", "bench_sheets", "file_name",
+           "gantt_svg", "setpoint_files"]
 
+#: What a channel marked ``unattended`` may do (chargeplan.planners.bench.attended_always):
+#: the one place the bench's documents say it.
+UNATTENDED_RULE = (
+    "A channel marked for unattended use may run a lead-acid charge past closing; a lithium "
+    "charge, a desulfation and an equalization always end while someone is there, on every "
+    "channel.")
+
+
+#: The bench's own cautions; each chemistry's follow from its plans (one source:
+#: chargeplan.cautions.profile_cautions), never shortened or reworded here.
 BENCH_CAUTIONS = (
     "Wear eye protection; keep an eyewash and running water at the bench.",
     "No sparks, flames or smoking within 0.5 m of a charging battery (IEC 62485-2); keep the "
     "room ventilated as worked out under Ventilation.",
     "Connect the battery before switching a channel on; switch off before disconnecting.",
-    "Charge lithium on a non-combustible surface, away from anything that burns, and never "
-    "leave it charging unattended unless its channel is marked for unattended use.",
-    "Never charge a frozen battery, or lithium below 0 °C.",
+    UNATTENDED_RULE,
 )
 
 
@@ -43,13 +51,6 @@ def file_name(plan: BenchPlan, battery: int) -> str:
     """A setpoint file name for a battery that no other battery's can collide with."""
     safe = re.sub(r"[^A-Za-z0-9._-]", "_", plan.batteries[battery].id)
     return f"setpoints-{battery + 1:03d}-{safe}.json"
-
-
-def _short(caution: str) -> str:
-    """A caution in short: its first clause (before a colon) or its first sentence."""
-    first = caution.split(". ")[0].rstrip(".")
-    clause = first.split(":")[0]
-    return (clause if len(clause) >= 25 else first) + "."
 
 
 def _interlocks(plan: ChargePlan) -> list[str]:
@@ -87,7 +88,8 @@ def _card(plan: BenchPlan, job: Any) -> dict[str, Any]:
                     "timer": fmt.duration(s.timer_s) if s.timer_s is not None else "—"}
                    for s in charge.stages],
         "interlocks": _interlocks(charge),
-        "cautions": [_short(c) for c in charge.cautions[:-1]],
+        "cautions": charge.cautions[:-1],  # the plan's own list, whole (deferral apart)
+        "chemistry": charge.battery.profile_name,
         "due": plan.clock(plan.due_min[job.battery]) if math.isfinite(
             plan.due_min[job.battery]) else "",
         "pass_v": f"{plan.pass_voltage_v[job.battery]:.2f} V",
@@ -160,11 +162,11 @@ def _findings(plan: BenchPlan) -> list[tuple[str, list[tuple[str, str]]]]:
 
 def _chemistry_cautions(plan: BenchPlan) -> list[tuple[str, list[str]]]:
     """The cautions of every chemistry on the bench, once each, grouped by family (the
-    deferral is apart)."""
+    deferral is apart): each line as the plans carry it."""
     groups: dict[str, list[str]] = {}
     for job in sorted(plan.jobs, key=lambda j: j.battery):
         charge = plan.plan_of(job)
-        label = "Lithium" if charge.battery.family == "lithium" else "Lead-acid"
+        label = FAMILY_LABELS[charge.battery.family]
         seen = groups.setdefault(label, [])
         seen.extend(line for line in charge.cautions[:-1] if line not in seen)
     return sorted(groups.items())
@@ -225,7 +227,7 @@ def _context(plan: BenchPlan, html: bool) -> dict[str, Any]:
         "chemistry_cautions": _chemistry_cautions(plan), "ventilation": _ventilation(plan),
         "gantt": Markup(gantt_svg(plan)) if html else "", "cards": _cards(plan),
         "queues": _queues(plan), "rest_h": AFTER_CHECK_REST_H,
-        "pass_soc": AFTER_CHECK_PASS_SOC_PCT,
+        "pass_soc": AFTER_CHECK_PASS_SOC_PCT, "unattended_rule": UNATTENDED_RULE,
     }
 
 

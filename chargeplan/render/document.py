@@ -7,8 +7,8 @@ from functools import lru_cache
 from typing import Any
 
 from chargeplan import fmt
-from chargeplan.plan import ChargePlan, Severity
-from chargeplan.render.text import stage_rows
+from chargeplan.plan import ChargePlan
+from chargeplan.render.text import ESTIMATE_CAVEAT, stage_rows
 
 __all__ = ["render_html", "render_markdown"]
 
@@ -43,9 +43,9 @@ def _context(plan: ChargePlan, explain: bool) -> dict[str, Any]:
         f"about {fmt.duration(total[0])}, {fmt.num(total[1], 1)} Ah, {fmt.num(total[2], 0)} Wh",
         "rows": rows,
         "interlocks": interlocks,
-        "findings": [(f.severity.value, f.message, f.rule_id) for f in plan.findings
-                     if f.severity != Severity.INFO or explain],
-        "notes": [(f.message, f.rule_id) for f in plan.findings if f.severity == Severity.INFO],
+        # every finding, as the text plan lists them (info notes too: the flat-curve caveat)
+        "findings": [(f.severity.value, f.message, f.rule_id) for f in plan.findings],
+        "estimate_caveat": ESTIMATE_CAVEAT,
         "explain": explain,
     }
 

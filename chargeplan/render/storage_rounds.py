@@ -51,6 +51,9 @@ class Sheet:
     bay: str
     round_number: int
     lines: list[Line]
+    #: the profiles of the batteries on the sheet (the fleet's own profile objects, each
+    #: once): the sheet carries their cautions
+    profiles: tuple[Any, ...] = ()
 
 
 def _checks(plan: StoragePlan, k: int, round_number: int) -> tuple[str, ...]:
@@ -144,12 +147,14 @@ def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[She
     visited[v.day[chosen]] = True
     round_of = (np.cumsum(visited) - 1)[v.day[kept]]  # the rounds, from 0, in order
     out: dict[tuple[int, int], Sheet] = {}
+    present = _profiles_present(plan, kept)
     for d, b, n, line in zip(v.day[kept].tolist(), v.bay[kept].tolist(), round_of.tolist(),
                              _lines(plan, kept, round_of, texts or FleetTexts(plan)),
                              strict=True):
         sheet = out.get((d, b))
         if sheet is None:
-            sheet = out[(d, b)] = Sheet(plan.dates[d].isoformat(), plan.bay_names[b], n + 1, [])
+            sheet = out[(d, b)] = Sheet(plan.dates[d].isoformat(), plan.bay_names[b], n + 1, [],
+                                        present[(d, b)])
         sheet.lines.append(line)
     return [out[key] for key in sorted(out)], len(chosen) - len(kept)
 
@@ -157,6 +162,39 @@ def sheets(plan: StoragePlan, texts: FleetTexts | None = None) -> tuple[list[She
 def _owner(line: Line) -> str:
     """The owner cell: the owner, then the inventory's notes for staff to see."""
     return f"{line.owner} (note: {line.notes})" if line.notes else line.owner
+
+
+def _profiles_present(plan: StoragePlan, kept: np.ndarray) -> dict[tuple[int, int], tuple]:
+    """For each (day, bay) of the visits ``kept``, the profiles of its batteries, each once
+    (one np.unique over the visits, not a loop over them)."""
+    v, f = plan.visits, plan.fleet
+    firsts: dict[int, int] = {}  # each profile by the first battery that has it
+    kind = np.fromiter((firsts.setdefault(id(p), i) for i, p in enumerate(f.profiles)),
+                       dtype=np.intp, count=f.n)
+    if not len(kept):
+        return {}
+    triples = np.unique(np.stack([v.day[kept].astype(np.int64), v.bay[kept].astype(np.int64),
+                                  kind[v.battery[kept]].astype(np.int64)]), axis=1)
+    out: dict[tuple[int, int], list[Any]] = {}
+    for d, b, i in triples.T.tolist():
+        out.setdefault((d, b), []).append(f.profiles[i])
+    return {key: tuple(found) for key, found in out.items()}
+
+
+def _caution_groups() -> Any:
+    """``cautions_of(profiles)``: the cautions of the profiles on a sheet, grouped by family
+    (chargeplan.cautions.caution_groups), made once per distinct set of profiles."""
+    from chargeplan.cautions import caution_groups
+
+    made: dict[tuple[int, ...], list[tuple[str, list[str]]]] = {}
+
+    def cautions_of(profiles: tuple[Any, ...]) -> list[tuple[str, list[str]]]:
+        key = tuple(sorted(id(p) for p in profiles))
+        if key not in made:
+            made[key] = caution_groups(profiles)
+        return made[key]
+
+    return cautions_of
 
 
 def _md_bodies(shown: list[Sheet]) -> list[str]:
@@ -194,9 +232,11 @@ def round_sheets(plan: StoragePlan, *, html: bool = False,
     shown, left = found or sheets(plan)
     bodies = _html_bodies(shown) if html else _md_bodies(shown)
     name = "storage_rounds.html.j2" if html else "storage_rounds.md.j2"
+    from chargeplan.cautions import DEFERRAL
+
     return str(_environment(html).get_template(name).render(
         site=plan.site_file.site.name, sheets=list(zip(shown, bodies, strict=True)), left=left,
-        rest_hours=REST_HOURS))
+        rest_hours=REST_HOURS, cautions_of=_caution_groups(), deferral=DEFERRAL))
 
 
 def readings_template(plan: StoragePlan, *,

@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from chargeplan.cautions import DEFERRAL, cautions_for
+from chargeplan.cautions import DEFERRAL, caution_groups
 from chargeplan.planners.readings import REST_HOURS
 from chargeplan.planners.storage import StoragePlan
 from chargeplan.planners.storage_kernel import CHARGES, Kind
@@ -208,13 +208,10 @@ def _readings(plan: StoragePlan) -> Section | None:
 
 
 def _closing(plan: StoragePlan, profiles: ProfileSet) -> list[Section]:
-    families = sorted(set(plan.family.tolist()))
-    vented = any(profiles.get(c).vented for c in set(plan.chemistry))
-    cautions: list[str] = []
-    for family in families:
-        for line in cautions_for(family, vented=vented and family == "lead_acid")[:-1]:
-            if line not in cautions:
-                cautions.append(line)
+    # every profile's own list (chargeplan.cautions.profile_cautions: the family's, the
+    # vented line, the profile's), as its plans carry it; lead-acid before lithium
+    cautions = [line for _family, lines in caution_groups(
+        profiles.get(c) for c in set(plan.chemistry)) for line in lines]
     out = [Section("Cold rules", items=[
         "Never charge lithium below 0 °C: bring it to the warm room first and wait until the "
         "cells themselves are above 0 °C.",

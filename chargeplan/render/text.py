@@ -8,7 +8,11 @@ from typing import Any
 from chargeplan import fmt
 from chargeplan.plan import ChargePlan, Exit, ExitKind, Severity, Stage
 
-__all__ = ["STAGE_COLUMNS", "describe_exit", "render_text", "stage_rows", "text_table"]
+__all__ = ["ESTIMATE_CAVEAT", "STAGE_COLUMNS", "describe_exit", "render_text", "stage_rows",
+           "text_table"]
+
+#: What every estimate of time, Ah and Wh carries, in every format.
+ESTIMATE_CAVEAT = "the stages still end on their exits, not on these times"
 
 #: The stage table's columns, as the HTML and Markdown pages show them: (key, heading, width).
 STAGE_COLUMNS = (("n", "#", 2), ("label", "stage", 12), ("set", "set", 26),
@@ -116,5 +120,6 @@ def render_text(plan: ChargePlan, *, explain: bool = False) -> str:
             explain=explain,
             marks=marks,
             stage_table=text_table(stage_rows(plan)),
+            estimate_caveat=ESTIMATE_CAVEAT,
         )
     )

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from chargeplan.cautions import cautions_for
+from chargeplan.cautions import profile_cautions
 from chargeplan.engine.context import Context
 from chargeplan.engine.registry import rule
 from chargeplan.fmt import amps, cell_volts, celsius, duration, num, volts
@@ -89,5 +89,4 @@ def interlocks_limits(ctx: Context) -> None:
       "(no lithium charging below 0 degC); common practice")
 def cautions_chemistry(ctx: Context) -> None:
     """Every plan carries its chemistry's cautions and defers to the datasheet and local codes."""
-    ctx.cautions = cautions_for(ctx.profile.family, vented=ctx.profile.vented,
-                                extra=ctx.profile.cautions)
+    ctx.cautions = profile_cautions(ctx.profile)

@@ -37,6 +37,7 @@ __all__ = [
     "Parsed",
     "Text",
     "VoltageSpec",
+    "free_text",
     "local_date",
     "number",
     "quantity",
@@ -322,6 +323,8 @@ def _text_reader(*, identifier: bool, empty: bool, limit: int) -> Callable[[obje
 
 
 _text = _text_reader(identifier=False, empty=False, limit=TEXT_MAX)
+#: Free text's reader, for a field with its own type (a profile's sources).
+free_text = _text_reader(identifier=False, empty=True, limit=FREE_TEXT_MAX)
 
 #: A name or other text a person reads: no control or invisible characters.
 Text = Annotated[str, Parsed(_remembered(_text),
@@ -331,8 +334,7 @@ Ident = Annotated[str, Parsed(_remembered(_text_reader(identifier=True, empty=Fa
                                                        limit=TEXT_MAX)),
                               {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
 #: Free text that may be empty (an owner, notes): no control or invisible characters.
-FreeText = Annotated[str, Parsed(_remembered(_text_reader(identifier=False, empty=True,
-                                                          limit=FREE_TEXT_MAX)),
+FreeText = Annotated[str, Parsed(_remembered(free_text),
                                  {"type": "string", "maxLength": FREE_TEXT_MAX})]
 
 

@@ -11,7 +11,7 @@ from typing import Annotated, ClassVar, Literal
 
 from pydantic import Field, StrictFloat, create_model, model_validator
 
-from chargeplan.model.fields import InputModel, Parsed, Text, quantity
+from chargeplan.model.fields import FreeText, InputModel, Parsed, Text, free_text, quantity
 
 __all__ = [
     "Compensation",
@@ -37,7 +37,7 @@ def _source_text(raw: object) -> str:
             "every value needs a source: a standard and clause, a handbook and table, "
             "'common practice' or 'from memory'"
         )
-    return raw.strip()
+    return free_text(raw)
 
 
 Source = Annotated[str, Parsed(_source_text, {"type": "string", "minLength": 6})]
@@ -305,7 +305,7 @@ class Profile(InputModel):
     )
     family: Family
     name: Text
-    summary: str = ""
+    summary: FreeText = ""
     vented: bool = Field(description="true for flooded cells that gas freely and take water")
     nominal_cell_voltage: CellVoltage  # type: ignore[valid-type]
     charge: Charge
@@ -317,7 +317,7 @@ class Profile(InputModel):
     storage: StorageLoss
     termination: Termination | None = None
     envelope: Envelope
-    cautions: list[str] = Field(default_factory=list)
+    cautions: list[FreeText] = Field(default_factory=list)
 
     @model_validator(mode="after")
     def _consistent(self) -> Profile:

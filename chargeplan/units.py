@@ -355,10 +355,13 @@ def _unit_problem(number: float, unit_text: str, shown: str, kind: str) -> Quant
     except pint.UndefinedUnitError as error:
         name = str(getattr(error, "unit_names", "") or error).strip("'()[], ")
         hint = ""
-        if name.startswith("degree") and "\u00b0" in shown:  # pint reads '°' as 'degree'
-            name = "\u00b0" + name.removeprefix("degree")
+        if "degree" in name and "\u00b0" in shown:  # pint reads '°' as 'degree'
+            name = name.replace("degree", "\u00b0")
             if name == "\u00b0K":
                 hint = " (kelvin takes no degree sign: write K, or degC for degrees Celsius)"
+        if name not in shown:  # a name made by a rewrite ('µX' read as 'uX'): not named
+            return QuantityError(f"'{quote(shown)}' has a unit chargeplan does not know",
+                                 f"write {wanted}")
         if name == "C":
             hint = _C_HINTS.get(kind, " (chargeplan reads no unit 'C': degrees Celsius are "
                                       "'degC', a C-rate is 'It', a capacity 'Ah')")

@@ -452,3 +452,14 @@ def test_a_whole_number_in_another_base_is_refused(text, fragment):
     with pytest.raises(QuantityError) as caught:
         parse_number(text, integer=True)
     assert fragment in str(caught.value)
+
+
+@pytest.mark.parametrize(("text", "kind", "typed", "made"), [
+    ("-5 \u00b0K", "temperature", "'\u00b0K'", "degreeK"),
+    ("12 V\u00b0", "voltage", "'V\u00b0'", "Vdegree"),
+    ("5 \u00b5X", "current", "'5 \u00b5X'", "uX"),   # µ is read as the prefix u
+])
+def test_an_unknown_unit_is_never_named_as_rewritten(text, kind, typed, made):
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, kind)
+    assert typed in str(caught.value) and made not in str(caught.value), str(caught.value)

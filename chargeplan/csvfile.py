@@ -261,11 +261,6 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     seen: set[str | None] = set()
     validate = model.__pydantic_validator__.validate_python  # what model_validate calls
     for line, data in csv_rows(reader, shown, errors):
-        if "cells_in_series" in data:
-            try:
-                data["cells_in_series"] = int(data["cells_in_series"])  # type: ignore[assignment]
-            except ValueError:
-                pass
         if data.get("id") in seen:
             errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
                           "each battery its own id")

@@ -191,6 +191,19 @@ def parse_json(text: str, shown: str) -> Any:
         raise InputError("is nested too deeply", file=shown, fix="flatten the file") from None
 
 
+#: The numbers YAML may build, as the strict reader writes them (chargeplan.units): a
+#: decimal integer without a leading zero, a decimal float, .inf and .nan (which the fields
+#: refuse by name). YAML 1.2 (section 10.3.2, the core schema) also resolves 0o6, 0x6 and,
+#: in ruamel.yaml, 1_2 as integers, and YAML 1.1 012 as octal and 1:30 as 90: those stay
+#: text, and a number field's reader refuses them with the fix.
+_NUMBER_TAGS = {
+    "tag:yaml.org,2002:int": re.compile(r"[-+]?(?:0|[1-9][0-9]*)", re.ASCII),
+    "tag:yaml.org,2002:float": re.compile(
+        r"[-+]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][-+]?[0-9]+)?"
+        r"|[-+]?\.(?:inf|Inf|INF)|\.(?:nan|NaN|NAN)", re.ASCII),
+}
+
+
 def _resolver() -> type:
     """ruamel.yaml's resolver, looking up its table once per file.
 
@@ -215,6 +228,8 @@ def _resolver() -> type:
                     if regexp.match(value):
                         if tag == "tag:yaml.org,2002:timestamp":
                             break  # dates stay text: the model reads them and names the field
+                        if tag in _NUMBER_TAGS and not _NUMBER_TAGS[tag].fullmatch(value):
+                            break  # 0x6, 1_2, 012, 1:30 stay text: the strict reader refuses
                         return Tag(suffix=tag)
                 implicit = (False, implicit[1])
             return super().resolve(kind, value, implicit)

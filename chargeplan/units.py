@@ -171,10 +171,45 @@ def _reference(kind: str) -> Any:
     return Q_(1, DIMENSIONS[kind][0]).dimensionality
 
 
+#: One name of a unit text, with its power: what '/' and '*' join.
+_UNIT_NAME = re.compile(r"([^/*^]+?)(?:(?:\*\*|\^)-?[0-9]+)?(?=$|[/*])")
+
+
+@lru_cache(maxsize=256)
+def _unit_text_problem(unit_text: str) -> str | None:
+    """Why a unit text (no spaces) could read as another value, or None.
+
+    pint multiplies what it finds glued or repeated: 'mA%' is mA x 0.01, '%%' is 0.0001 and
+    'V/mV*V' is 1000 V. So '%' stands alone as a name, and no unit is named twice (with or
+    without a prefix: pint's own ``parse_unit_name`` says which unit a name is).
+    """
+    names = [m.group(1) for m in _UNIT_NAME.finditer(unit_text.replace("**", "^"))]
+    for name in names:
+        if "%" in name and name != "%":
+            if set(name) == {"%"}:
+                return "writes '%' twice"
+            return f"has '%' next to another unit ('{quote(name, 20)}')"
+    seen: dict[str, str] = {}
+    for name in names:
+        try:
+            candidates = ureg.parse_unit_name(name)
+        except Exception:
+            continue  # an unknown name: the reader says so
+        units = {unit for _prefix, unit, _suffix in candidates}
+        for unit in units:
+            if unit in seen:
+                return f"names the unit {unit} twice ('{seen[unit]}' and '{quote(name, 20)}')"
+            seen[unit] = quote(name, 20)
+    return None
+
+
 @lru_cache(maxsize=256)
 def _conversion(unit_text: str, kind: str) -> tuple[float, float] | None:
     """``value -> value * scale + shift`` into the kind's canonical unit, as pint converts
-    (affine, so offset units like degF are exact); None when pint will not say."""
+    (affine, so offset units like degF are exact); None when pint will not say, or when the
+    unit text could read as another value (:func:`_unit_text_problem`)."""
+    if _unit_text_problem(unit_text) is not None:
+        return None
     try:
         zero, one = Q_(0.0, unit_text), Q_(1.0, unit_text)
         if zero.dimensionality != _reference(kind):
@@ -238,7 +273,8 @@ def _text_problem(shown: str, *, digits_ok: str = "") -> QuantityError | None:
     return None
 
 
-def _number_problem(text: str, shown: str, example: str, wanted: str) -> QuantityError:
+def _number_problem(text: str, shown: str, example: str, wanted: str, *,
+                    unit: bool = True) -> QuantityError:
     """Why ``text`` (ASCII, normalised) is not one number and a unit: the likeliest reason."""
     numbers = re.findall(r"[0-9][0-9,.'_]*[0-9]|[0-9]", text)
     comma = next((n for n in numbers if "," in n), None)
@@ -252,6 +288,12 @@ def _number_problem(text: str, shown: str, example: str, wanted: str) -> Quantit
                              f"write {dotted}, not {comma}", about_text=True)
     grouped = next((n for n in numbers if re.search(r"[0-9][_',][0-9]", n)
                     or n.count(".") > 1), None)
+    if grouped is not None and not re.search(r"[_',]", grouped):
+        # points only ('5.0.0', '1.500.000'): a typo or points grouping digits; either way
+        # no one value is meant, so none is suggested
+        return QuantityError(f"'{quote(shown)}' has more than one decimal point",
+                             f"write one number with one decimal point at most, e.g. "
+                             f"'{example}'", about_text=True)
     if grouped is not None:
         return QuantityError(f"'{quote(shown)}' groups digits (thousands separators)",
                              f"write {_ungrouped(grouped)}: one decimal point at most, no "
@@ -259,8 +301,8 @@ def _number_problem(text: str, shown: str, example: str, wanted: str) -> Quantit
     if re.search(r"[0-9.][ \t]+[-+.]?[0-9]", text) or len(re.findall(
             r"(?<![A-Za-z*^0-9.])[-+]?\.?[0-9]", text)) > 1:
         return QuantityError(f"'{quote(shown)}' has two numbers, or a space inside a number",
-                             f"write one number and its unit, e.g. '{example}'",
-                             about_text=True)
+                             f"write one number{' and its unit' if unit else ''}, e.g. "
+                             f"'{example}'", about_text=True)
     return QuantityError(f"cannot read '{quote(shown)}' as a quantity", f"write {wanted}",
                          about_text=True)
 
@@ -313,6 +355,13 @@ def _unit_problem(number: float, unit_text: str, shown: str, kind: str) -> Quant
     except pint.UndefinedUnitError as error:
         name = str(getattr(error, "unit_names", "") or error).strip("'()[], ")
         hint = ""
+        if "degree" in name and "\u00b0" in shown:  # pint reads '°' as 'degree'
+            name = name.replace("degree", "\u00b0")
+            if name == "\u00b0K":
+                hint = " (kelvin takes no degree sign: write K, or degC for degrees Celsius)"
+        if name not in shown:  # a name made by a rewrite ('µX' read as 'uX'): not named
+            return QuantityError(f"'{quote(shown)}' has a unit chargeplan does not know",
+                                 f"write {wanted}")
         if name == "C":
             hint = _C_HINTS.get(kind, " (chargeplan reads no unit 'C': degrees Celsius are "
                                       "'degC', a C-rate is 'It', a capacity 'Ah')")
@@ -405,6 +454,11 @@ def _parse_slowly(text: object, kind: str) -> float:
     unit_text = _SPACE.sub("", match.group(2))
     convert = _conversion(unit_text, kind)
     if convert is None:
+        glued = _unit_text_problem(unit_text)
+        if glued is not None:
+            raise QuantityError(f"'{quote(shown)}' {glued}",
+                                f"write one unit, each name once, e.g. '{DIMENSIONS[kind][1]}'",
+                                about_text=True)
         raise _unit_problem(number, unit_text, shown, kind)
     magnitude = number * convert[0] + convert[1]
     if not math.isfinite(magnitude):
@@ -439,10 +493,19 @@ def parse_number(text: str, *, integer: bool = False) -> float:
     if _NOT_FINITE.fullmatch(raw):
         raise QuantityError(f"'{quote(shown)}' is not a finite number", wanted)
     if not _NUMBER_ONLY.fullmatch(raw):
+        based = re.fullmatch(r"[ \t]*([-+]?)0([xXoObB])([0-9A-Fa-f_]+)[ \t]*", raw)
+        if based is not None:
+            base = {"x": 16, "o": 8, "b": 2}[based.group(2).lower()]
+            try:
+                decimal = str(int(based.group(1) + based.group(3), base))
+            except ValueError:
+                decimal = example
+            raise QuantityError(f"'{quote(shown)}' is written in base {base}, not in decimal "
+                                "digits", f"write it in the digits 0-9, e.g. {decimal}")
         if re.fullmatch(r"[ \t]*[-+]?[0-9.eE]+[ \t]*[A-Za-z%].*", raw):
             raise QuantityError(f"'{quote(shown)}' has a unit", f"write the number alone, "
                                 f"e.g. {example}")
-        raise _number_problem(raw, shown, example, f"a number such as {example}")
+        raise _number_problem(raw, shown, example, f"a number such as {example}", unit=False)
     if integer and not re.fullmatch(r"[ \t]*[-+]?[0-9]+[ \t]*", raw, re.ASCII):
         raise QuantityError(f"'{quote(shown)}' is not a whole number", wanted)
     value = int(raw) if integer else float(raw)

@@ -359,3 +359,107 @@ def test_every_numeric_option_is_read_strictly(command, option, value):
     result = runner.invoke(app, [*command, value])
     assert result.exit_code == 2, result.output
     assert result.stderr.startswith(f"error: {option}: "), result.stderr
+
+
+# -- a unit written once: pint multiplies whatever it finds --------------------------------
+
+
+def test_pint_would_scale_a_glued_percent():
+    # the reason for the check: pint's own reading of 'mA%' (milliampere x percent)
+    from chargeplan.units import Q_
+
+    assert Q_(15, "mA%").to("A").magnitude == pytest.approx(15e-5)
+    assert Q_(85, "%%").to("").magnitude == pytest.approx(85e-4)
+
+
+@pytest.mark.parametrize(("text", "kind", "fragment"), [
+    ("15 mA%", "current", "has '%' next to another unit ('mA%')"),
+    ("2 A%", "current", "has '%' next to another unit"),
+    ("12.6V%", "voltage", "has '%' next to another unit"),
+    ("-3 mV/K/cell%", "coefficient", "has '%' next to another unit ('cell%')"),
+    ("85 %%", "fraction", "writes '%' twice"),
+    ("85 %*%", "fraction", "names the unit percent twice"),
+    ("12 V/mV*V", "voltage", "names the unit volt twice ('V' and 'mV')"),
+    ("12 V*V/V", "voltage", "names the unit volt twice"),
+    ("2.4 V/cell/cell*cell", "cell_voltage", "names the unit cell twice"),
+    ("4 %/month/month*month", "rate", "names the unit month twice"),
+])
+def test_a_unit_glued_to_percent_or_written_twice_is_refused(text, kind, fragment):
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, kind)
+    assert fragment in str(caught.value), str(caught.value)
+    assert "write one unit, each name once" in str(caught.value)
+
+
+@settings(max_examples=500, deadline=None)
+@given(clean_quantities(), st.sampled_from(["%", "%%", "*{u}/{u}", "/{u}*{u}", "*%/%"]))
+def test_a_unit_repeated_or_glued_is_never_read(case, tail):
+    clean, kind = case
+    unit = clean.rsplit(" ", 1)[-1].lstrip("-+.0123456789eE")
+    last = unit.split("/")[-1]
+    with pytest.raises(QuantityError):
+        parse_quantity(clean + tail.format(u=last), kind)
+
+
+@pytest.mark.parametrize(("text", "kind", "expected"), [
+    ("4 %/month", "rate", 4 * 12 / 365.25),   # a month is a twelfth of 365.25 d (pint)
+    ("60 %", "fraction", 60.0),
+    ("1 mA/Ah", "current_per_capacity", 1.0),
+    ("0.08 ohm*Ah", "resistance_capacity", 0.08),
+    ("2 A*h", "capacity", 2.0),
+])
+def test_units_each_named_once_still_read(text, kind, expected):
+    assert parse_quantity(text, kind) == pytest.approx(expected)
+
+
+@pytest.mark.parametrize("text", ["5.0.0 V", "12.6.0 V", "1.500.000 V"])
+def test_repeated_points_suggest_no_value(text):
+    # '5.0.0' is a typo or points grouping digits: no one value is meant (common practice)
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, "voltage")
+    message = str(caught.value)
+    assert "more than one decimal point" in message
+    assert "500" not in message.split("; ", 1)[1] and "1260" not in message
+
+
+def test_a_degree_kelvin_is_named_as_typed():
+    # SI Brochure 2.3.1 (from memory): the kelvin has no degree sign since 1967
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity("-5 \u00b0K", "temperature")
+    assert "'\u00b0K'" in str(caught.value) and "degreeK" not in str(caught.value)
+    assert "write K" in str(caught.value)
+
+
+def test_a_load_with_a_decimal_comma_keeps_the_hint(tmp_path):
+    battery = tmp_path / "battery.yaml"
+    battery.write_text("battery: {name: Trail bike, chemistry: agm, nominal_voltage: 12 V, "
+                       "capacity: 12 Ah}\nstate: {state_of_charge: 60 %}\n"
+                       "conditions: {battery_temperature: 20 degC}\n")
+    result = runner.invoke(app, ["runtime", str(battery), "--load", "5,5 A"])
+    assert result.exit_code == 2
+    assert result.stderr.startswith("error: --load: '5,5 A' has a decimal comma; write 5.5")
+    result = runner.invoke(app, ["runtime", str(battery), "--load", "5 A%"])
+    assert result.exit_code == 2 and "next to another unit" in result.stderr
+
+
+@pytest.mark.parametrize(("text", "fragment"), [
+    # YAML 1.2.2 10.3.2 (from memory) writes integers in these bases; the reader takes
+    # decimal digits only and names the decimal value
+    ("0x6", "base 16, not in decimal digits; write it in the digits 0-9, e.g. 6"),
+    ("-0x1F", "e.g. -31"), ("0o17", "base 8"), ("0b110", "base 2"),
+])
+def test_a_whole_number_in_another_base_is_refused(text, fragment):
+    with pytest.raises(QuantityError) as caught:
+        parse_number(text, integer=True)
+    assert fragment in str(caught.value)
+
+
+@pytest.mark.parametrize(("text", "kind", "typed", "made"), [
+    ("-5 \u00b0K", "temperature", "'\u00b0K'", "degreeK"),
+    ("12 V\u00b0", "voltage", "'V\u00b0'", "Vdegree"),
+    ("5 \u00b5X", "current", "'5 \u00b5X'", "uX"),   # µ is read as the prefix u
+])
+def test_an_unknown_unit_is_never_named_as_rewritten(text, kind, typed, made):
+    with pytest.raises(QuantityError) as caught:
+        parse_quantity(text, kind)
+    assert typed in str(caught.value) and made not in str(caught.value), str(caught.value)

@@ -1126,7 +1126,8 @@ def _schema_violations(doc: dict[str, Any]) -> list[Violation]:
         models[doc["version"]].model_validate(doc)
     except ValidationError as error:
         return [
-            Violation("CK100", f"schema: {'.'.join(str(p) for p in e['loc'])}: {e['msg']}")
+            Violation("CK100", f"schema: {'.'.join(str(p) for p in e['loc'])}: "
+                      f"{str(e['msg']).removeprefix('Value error, ')}")
             for e in error.errors(include_url=False)
         ]
     return []

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 __all__ = [
     "FORMAT",
@@ -185,6 +185,19 @@ class DocumentBattery(_Doc):
     cells_in_series: int = Field(ge=1)
     capacity_mAh: int = Field(gt=0)
     nominal_voltage_mV: int = Field(gt=0)
+
+    @field_validator("name", "chemistry", "profile")
+    @classmethod
+    def _visible(cls, value: str) -> str:
+        """No invisible or direction-changing character (a hand edit could make two
+        batteries' files look the same): the input files' own rule (model.fields)."""
+        if not value.isascii():
+            from chargeplan.model.fields import _character_problem
+
+            problem = _character_problem(value, identifier=False)
+            if problem is not None:
+                raise ValueError(problem)
+        return value
 
 
 class SetpointDocumentV3(_Doc):

@@ -65,18 +65,13 @@ class Battery(InputModel):
     nominal_voltage_v: quantity("voltage", ge=1, le=1000) | None = Field(
         default=None, alias="nominal_voltage"
     )
-    cells_in_series: int | None = Field(default=None, ge=1, le=400, strict=True)
+    cells_in_series: number(whole=True, ge=1, le=400) | None = None
     capacity_ah: quantity("capacity", ge=0.05, le=100_000) = Field(
         alias="capacity",
         description="the actual capacity (for rating: lead-equivalent, the label figure)",
     )
-    capacity_hours: float | None = Field(
-        default=None,
-        ge=0.1,
-        le=1000,
-        strict=True,
-        description="the discharge time in hours the capacity is rated at (20 for C20)",
-    )
+    capacity_hours: number(ge=0.1, le=1000, description="the discharge time in hours the "
+                           "capacity is rated at (20 for C20)") | None = None
     rating: Literal["actual", "lead-equivalent"] = "actual"
     actual_capacity_ah: quantity("capacity", ge=0.05, le=100_000) | None = Field(
         default=None,

@@ -12,9 +12,11 @@ from typing import Literal
 
 from pydantic import Field, field_validator, model_validator
 
+from chargeplan.clock import parse_datetime, parse_time
 from chargeplan.model.charger import ChargerChannel
-from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.fields import Ident, InputModel, Text, local_date, quantity
 from chargeplan.model.rows import BatteryRow
+from chargeplan.units import quote
 
 __all__ = ["WEEKDAYS", "BenchBattery", "BenchChannel", "BenchFile", "Hours", "ProgressRow", "Room",
            "Span", "local_datetime"]
@@ -41,39 +43,46 @@ class Room(InputModel):
 
 
 def _clock(raw: object) -> dt.time:
+    """A time of day: HH:MM or HH:MM:SS (chargeplan.clock); a time object as it is."""
     if isinstance(raw, dt.time):
-        return raw
-    if isinstance(raw, int | float):
-        raise ValueError(f"{raw} is not a time of day; write it as 08:00 (in quotes)")
-    try:
-        moment = dt.time.fromisoformat(str(raw).strip())
-    except ValueError:
-        raise ValueError(f"'{raw}' is not a time of day; write it as 08:00") from None
+        moment = raw
+    elif isinstance(raw, str):
+        moment = parse_time(raw)
+    else:
+        raise ValueError(f"{quote(raw)} is not a time of day; write it as 08:00 (in quotes)")
     if moment.tzinfo is not None:
         raise ValueError(f"'{raw}' has a UTC offset; write the bench's local wall-clock time "
                          "without one, e.g. 08:00")
+    if moment.microsecond:
+        raise ValueError(f"'{raw}' has a fraction of a second; write whole seconds or none")
     return moment
 
 
 def local_datetime(raw: object) -> dt.datetime:
-    """A local wall-clock date-time (ISO 8601, no offset): '2026-12-07T14:00'."""
+    """A local wall-clock date-time, 'YYYY-MM-DDTHH:MM' (chargeplan.clock), no offset:
+    '2026-12-07T14:00'; a datetime object as it is."""
     if isinstance(raw, dt.datetime):
         moment = raw
+    elif isinstance(raw, str):
+        moment = parse_datetime(raw)
     else:
-        try:
-            moment = dt.datetime.fromisoformat(str(raw).strip())
-        except ValueError:
-            raise ValueError(f"'{raw}' is not a date-time; write it as 2026-12-07T14:00") from None
+        raise ValueError(f"{quote(raw)} is not a date-time; write it as 2026-12-07T14:00 "
+                         "(in quotes)")
     if moment.tzinfo is not None:
         raise ValueError(f"'{raw}' has a UTC offset; write the bench's local wall-clock time "
                          "without one, e.g. 2026-12-07T14:00")
+    if moment.microsecond:
+        raise ValueError(f"'{raw}' has a fraction of a second; write whole seconds or none")
     return moment
 
 
 def _due(raw: object) -> dt.time | dt.datetime | None:
     if raw is None or isinstance(raw, dt.time | dt.datetime):
         return raw
-    text = str(raw).strip()
+    if not isinstance(raw, str):
+        raise ValueError(f"{quote(raw)} is not a time; write it as 14:00 or 2026-12-08T14:00 "
+                         "(in quotes)")
+    text = raw.strip()
     if "T" in text or " " in text or (len(text) >= 10 and text[4:5] == "-"):
         return local_datetime(text)
     return _clock(text)
@@ -87,6 +96,15 @@ class Span(InputModel):
     end: dt.time = dt.time(17, 0)
 
     _times = field_validator("start", "end", mode="before")(_clock)
+
+    @field_validator("start", "end", mode="after")
+    @classmethod
+    def _whole_minutes(cls, moment: dt.time) -> dt.time:
+        if moment.second:
+            raise ValueError(f"{moment.isoformat()} is not a whole minute: working hours are "
+                             f"planned to the minute; write {moment.strftime('%H:%M')} or the "
+                             "next minute")
+        return moment
 
     @model_validator(mode="after")
     def _length(self) -> Span:
@@ -145,7 +163,7 @@ class Hours(Span):
 
 
 class BenchChannel(ChargerChannel):
-    name: Text  # required on a bench
+    name: Ident  # required on a bench
     lithium_mode: bool = Field(default=False, description="a charge mode for lithium")
     unattended: bool = Field(default=False, description="may run unattended, past closing")
     loads_files: bool = Field(default=False, description="takes a setpoint file")
@@ -187,15 +205,7 @@ class BenchFile(InputModel):
     channels: list[BenchChannel]
     batteries: list[BenchBattery] | None = None
 
-    @field_validator("date", mode="before")
-    @classmethod
-    def _date(cls, raw: object) -> object:
-        if isinstance(raw, str):
-            try:
-                return dt.date.fromisoformat(raw.strip())
-            except ValueError:
-                raise ValueError(f"'{raw}' is not a date; write it as 2026-12-07") from None
-        return raw
+    _date = field_validator("date", mode="before")(local_date)
 
     @model_validator(mode="after")
     def _names(self) -> BenchFile:
@@ -215,8 +225,8 @@ class ProgressRow(InputModel):
     """One row of a re-plan's progress.csv: a battery's channel, when it started and when it
     finished (or ``faulted`` when its charge stopped with a fault)."""
 
-    battery: Text
-    channel: Text | None = None
+    battery: Ident
+    channel: Ident | None = None
     started: dt.datetime | None = None
     finished: dt.datetime | Literal["faulted"] | None = None
 

@@ -31,10 +31,14 @@ __all__ = [
     "CellOrPackVoltage",
     "CurrentOrRate",
     "CurrentSpec",
+    "FreeText",
+    "Ident",
     "InputModel",
     "Parsed",
     "Text",
     "VoltageSpec",
+    "free_text",
+    "local_date",
     "number",
     "quantity",
 ]
@@ -170,9 +174,9 @@ def _number_reader(whole: bool, low: float | None, high: float | None) -> Callab
             raise QuantityError(f"{raw} is not a number", "write a number such as 6")
         if isinstance(raw, int | float) and not isinstance(raw, bool):
             value = raw
-            if whole and not float(raw).is_integer():
-                raise QuantityError(f"{raw:g} is not a whole number",
-                                    "write a whole number such as 6")
+            if whole and not isinstance(raw, int):  # 6.0 too: as '6.0' in a CSV cell is
+                raise QuantityError(f"{raw!r} is not a whole number",
+                                    "write a whole number such as 6, without a point")
             if not math.isfinite(value):
                 raise QuantityError(f"{raw} is not a finite number", "write a finite number")
         elif isinstance(raw, str):
@@ -206,26 +210,132 @@ def number(*, ge: float | None = None, le: float | None = None, whole: bool = Fa
                      Parsed(_remembered(_number_reader(whole, ge, le)), schema)]
 
 
+def local_date(raw: object) -> object:
+    """A date field's value, for a ``mode="before"`` validator: text read as YYYY-MM-DD only
+    (chargeplan.clock: no '20261207', no number of seconds since 1970, which pydantic would
+    read as a date); a date object, or None, as it is (pydantic checks the type)."""
+    import datetime as dt
+
+    from chargeplan.clock import parse_date
+
+    if raw is None or isinstance(raw, dt.date):
+        return raw
+    if isinstance(raw, str):
+        return parse_date(raw)
+    raise QuantityError(f"{quote(raw)} is not a date", "write it as YYYY-MM-DD, e.g. 2026-12-07")
+
+
 TEXT_MAX = 200
-#: The control characters text may not hold: all below U+0020 but the tab.
-_CONTROL = re.compile("[\x00-\x08\x0a-\x1f]")
+#: Free text (notes) may be longer.
+FREE_TEXT_MAX = 20_000
+#: The control characters text may not hold: all below U+0020 but the tab, and DEL.
+_CONTROL = re.compile("[\x00-\x08\x0a-\x1f\x7f]")
+#: Invisible characters by Unicode general category (the Unicode Character Database, read
+#: through unicodedata): format characters, among them the zero-width ones and every
+#: bidirectional control (U+061C, U+200E-U+200F, U+202A-U+202E, U+2066-U+2069, all Cf),
+#: controls, surrogates, private use, unassigned, and the line and paragraph separators.
+_INVISIBLE = frozenset({"Cf", "Cc", "Cs", "Co", "Cn", "Zl", "Zp"})
+#: Scripts whose letters include lookalikes of Latin ones (Unicode TR39's confusables, from
+#: memory: Cyrillic 'о' and 'а', Greek 'Α', Armenian 'օ', Cherokee 'Ꭺ'...).
+_LOOKALIKE_SCRIPTS = ("CYRILLIC", "GREEK", "ARMENIAN", "CHEROKEE", "COPTIC")
 
 
-def _text(raw: object) -> str:
-    if not isinstance(raw, str):
-        raise ValueError("expected text")
-    value = raw.strip()
-    if not value:
-        raise ValueError("is empty; write some text")
-    if _CONTROL.search(value):
-        raise ValueError("contains control characters; write plain text")
-    if len(value) > TEXT_MAX:
-        raise ValueError(f"is {len(value)} characters long; shorten it to {TEXT_MAX} or fewer")
-    return value
+def _shown_text(value: str) -> str:
+    """The text as a message shows it: every invisible character written as <U+XXXX>, so that
+    none hides in, or reorders, the message line."""
+    import unicodedata
+
+    return quote("".join(f"<U+{ord(c):04X}>" if not c.isascii()
+                         and unicodedata.category(c) in _INVISIBLE else c for c in value))
 
 
+def _character_problem(value: str, *, identifier: bool) -> str | None:
+    """Why ``value`` (not ASCII) may not be text a person reads, or None.
+
+    Every text refuses invisible characters (:data:`_INVISIBLE`); an identifier (an id, a
+    bay, a channel) also refuses what only looks like other text: characters that NFKC
+    compatibility folds into others (full-width letters, a no-break space, the Kelvin
+    sign), dashes that are not '-', digits that are not 0-9, and Latin letters mixed with
+    a script of lookalikes (a Cyrillic 'о' in 'mоwer-3'): two such ids look the same.
+    """
+    import unicodedata
+
+    from chargeplan.units import _FALSE_MINUS, _char_name
+
+    for index, ch in enumerate(value):
+        if ch.isascii():
+            continue
+        if unicodedata.category(ch) in _INVISIBLE:
+            return (f"'{_shown_text(value)}' holds an invisible or direction-changing "
+                    f"character ({_char_name(ch)}) at position {index + 1}; retype it "
+                    "without it")
+    if not identifier:
+        return None
+    for ch in value:
+        if ch.isascii():
+            continue
+        if ch in _FALSE_MINUS:
+            return (f"'{quote(value)}' has {_char_name(ch)}, which looks like '-'; write "
+                    f"'{quote(''.join('-' if c in _FALSE_MINUS else c for c in value))}'")
+        if unicodedata.normalize("NFKC", ch) != ch:
+            folded = unicodedata.normalize("NFKC", value)
+            return (f"'{quote(value)}' has {_char_name(ch)}, which looks like "
+                    f"'{unicodedata.normalize('NFKC', ch)}'; write '{quote(folded)}'")
+        if unicodedata.category(ch) == "Nd":
+            return (f"'{quote(value)}' has {_char_name(ch)}, which is not one of the digits "
+                    "0-9; write the id with the digits 0-9")
+    if any(c.isascii() and c.isalpha() for c in value):
+        for ch in value:
+            if not ch.isascii() and ch.isalpha() and unicodedata.name(ch, "").startswith(
+                    _LOOKALIKE_SCRIPTS):
+                return (f"'{quote(value)}' mixes Latin letters with {_char_name(ch)}, which "
+                        "may look like a Latin letter; write it in one script")
+    return None
+
+
+#: Free text may hold line breaks (notes: a block in YAML); the other controls never.
+_CONTROL_BUT_LINES = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
+
+
+def _text_reader(*, identifier: bool, empty: bool, limit: int) -> Callable[[object], str]:
+    control = _CONTROL_BUT_LINES if empty else _CONTROL
+
+    def read(raw: object) -> str:
+        if not isinstance(raw, str):
+            raise ValueError("expected text; write it as text (in quotes if it looks like a "
+                             "number)")
+        value = raw.strip()
+        if not value:
+            if empty:
+                return value
+            raise ValueError("is empty; write some text")
+        if control.search(value):
+            raise ValueError("contains control characters; write plain text")
+        if len(value) > limit:
+            raise ValueError(f"is {len(value)} characters long; shorten it to {limit} or fewer")
+        if not value.isascii():
+            problem = _character_problem(value, identifier=identifier)
+            if problem is not None:
+                raise ValueError(problem)
+        return value
+
+    return read
+
+
+_text = _text_reader(identifier=False, empty=False, limit=TEXT_MAX)
+#: Free text's reader, for a field with its own type (a profile's sources).
+free_text = _text_reader(identifier=False, empty=True, limit=FREE_TEXT_MAX)
+
+#: A name or other text a person reads: no control or invisible characters.
 Text = Annotated[str, Parsed(_remembered(_text),
                              {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
+#: An id, a bay or a channel: Text that also refuses lookalikes of other text.
+Ident = Annotated[str, Parsed(_remembered(_text_reader(identifier=True, empty=False,
+                                                       limit=TEXT_MAX)),
+                              {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
+#: Free text that may be empty (an owner, notes): no control or invisible characters.
+FreeText = Annotated[str, Parsed(_remembered(free_text),
+                                 {"type": "string", "maxLength": FREE_TEXT_MAX})]
 
 
 @dataclass(frozen=True, slots=True)

@@ -9,9 +9,9 @@ from __future__ import annotations
 from itertools import pairwise
 from typing import Annotated, ClassVar, Literal
 
-from pydantic import Field, create_model, model_validator
+from pydantic import Field, StrictFloat, create_model, model_validator
 
-from chargeplan.model.fields import InputModel, Parsed, Text, quantity
+from chargeplan.model.fields import FreeText, InputModel, Parsed, Text, free_text, quantity
 
 __all__ = [
     "Compensation",
@@ -37,7 +37,7 @@ def _source_text(raw: object) -> str:
             "every value needs a source: a standard and clause, a handbook and table, "
             "'common practice' or 'from memory'"
         )
-    return raw.strip()
+    return free_text(raw)
 
 
 Source = Annotated[str, Parsed(_source_text, {"type": "string", "minLength": 6})]
@@ -85,11 +85,11 @@ CurrentPerAh = _sourced(
 TempDifference = _sourced(
     "SourcedTemperatureDifference", quantity("temperature_difference", ge=1, le=100), "K"
 )
-Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=1.0, le=3.0)], "")
-Power = _sourced("SourcedPower", Annotated[float, Field(gt=0.0, le=3.0)], "")
-Efficiency = _sourced("SourcedEfficiency", Annotated[float, Field(gt=0.5, le=1.0)], "")
-Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0)], "")
-Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3)], "")
+Exponent = _sourced("SourcedExponent", Annotated[float, Field(ge=1.0, le=3.0, strict=True)], "")
+Power = _sourced("SourcedPower", Annotated[float, Field(gt=0.0, le=3.0, strict=True)], "")
+Efficiency = _sourced("SourcedEfficiency", Annotated[float, Field(gt=0.5, le=1.0, strict=True)], "")
+Factor = _sourced("SourcedFactor", Annotated[float, Field(ge=1.0, le=2.0, strict=True)], "")
+Gravity = _sourced("SourcedGravity", Annotated[float, Field(ge=0, le=0.3, strict=True)], "")
 
 
 class Charge(InputModel):
@@ -203,7 +203,7 @@ class RestVoltage(InputModel):
     is read; ``flat_band`` is where the curve is too flat to read.
     """
 
-    table: list[tuple[float, float]] = Field(
+    table: list[tuple[StrictFloat, StrictFloat]] = Field(
         description="[state of charge %, open-circuit V/cell] rows, rising"
     )
     table_source: Source
@@ -305,7 +305,7 @@ class Profile(InputModel):
     )
     family: Family
     name: Text
-    summary: str = ""
+    summary: FreeText = ""
     vented: bool = Field(description="true for flooded cells that gas freely and take water")
     nominal_cell_voltage: CellVoltage  # type: ignore[valid-type]
     charge: Charge
@@ -317,7 +317,7 @@ class Profile(InputModel):
     storage: StorageLoss
     termination: Termination | None = None
     envelope: Envelope
-    cautions: list[str] = Field(default_factory=list)
+    cautions: list[FreeText] = Field(default_factory=list)
 
     @model_validator(mode="after")
     def _consistent(self) -> Profile:

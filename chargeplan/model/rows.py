@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pydantic import Field, model_validator
 
-from chargeplan.model.fields import InputModel, Text, number, quantity
+from chargeplan.model.fields import Ident, InputModel, Text, number, quantity
 
 
 class BatteryRow(InputModel):
@@ -14,7 +14,7 @@ class BatteryRow(InputModel):
     voltage is accepted here so the core rules can refuse a reversed battery by name.
     """
 
-    id: Text
+    id: Ident
     chemistry: Text
     nominal_voltage_v: quantity("voltage", ge=1, le=1000) | None = Field(
         default=None, alias="nominal_voltage")

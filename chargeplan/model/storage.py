@@ -10,7 +10,7 @@ from typing import Literal
 
 from pydantic import Field, field_validator, model_validator
 
-from chargeplan.model.fields import InputModel, Text, quantity
+from chargeplan.model.fields import FreeText, Ident, InputModel, Text, local_date, quantity
 from chargeplan.model.rows import BatteryRow
 
 __all__ = ["DAY_S", "Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile",
@@ -38,6 +38,8 @@ class Period(InputModel):
     mean_c: quantity("temperature", ge=-60, le=60) = Field(alias="mean")
     min_c: quantity("temperature", ge=-70, le=60) = Field(alias="min")
 
+    _dates = field_validator("start", "end", mode="before")(local_date)
+
     @model_validator(mode="after")
     def _ordered(self) -> Period:
         if self.end < self.start:
@@ -48,7 +50,7 @@ class Period(InputModel):
 
 
 class Bay(InputModel):
-    name: Text
+    name: Ident
     mains: bool = Field(default=False, description="a socket for maintainers")
     lithium_maintainer: bool = Field(
         default=False, description="accepted for older files and not used: lithium is never "
@@ -87,9 +89,11 @@ class Site(InputModel):
         default=None, alias="lead_acid_top_up", description="the facility's own threshold")
     lithium_top_up_pct: quantity("fraction", ge=10, le=60) | None = Field(
         default=None, alias="lithium_top_up")
-    warm_room: Text | None = Field(
+    warm_room: Ident | None = Field(
         default=None, description="the bay where lithium is charged when its own bay is below "
         "0 degC, and where a lead-acid battery at risk of freezing is moved")
+
+    _dates = field_validator("start", "end", mode="before")(local_date)
 
     @model_validator(mode="after")
     def _season(self) -> Site:
@@ -129,8 +133,8 @@ def _days_and_hours(seconds: float) -> str:
 class InventoryRow(BatteryRow):
     """One battery in store (a CSV row, or an inline entry)."""
 
-    owner: str = ""
-    bay: Text
+    owner: FreeText = ""
+    bay: Ident
     parasitic_draw_a: quantity("current", ge=0, le=100) | None = Field(
         default=None, alias="parasitic_draw",
         description="the draw of a load wired to the battery, e.g. '20 mA'")
@@ -142,7 +146,9 @@ class InventoryRow(BatteryRow):
                                    "the season's start")
     depart: dt.date | None = Field(default=None, description="the day it leaves, if before "
                                    "the season's end")
-    notes: str = Field(default="", description="free text carried to the round sheets")
+    notes: FreeText = Field(default="", description="free text carried to the round sheets")
+
+    _dates = field_validator("arrive", "depart", mode="before")(local_date)
 
     @field_validator("loads", mode="before")
     @classmethod

@@ -363,7 +363,8 @@ def replan_at(now: str | None, progress: str | Path | None) -> tuple[dt.datetime
         try:
             moment = local_datetime(now)
         except ValueError as error:
-            raise InputError(str(error), field="--now", fix="give the bench's local time, "
+            problem, _, fix = str(error).partition("; ")
+            raise InputError(problem, field="--now", fix=fix or "give the bench's local time, "
                              "e.g. --now 2026-12-07T13:00") from None
     if progress is not None and moment is None:
         raise InputError("a progress file needs the moment it describes", field="--progress",

@@ -12,7 +12,7 @@ from chargeplan.fmt import cell_volts, celsius, num, volts
 from chargeplan.model.battery import BatteryFile
 from chargeplan.model.profile import Profile
 from chargeplan.profiles import ProfileSet
-from chargeplan.units import parse_quantity
+from chargeplan.units import QuantityError, parse_quantity
 
 __all__ = ["REST_HOURS", "Runtime", "StateReading", "runtime", "state_of_charge"]
 
@@ -196,7 +196,9 @@ def runtime(
     notes: list[str] = []
     try:
         current = parse_quantity(load, "current")
-    except ValueError:
+    except QuantityError as as_current:
+        if as_current.about_text:  # the characters are wrong: a power would not read either
+            raise InputError(as_current.problem, field="--load", fix=as_current.fix) from None
         try:
             power = parse_quantity(load, "power")
         except ValueError:

@@ -116,11 +116,12 @@ def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
         "rest_voltage", "state_of_charge", "specific_gravity", "notes", *READING_CHECKS)}
     if not filled:
         return None  # a row of the template left blank: not measured, not checked
+    from chargeplan.clock import parse_date
+
     try:
-        date = dt.date.fromisoformat(data.get("date", ""))
-    except ValueError:
-        return (f"{where}: date: '{data.get('date', '')}' is not a date; write it as "
-                "YYYY-MM-DD, e.g. 2026-12-01")
+        date = parse_date(data.get("date", ""))
+    except ValueError as error:  # the one date reader: YYYY-MM-DD only (not 20261201)
+        return f"{where}: date: {error}"
     if not data.get("battery"):
         return f"{where}: battery: is empty; give the battery id"
     values: dict[str, Any] = {}

@@ -310,6 +310,14 @@ class StoragePlan:
         return f"move it to a room with mains that stays above 0 degC ({warm} {why})"
 
     @cached_property
+    def profile_first(self) -> np.ndarray:
+        """Per battery, the first battery of the fleet with its profile (so a profile is
+        looked at once, however many batteries share it)."""
+        firsts: dict[int, int] = {}
+        return np.fromiter((firsts.setdefault(id(p), i) for i, p in enumerate(self.fleet.profiles)),
+                           dtype=np.intp, count=self.fleet.n)
+
+    @cached_property
     def visit_connected(self) -> np.ndarray:
         """Per visit: the battery's load is connected as staff find it (connected at intake
         and not disconnected at an earlier visit against the freeze; it is never

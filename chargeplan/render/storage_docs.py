@@ -306,7 +306,8 @@ def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
         made = [cell(s) for s in settings]
         return [made[s] if s >= 0 else "" for s in shown]
 
-    currents = [amps(a) if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
+    currents = [(f"{a:.1f}" if a >= 0.95 else f"{a:.3f}") if s >= 0 else ""  # as amps()
+                for a, s in zip(current, shown, strict=True)]
     codes = codes.ravel()
     return [Column(texts, codes), Column(cells(lambda s: s.chemistry_setting), codes),
             Column(cells(lambda s: f"{s.voltage_v:.2f}"), codes), Column(currents, codes),

@@ -80,12 +80,10 @@ def expected_rest_voltages(plan: StoragePlan, visits: np.ndarray) -> np.ndarray:
 
     v, f = plan.visits, plan.fleet
     b, soc = v.battery[visits], v.soc_before[visits].astype(np.float64)
-    firsts: dict[int, int] = {}  # each profile by the first battery that has it
-    kind = np.fromiter((firsts.setdefault(id(p), i) for i, p in enumerate(f.profiles)),
-                       dtype=np.intp, count=f.n)[b]
+    kind = plan.profile_first[b]  # each profile by the first battery that has it
     out = np.full(len(visits), np.nan)
     shown = np.isfinite(soc) & (v.act[visits] != Act.MAINTAINER)
-    for i in firsts.values():
+    for i in np.unique(plan.profile_first).tolist():
         rows = np.flatnonzero(shown & (kind == i))
         profile = f.profiles[i]
         levels, which = np.unique(soc[rows], return_inverse=True)
@@ -168,9 +166,7 @@ def _profiles_present(plan: StoragePlan, kept: np.ndarray) -> dict[tuple[int, in
     """For each (day, bay) of the visits ``kept``, the profiles of its batteries, each once
     (one np.unique over the visits, not a loop over them)."""
     v, f = plan.visits, plan.fleet
-    firsts: dict[int, int] = {}  # each profile by the first battery that has it
-    kind = np.fromiter((firsts.setdefault(id(p), i) for i, p in enumerate(f.profiles)),
-                       dtype=np.intp, count=f.n)
+    kind = plan.profile_first  # each profile by the first battery that has it
     if not len(kept):
         return {}
     triples = np.unique(np.stack([v.day[kept].astype(np.int64), v.bay[kept].astype(np.int64),

@@ -42,10 +42,12 @@ def csv_cell(value: object) -> str:
     '-5.5'
     >>> csv_cell("-2+3+cmd|x")
     "'-2+3+cmd|x"
+    >>> csv_cell("'-")  # read back by csv_unguard as "'-", not "-"
+    "''-"
     """
     text = "" if value is None else str(value)
-    if text.startswith(_FORMULA_START) and not _PLAIN_NUMBER.fullmatch(text):
-        return "'" + text
+    if text.lstrip("'").startswith(_FORMULA_START) and not _PLAIN_NUMBER.fullmatch(text):
+        return "'" + text  # (a text already starting with apostrophes keeps them on reading)
     return text
 
 
@@ -57,14 +59,16 @@ def csv_unguard(text: str) -> str:
     >>> csv_unguard("'quoted")
     "'quoted"
     """
-    if text.startswith("'") and text[1:].startswith(_FORMULA_START):
+    if text.startswith("'") and text.lstrip("'").startswith(_FORMULA_START):
         return text[1:]
     return text
 
 
 _FORMULA_CHARS = "".join(_FORMULA_START)
-#: A cell that may need a guard, in cells joined by NUL characters.
-_GUARD_AFTER = re.compile("\x00[" + re.escape(_FORMULA_CHARS) + "]")
+#: A cell that may need a guard, in cells joined by NUL characters (at the start of the
+#: joined text, or after a NUL): a formula's first character, or an apostrophe before one.
+_GUARD_AT = re.compile("(?:^|\x00)'*[" + re.escape(_FORMULA_CHARS) + "]")
+_FORMULA_SET = frozenset(_FORMULA_CHARS)
 
 
 def _guarded(cells: Iterable[object]) -> list[str]:
@@ -74,6 +78,8 @@ def _guarded(cells: Iterable[object]) -> list[str]:
         text = "" if value is None else value if type(value) is str else str(value)
         if text and text[0] in _FORMULA_CHARS and not _PLAIN_NUMBER.fullmatch(text):
             text = "'" + text
+        elif text[:1] == "'" and text.lstrip("'")[:1] in _FORMULA_SET:
+            text = "'" + text  # as csv_cell: its own apostrophes survive csv_unguard
         row.append(text)
     return row
 
@@ -115,7 +121,7 @@ def csv_fields(cells: Iterable[object]) -> list[str]:
     fields = list(cells)
     try:  # all text: one look at the texts joined tells whether any cell needs a guard
         joined = "\x00".join(fields)
-        if joined.startswith(_FORMULA_START) or _GUARD_AFTER.search(joined):
+        if _GUARD_AT.search(joined):
             raise TypeError
     except TypeError:
         fields = _guarded(fields)

@@ -153,7 +153,13 @@ def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
                 return (f"{where}: {column}: '{filled[column][:40]}' is not an answer; write "
                         "yes or no (or leave it blank if not checked)")
             values[name] = answer
-    return Reading(date, data["battery"], notes=filled.get("notes", ""), **values)
+    from chargeplan.model.fields import free_text
+
+    try:  # staff's notes reach the procedure: plain text, as an inventory's notes
+        notes = free_text(filled.get("notes", ""))
+    except ValueError as error:
+        return f"{where}: notes: {error}"
+    return Reading(date, data["battery"], notes=notes, **values)
 
 
 def read_readings(path: str | Path) -> list[Reading]:

@@ -10,7 +10,6 @@ HTML pages keep jinja's autoescape.
 
 from __future__ import annotations
 
-import html
 import re
 from typing import Any
 
@@ -25,17 +24,24 @@ _BREAKS = re.compile(r"[\r\n\v\f\x1c-\x1e\x85\u2028\u2029]+")
 
 
 def md_text(value: object) -> str:
-    """``value`` as inert Markdown text: ``<``, ``>`` and ``&`` as entities (no tag can
-    start, so quotes need nothing), Markdown punctuation backslash-escaped, line breaks as
-    spaces.
+    """``value`` as inert Markdown text: ``<`` and ``&`` as entities (no tag or entity can
+    start, so quotes need nothing; a ``>`` inside a line starts nothing and stays as written,
+    so ``bulk -> absorption`` reads as it should), a leading ``>`` and Markdown punctuation
+    backslash-escaped, line breaks as spaces.
 
     >>> print(md_text('<img src=x onerror="alert(1)"> | [x](javascript:1)'))
-    &lt;img src=x onerror="alert(1)"&gt; \\| \\[x\\](javascript:1)
+    &lt;img src=x onerror="alert(1)"> \\| \\[x\\](javascript:1)
     >>> md_text("Mower battery, bay 3")
     'Mower battery, bay 3'
+    >>> print(md_text("> quoted, bulk -> absorption"))
+    \\> quoted, bulk -> absorption
     """
     text = _BREAKS.sub(" ", "" if value is None else str(value))
-    return _SYNTAX.sub(r"\\\1", html.escape(text, quote=False))
+    text = _SYNTAX.sub(r"\\\1", text.replace("&", "&amp;").replace("<", "&lt;"))
+    stripped = text.lstrip(" ")
+    if stripped.startswith(">"):  # a block quote only at the start of a line (CommonMark)
+        text = text[:len(text) - len(stripped)] + "\\" + stripped
+    return text
 
 
 def md_code_block(value: object) -> str:

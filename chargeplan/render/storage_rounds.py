@@ -194,12 +194,15 @@ def _caution_groups() -> Any:
 
 
 def _md_bodies(shown: list[Sheet]) -> list[str]:
-    """Each sheet's table rows in Markdown, the owner's and the action's ``|`` shown as
-    ``/``."""
-    checks = lru_cache(maxsize=None)(lambda c: "; ".join(f"[ ] {x}" for x in c))
-    return ["".join(f"| [ ] | {line.battery} | {_owner(line).replace('|', '/')} | "
-                    f"{line.location} | {line.action.replace('|', '/')} | {line.charger} | "
-                    f"{line.expected} | ______ | {checks(line.checks)} |\n"
+    """Each sheet's table rows in Markdown, every text made inert (render.markdown.md_text:
+    ids, owners, notes, bay and profile names are user text), each distinct text once."""
+    from chargeplan.render.markdown import md_text
+
+    text = lru_cache(maxsize=None)(md_text)  # most texts recur on many lines
+    checks = lru_cache(maxsize=None)(lambda c: "; ".join(f"[ ] {text(x)}" for x in c))
+    return ["".join(f"| [ ] | {text(line.battery)} | {text(_owner(line))} | "
+                    f"{text(line.location)} | {text(line.action)} | {text(line.charger)} | "
+                    f"{text(line.expected)} | ______ | {checks(line.checks)} |\n"
                     for line in sheet.lines) for sheet in shown]
 
 

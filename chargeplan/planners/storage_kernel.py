@@ -11,7 +11,10 @@ arrives that day in that state). At each visit the kernel looks ahead to the nex
   with the BCI gravity table, within ``FREEZE_MARGIN_K`` of the bay's minimum), is charged;
 - if even then it would reach its freezing range before the next round, its load is
   disconnected; failing that it is moved to the warm room; failing that it must be topped
-  up again by the day before (the date is kept);
+  up again by the day before (the date is kept), where that day can charge it; else there
+  is no remedy on site;
+- lithium whose load would drain it below its threshold before the next round has the load
+  disconnected where it may come off (BU-702: lithium is stored with its loads off);
 - lithium is charged only at 0 degC and above (BU-410 Table 1), in its own bay or the warm
   room; otherwise the charge waits and is due again at the next visit.
 """

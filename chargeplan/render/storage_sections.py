@@ -191,7 +191,8 @@ def _ventilation(plan: StoragePlan, bay: int) -> Section | None:
                    d.ok for d in days) else "not enough on the days listed; stagger the charges"))
     return Section(f"Ventilation of {room}", paragraphs=[
         f"Lead-acid charges in {room} on {len(days)} days; with all of a day's charges "
-        f"running at once the most is {worst.batteries} batter{'ies' if worst.batteries != 1 else 'y'} on {worst.date.isoformat()}, "
+        f"running at once the most is {worst.batteries} "
+        f"batter{'ies' if worst.batteries != 1 else 'y'} on {worst.date.isoformat()}, "
         f"needing {worst.airflow_m3_per_h:.3g} m3/h of air, or free openings of "
         f"{worst.opening_area_cm2:.0f} cm2 for inlet and outlet each (IEC 62485-2 cl. 7: Q = "
         f"0.05 n Igas C 10^-3, boost gas current); {verdict}."],

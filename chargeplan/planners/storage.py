@@ -385,8 +385,10 @@ class StoragePlan:
         seen: dict[tuple[str, int], dict[str, Any]] = {}
         f = self.fleet
         firsts: dict[tuple[str, int], int] = {}
-        for i, key in enumerate(zip(f.chemistry, f.cells.tolist(), strict=True)):
-            firsts.setdefault(key, i)
+        pair = self.profile_first.astype(np.int64) * (int(f.cells.max(initial=0)) + 1) + f.cells
+        _pairs, first = np.unique(pair, return_index=True)
+        for i in np.sort(first).tolist():  # each (profile, cells) by its first battery
+            firsts.setdefault((f.chemistry[i], int(f.cells[i])), i)
         for key, i in firsts.items():
             profile, n = f.profiles[i], key[1]
             table = profile.rest_voltage.table
@@ -413,16 +415,30 @@ class StoragePlan:
         given = room.airflow_m3_per_h is not None or room.opening_area_cm2 is not None
         f = self.fleet
         return warm_room_ventilation(
-            self.visits, bay, f.lead, np.array([p.vented for p in f.profiles], dtype=bool),
-            f.cells, f.capacity_ah, self.dates,
-            available_airflow(room.airflow_m3_per_h, room.opening_area_cm2) if given else None)
+            self.visits, bay, f.lead, self._vented, f.cells, f.capacity_ah, self.dates,
+            available_airflow(room.airflow_m3_per_h, room.opening_area_cm2) if given else None,
+            self._lead_charging)
+
+    @cached_property
+    def _vented(self) -> np.ndarray:
+        """Per battery: its cells are vented (flooded)."""
+        first = self.profile_first
+        out = np.zeros(self.fleet.n, dtype=bool)
+        for i in np.unique(first).tolist():  # each profile once
+            out[first == i] = self.fleet.profiles[i].vented
+        return out
+
+    @cached_property
+    def _lead_charging(self) -> np.ndarray:
+        """Per visit: it charges a lead-acid battery."""
+        v = self.visits
+        return np.isin(v.act, CHARGES) & self.fleet.lead[v.battery]
 
     def charging_bays(self) -> list[int]:
         """The bays in which the plan charges lead-acid, the warm room first: each needs its
         ventilation checked (IEC 62485-2 cl. 7 applies wherever batteries charge)."""
         v = self.visits
-        charging = np.isin(v.act, CHARGES) & self.fleet.lead[v.battery]
-        bays = sorted(set(v.where[charging].tolist()))
+        bays = sorted(set(np.unique(v.where[self._lead_charging]).tolist()))
         warm = self.site_file.site.warm_room
         first = [self.bay_names.index(warm)] if warm in self.bay_names else []
         return [b for b in first if b in bays] + [b for b in bays if b not in first]
@@ -825,20 +841,23 @@ def _notes(plan: StoragePlan) -> None:
     np.minimum.at(since, v.battery[waits], v.day[waits])
     waiting = np.flatnonzero(since < len(plan.dates))
     lowest = np.nanmin(plan.soc_daily[waiting], axis=1) if waiting.size else []
+    warmer = plan.warmer_room_words() if waiting.size else ""
     for i, low in zip(waiting, lowest, strict=True):
         plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
                                f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
                                f"inside its charge window; it falls to {low:.0f} % this season: "
-                               + plan.warmer_room_words()))
+                               + warmer))
     lithium = np.flatnonzero(~f.lead)
     lowest = plan.bay_min.min(axis=1)[f.bay[lithium]] if lithium.size else np.zeros(0)
+    cold: dict[float, str] = {}  # one text per bay minimum (a few), shared by its notes
     for i, low in zip(lithium.tolist(), lowest.tolist(), strict=True):
         if low < LITHIUM_DISCHARGE_MIN_C:
-            plan.notes.append(Note(i, "lithium-cold", (
+            text = cold.get(low) or cold.setdefault(low, (
                 f"its bay falls to {low:.0f} degC, below lithium's {LITHIUM_DISCHARGE_MIN_C:.0f} "
                 "degC discharge limit (BU-410 Table 1): store it where it stays warmer (the "
                 "maker's datasheet gives its own storage range), and never charge or discharge "
-                "it in that cold")))
+                "it in that cold"))
+            plan.notes.append(Note(i, "lithium-cold", text))
     for i in np.flatnonzero(plan.would_freeze):
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "

@@ -39,11 +39,16 @@ class RoomDay:
 
 def warm_room_ventilation(visits: Visits, warm: int, lead: np.ndarray, vented: np.ndarray,
                           cells: np.ndarray, capacity_ah: np.ndarray, dates: list[dt.date],
-                          available_m3_per_h: float | None) -> list[RoomDay]:
-    """One entry per day on which lead-acid charges in the warm room."""
+                          available_m3_per_h: float | None,
+                          lead_charging: np.ndarray | None = None) -> list[RoomDay]:
+    """One entry per day on which lead-acid charges in the room ``warm`` (a bay; the warm
+    room or another with mains). ``lead_charging``: the visits that charge lead-acid, where
+    made already (one mask for every room)."""
     if warm < 0:
         return []
-    charging = np.isin(visits.act, CHARGES) & (visits.where == warm) & lead[visits.battery]
+    if lead_charging is None:
+        lead_charging = np.isin(visits.act, CHARGES) & lead[visits.battery]
+    charging = lead_charging & (visits.where == warm)
     chosen = np.flatnonzero(charging)
     if not chosen.size:
         return []

@@ -28,7 +28,6 @@ from chargeplan.planners.storage_charges import (
     ChargeSetting,
     battery_file,
     charge_settings,
-    keyed,
     maintainer_holds,
 )
 from chargeplan.planners.storage_intake import (
@@ -319,9 +318,9 @@ class StoragePlan:
     def profile_first(self) -> np.ndarray:
         """Per battery, the first battery of the fleet with its profile (so a profile is
         looked at once, however many batteries share it)."""
-        firsts: dict[int, int] = {}
-        return np.fromiter((firsts.setdefault(id(p), i) for i, p in enumerate(self.fleet.profiles)),
-                           dtype=np.intp, count=self.fleet.n)
+        index = self.fleet.profile_index
+        _found, first = np.unique(index, return_index=True)
+        return first[index]  # profile numbers run in order from 0
 
     @cached_property
     def visit_connected(self) -> np.ndarray:
@@ -755,8 +754,9 @@ def _season(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray, bay_min: np
             on_maintainer: np.ndarray, refused: np.ndarray,
             events: list[tuple[int, int, float]]) -> Season:
     site = site_file.site
-    kinds, kind_of = keyed([(p.id,) for p in fleet.profiles])
-    first = [fleet.profiles[int(np.argmax(kind_of == k))] for k in range(len(kinds))]
+    kind_of = fleet.profile_index  # the profiles, numbered in order of appearance
+    _found, firsts = np.unique(kind_of, return_index=True)
+    first = [fleet.profiles[int(i)] for i in firsts]
     names = [b.name for b in site_file.bays]
     return Season(
         lead=fleet.lead, lfp=fleet.lfp, bay=fleet.bay, kind_of=kind_of,

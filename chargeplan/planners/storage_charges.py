@@ -16,8 +16,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-import numpy as np
-
 from chargeplan.model.storage import DAY_S
 
 __all__ = ["REFERENCE_AH", "ChargeSetting", "battery_file", "charge_settings", "maintainer_holds",
@@ -132,11 +130,3 @@ def maintainer_holds(keys: list[tuple[str, int, int]], profiles: Any) -> list[fl
         hold = charge.stage(StageKind.STORAGE_HOLD) or charge.stage(StageKind.FLOAT)
         holds.append(hold.voltage_v if hold else float("nan"))
     return holds
-
-
-def keyed(values: list[tuple[Any, ...]]) -> tuple[list[tuple[Any, ...]], np.ndarray]:
-    """The distinct keys and, per value, its key's index."""
-    index: dict[tuple[Any, ...], int] = {}
-    which = np.fromiter((index.setdefault(v, len(index)) for v in values), dtype=int,
-                        count=len(values))
-    return list(index), which

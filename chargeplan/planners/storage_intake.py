@@ -9,7 +9,7 @@ its curve says nothing usable, so that battery's state is unknown, NaN).
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from operator import attrgetter
 from typing import Any
 
@@ -50,6 +50,9 @@ class Fleet:
     may_disconnect: np.ndarray  # bool: staff may disconnect it (loads not given as connected)
     charge_min_c: np.ndarray
     charge_max_c: np.ndarray
+    # int: each battery's profile, numbered in order of first appearance (a profile's
+    # batteries share one number, whatever their cells or bay)
+    profile_index: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.intp))
 
     @property
     def n(self) -> int:
@@ -157,6 +160,9 @@ def _arrays(site_file: SiteFile, rows: list[InventoryRow], columns: dict[str, li
     lead, low_c = kind_lead[kind], kind_low_c[kind]
     cap = np.array(columns["capacity_ah"], dtype=float)
     profile_ids = [p.id for p in kind_profiles]
+    numbers: dict[int, int] = {}
+    kind_profile = np.array([numbers.setdefault(id(p), len(numbers)) for p in kind_profiles],
+                            dtype=np.intp)
     return Fleet(
         rows=rows, profiles=[kind_profiles[k] for k in kind.tolist()],
         chemistry=[profile_ids[k] for k in kind.tolist()], lead=lead,
@@ -176,8 +182,16 @@ def _arrays(site_file: SiteFile, rows: list[InventoryRow], columns: dict[str, li
         may_disconnect=np.array([loads != "connected" for loads in columns["loads"]],
                                 dtype=bool),
         charge_min_c=np.where(lead, low_c, np.maximum(low_c, 0.0)),  # never lithium below 0
-        charge_max_c=kind_high_c[kind],
+        charge_max_c=kind_high_c[kind], profile_index=_in_order(kind_profile[kind]),
     )
+
+
+def _in_order(codes: np.ndarray) -> np.ndarray:
+    """Integer codes renumbered in order of first appearance."""
+    _found, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
+    rank = np.empty(len(first), dtype=np.intp)
+    rank[np.argsort(first)] = np.arange(len(first))
+    return rank[inverse.ravel()]
 
 
 def _intake_soc(columns: dict[str, list[Any]], kind: np.ndarray,

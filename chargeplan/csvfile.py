@@ -253,8 +253,12 @@ def csv_rows(reader: Any, shown: str, errors: list[str]) -> Iterator[tuple[int, 
         errors.append(str(_csv_error(error, shown, rows.line_num)))
 
 
-def read_rows(path: str | Path, model: Any) -> list[Any]:
-    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once."""
+def read_rows(path: str | Path, model: Any, *, plain: Any = None) -> list[Any]:
+    """Rows of a CSV as ``model``s; every bad row is reported (with its line) at once.
+
+    ``plain``: the model ``model`` extends with a reading of columns it does not know; where
+    the header names none such, the rows are read as ``plain`` (the same fields and checks,
+    one step less a row)."""
     from pydantic import ValidationError
 
     from chargeplan.loading import input_error
@@ -265,6 +269,11 @@ def read_rows(path: str | Path, model: Any) -> list[Any]:
     rows: list[Any] = []
     errors: list[str] = []
     seen: set[str | None] = set()
+    if plain is not None:
+        fields = plain.model_fields
+        known = {f.alias or name for name, f in fields.items()} | set(fields)
+        if known.issuperset(csv_unguard(name.strip()) for name in reader.fieldnames):
+            model = plain
     validate = model.__pydantic_validator__.validate_python  # what model_validate calls
     for line, data in csv_rows(reader, shown, errors):
         if data.get("id") in seen:

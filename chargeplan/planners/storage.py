@@ -74,7 +74,7 @@ def load_site(path: str | Path) -> SiteFile:
 def read_inventory(path: str | Path) -> list[InventoryRow]:
     """The inventory CSV; every bad row is reported (with its line) before anything is done.
     Columns the model does not know are carried into each battery's notes."""
-    return read_rows(path, InventoryCsvRow)
+    return read_rows(path, InventoryCsvRow, plain=InventoryRow)
 
 
 @dataclass(frozen=True)

@@ -229,12 +229,12 @@ def simulate(
         from chargeplan.simulation import simulate_file
 
         run = simulate_file(file, profiles=_profile_set(profiles))
-        typer.echo(run.summary())
-        if csv is not None:
+        if csv is not None:  # written first: a path it refuses gets its one line alone
             from chargeplan.render.write import write_atomic
 
             write_atomic(csv, run.csv(), force=force)
             typer.echo(f"wrote {csv} ({run.rows} rows)", err=True)
+        typer.echo(run.summary())
 
 
 @app.command()
@@ -287,12 +287,12 @@ def runtime(
     with _errors():
         from chargeplan.api import load_battery_file
         from chargeplan.cautions import caution_text
-        from chargeplan.fmt import duration
+        from chargeplan.fmt import amps, duration
         from chargeplan.planners.readings import runtime as estimate_runtime
 
         result = estimate_runtime(load_battery_file(file), load,
                                   profiles=_profile_set(profiles), file=str(file))
-        typer.echo(f"about {duration(result.runtime_h * 3600)} at {result.current_a:.2f} A "
+        typer.echo(f"about {duration(result.runtime_h * 3600)} at {amps(result.current_a)} "
                    f"from {result.state_of_charge_pct:.0f} % (Peukert's law, k = "
                    f"{result.exponent:g}, rated over {result.rated_h:g} h)")
         for note in result.notes:

@@ -302,7 +302,7 @@ def test_runtime_with_the_launch_cabin_lights(write_yaml):
                               state={"state_of_charge": "100 %"}))
     result = run("runtime", str(path), "--load", "60W")
     assert result.exit_code == 0
-    assert "5.00 A" in result.stdout and "Peukert" in result.stdout
+    assert "at 5 A from" in result.stdout and "Peukert" in result.stdout
     bad = run("runtime", str(path), "--load", "12 V")
     assert bad.exit_code == 2
     _one_line_error(bad, "--load", "60 W")
@@ -482,6 +482,20 @@ def test_state_prints_the_chemistry_cautions_and_the_deferral(command, family_te
     assert result.exit_code == 0
     assert family_text in result.stdout
     assert "maker's datasheet, local codes or licensed practice" in result.stdout
+
+
+def test_small_loads_keep_their_digits_and_a_refused_csv_path_prints_only_its_error(tmp_path):
+    # a 5 mA load is 0.005 A (not '0.01 A'); lithium gets no lead-acid C100 note; a CSV path
+    # whose folder is missing is refused in one line, before any summary is printed
+    from chargeplan.demo import example_paths
+
+    lfp = next(p for p in example_paths() if "lifepo4" in p.name)
+    small = run("runtime", str(lfp), "--load", "5 mA")
+    assert small.exit_code == 0 and "at 0.005 A from" in small.stdout
+    assert "lead-acid" not in small.stdout.split("Cautions")[0]
+    missing = run("simulate", str(lfp), "--csv", str(tmp_path / "absent" / "x.csv"))
+    assert missing.exit_code == 2 and missing.stdout == ""
+    _one_line_error(missing, "absent")
 
 
 def test_simulate_and_runtime_print_findings_cautions_and_the_deferral():

@@ -221,8 +221,10 @@ def runtime(
     full_h = float(runtime_capped_h(ctx.capacity_ah, current, rated, exponent, factor))
     if full_h < float(peukert_runtime_h(ctx.capacity_ah, current, rated, exponent)) - 1e-9:
         notes.append(f"capped at {num(factor, 2)} x the rated {num(ctx.capacity_ah)} Ah: below "
-                     "its rated current Peukert's law overstates what a battery gives (C100 is "
-                     "about 1.1-1.25 x C20 for lead-acid, from memory)")
+                     "its rated current Peukert's law overstates what a battery gives (" + (
+                         "C100 is about 1.1-1.25 x C20 for lead-acid" if ctx.profile.family
+                         == "lead_acid" else "lithium gives about its rated capacity at any "
+                         "low rate") + ", from memory)")
     if current < ctx.capacity_ah / rated:
         notes.append(f"below the rated current ({num(ctx.capacity_ah / rated, 2)} A) the "
                      "battery's own self-discharge shortens this; Peukert's law does not "

@@ -223,6 +223,8 @@ def test_the_sheets_checks_and_gravity_are_read_back(tmp_path):
     ("electrolyte_level_ok", "maybe", "write yes or no"),
     ("specific_gravity", "1.9", "outside 1.000-1.350"),
     ("state_of_charge", "145 %", "outside 0-100 %"),
+    ("terminals_case_ok", "no\u200b", "'no<U+200B>' is not an answer"),  # shown, not hidden
+    ("specific_gravity", "\"1,150\"", "decimal comma"),  # quoted, as a spreadsheet writes it
 ])
 def test_a_bad_sheet_answer_names_its_line_and_column(tmp_path, column, text, fragment):
     path = tmp_path / "readings.csv"

@@ -41,6 +41,7 @@ __all__ = [
     "local_date",
     "number",
     "quantity",
+    "shown_text",
 ]
 
 # one number (ASCII digits; the minus sign U+2212 too), then a unit (chargeplan.units)
@@ -240,7 +241,7 @@ _INVISIBLE = frozenset({"Cf", "Cc", "Cs", "Co", "Cn", "Zl", "Zp"})
 _LOOKALIKE_SCRIPTS = ("CYRILLIC", "GREEK", "ARMENIAN", "CHEROKEE", "COPTIC")
 
 
-def _shown_text(value: str) -> str:
+def shown_text(value: str) -> str:
     """The text as a message shows it: every invisible character written as <U+XXXX>, so that
     none hides in, or reorders, the message line."""
     import unicodedata
@@ -266,7 +267,7 @@ def _character_problem(value: str, *, identifier: bool) -> str | None:
         if ch.isascii():
             continue
         if unicodedata.category(ch) in _INVISIBLE:
-            return (f"'{_shown_text(value)}' holds an invisible or direction-changing "
+            return (f"'{shown_text(value)}' holds an invisible or direction-changing "
                     f"character ({_char_name(ch)}) at position {index + 1}; retype it "
                     "without it")
     if not identifier:

@@ -18,6 +18,9 @@ __all__ = ["REST_HOURS", "Runtime", "StateReading", "runtime", "state_of_charge"
 
 #: Hours of rest before an open-circuit reading means much (common practice: several).
 REST_HOURS = 4.0
+#: Specific gravities a hydrometer reads in battery acid (TM 5-4210-230-14&P-1: 1.100-1.300
+#: between flat and full, with a margin): the state command's and the readings log's range.
+GRAVITY_RANGE = (1.000, 1.350)
 #: The loads runtime accepts, in amperes.
 LOAD_RANGE_A = (0.001, 10_000.0)
 #: The trade's rating time when a file gives none: C20 for lead-acid; lithium at 0.2 C.
@@ -51,15 +54,16 @@ def _from_gravity(profile: Profile, specific_gravity: float, temperature_c: floa
     if not profile.vented:
         raise InputError(f"{profile.name} cells are sealed", field="--specific-gravity",
                          fix="give --rest-voltage instead")
-    if not 1.000 <= specific_gravity <= 1.350:
-        raise InputError(f"{specific_gravity:g} is outside 1.000-1.350",
+    low, high = GRAVITY_RANGE
+    if not low <= specific_gravity <= high:
+        raise InputError(f"{specific_gravity:g} is outside {low:.3f}-{high:.3f}",
                          field="--specific-gravity",
                          fix="read the hydrometer again (battery acid lies in 1.100-1.300)")
     t = 26.7 if temperature_c is None else temperature_c
     corrected = float(specific_gravity_corrected(specific_gravity, t))
-    if not 1.000 <= corrected <= 1.350:
+    if not low <= corrected <= high:
         raise InputError(f"{specific_gravity:g} at {celsius(t)} corrects to "
-                         f"{corrected:.3f}, outside 1.000-1.350", field="--temperature",
+                         f"{corrected:.3f}, outside {low:.3f}-{high:.3f}", field="--temperature",
                          fix="check the electrolyte's temperature and the reading")
     if temperature_c is None:
         notes.append("no --temperature given: the reading is taken as at 26.7 °C (80 °F)")

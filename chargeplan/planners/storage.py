@@ -104,8 +104,6 @@ YES_NO = {"yes": True, "y": True, "ok": True, "no": False, "n": False, "not ok":
 #: The checks of the readings log: column -> the Reading's field.
 READING_CHECKS = {"electrolyte_level_ok": "electrolyte_ok",
                   "terminals_case_ok": "terminals_case_ok", "returned_to_bay": "returned_to_bay"}
-#: Specific gravities a hydrometer can read in battery acid (the state command's range).
-GRAVITY_RANGE = (1.000, 1.350)
 
 
 def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
@@ -140,6 +138,8 @@ def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
             gravity = parse_number(filled["specific_gravity"])
         except ValueError as error:
             return f"{where}: specific_gravity: {error}"
+        from chargeplan.planners.readings import GRAVITY_RANGE
+
         low, high = GRAVITY_RANGE
         if not low <= gravity <= high:
             return (f"{where}: specific_gravity: {gravity:g} is outside {low:.3f}-{high:.3f}; "
@@ -149,8 +149,10 @@ def _reading_row(data: dict[str, str], where: str) -> Reading | str | None:
         if column in filled:
             answer = YES_NO.get(filled[column].strip().lower())
             if answer is None:
-                return (f"{where}: {column}: '{filled[column][:40]}' is not an answer; write "
-                        "yes or no (or leave it blank if not checked)")
+                from chargeplan.model.fields import shown_text
+
+                return (f"{where}: {column}: '{shown_text(filled[column])}' is not an answer; "
+                        "write yes or no (or leave it blank if not checked)")
             values[name] = answer
     from chargeplan.model.fields import free_text
 
@@ -437,7 +439,7 @@ class StoragePlan:
         """The bays in which the plan charges lead-acid, the warm room first: each needs its
         ventilation checked (IEC 62485-2 cl. 7 applies wherever batteries charge)."""
         v = self.visits
-        bays = sorted(set(np.unique(v.where[self._lead_charging]).tolist()))
+        bays = np.unique(v.where[self._lead_charging]).tolist()
         warm = self.site_file.site.warm_room
         first = [self.bay_names.index(warm)] if warm in self.bay_names else []
         return [b for b in first if b in bays] + [b for b in bays if b not in first]
@@ -852,12 +854,13 @@ def _notes(plan: StoragePlan) -> None:
     cold: dict[float, str] = {}  # one text per bay minimum (a few), shared by its notes
     for i, low in zip(lithium.tolist(), lowest.tolist(), strict=True):
         if low < LITHIUM_DISCHARGE_MIN_C:
-            text = cold.get(low) or cold.setdefault(low, (
-                f"its bay falls to {low:.0f} degC, below lithium's {LITHIUM_DISCHARGE_MIN_C:.0f} "
-                "degC discharge limit (BU-410 Table 1): store it where it stays warmer (the "
-                "maker's datasheet gives its own storage range), and never charge or discharge "
-                "it in that cold"))
-            plan.notes.append(Note(i, "lithium-cold", text))
+            if low not in cold:
+                cold[low] = (
+                    f"its bay falls to {low:.0f} degC, below lithium's "
+                    f"{LITHIUM_DISCHARGE_MIN_C:.0f} degC discharge limit (BU-410 Table 1): store "
+                    "it where it stays warmer (the maker's datasheet gives its own storage "
+                    "range), and never charge or discharge it in that cold")
+            plan.notes.append(Note(i, "lithium-cold", cold[low]))
     for i in np.flatnonzero(plan.would_freeze):
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "
@@ -906,7 +909,6 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
     # the voltage as it warms, BU-410: set for the warmest, it never runs high)
     held = np.flatnonzero(plan.on_maintainer[v.battery] & np.isin(v.act, (Act.MAINTAINER,
                                                                        Act.TOP_UP)))
-    temp = temp.astype(float)
     stretch = _pack(v.bay[held], v.day[held], v.end_day[held])
     stretches, at = np.unique(stretch, return_inverse=True)
     first_of = held[_firsts(stretch, stretches)]
@@ -914,10 +916,11 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
                         for k in first_of.tolist()])
     plan.visit_hold_c = np.full(len(v), np.nan)
     plan.visit_hold_c[held] = warmest[at.ravel()] if held.size else []
-    temp = np.round(np.where(np.isnan(plan.visit_hold_c), temp, plan.visit_hold_c)).astype(int)
-    hcodes = _pack(kind[v.battery[held]], temp[held])
+    held_c = np.zeros(len(v), dtype=int)  # the hold's temperature, whole degrees
+    held_c[held] = np.round(plan.visit_hold_c[held])
+    hcodes = _pack(kind[v.battery[held]], held_c[held])
     hunique, hwhich = np.unique(hcodes, return_inverse=True)
-    hkeys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(temp[k]))
+    hkeys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(held_c[k]))
              for k in held[_firsts(hcodes, hunique)]]
     holds = np.array(maintainer_holds(hkeys, profile_set) or [np.nan])
     plan.visit_hold_v = np.full(len(v), np.nan)

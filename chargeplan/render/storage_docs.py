@@ -154,10 +154,15 @@ def _maintainer_words(plan: StoragePlan, k: int) -> str:
     return f"then connect its maintainer, set to {hold:.2f} V{_hold_for(plan, k)}"
 
 
-def _freeze_words(plan: StoragePlan, k: int) -> str:
-    """The freeze remedy of visit ``k``, as staff carry it out at the visit."""
+def _remedy_words(plan: StoragePlan, k: int) -> str:
+    """The remedy of visit ``k`` as staff carry it out at the visit: against the freeze
+    (lead-acid), or a lithium load that would drain it (BU-702)."""
     v = plan.visits
     remedy = int(v.remedy[k])
+    if remedy == Remedy.DISCONNECT and not plan.fleet.lead[int(v.battery[k])]:
+        return ("disconnect its load and leave it off until the release (it would drain "
+                "the battery below its threshold before the next round; BU-702: lithium is "
+                "stored with its loads off)")
     if not v.freeze[k] or remedy in (Remedy.NONE, Remedy.CHARGE_NOW):
         return ""
     head = "freeze risk: its charge would reach its freezing range before the next round"
@@ -199,13 +204,9 @@ def action_text(plan: StoragePlan, k: int) -> str:
         parts.append("store it as it is" + ("" if f.lead[i] else " (inside 40-50 %)"))
     else:
         parts.append(_check_words(plan, k, i))
-    freeze = _freeze_words(plan, k)
-    if not f.lead[i] and v.remedy[k] == Remedy.DISCONNECT:
-        freeze = ("disconnect its load and leave it off until the release (it would drain "
-                  "the battery below its threshold before the next round; BU-702: lithium is "
-                  "stored with its loads off)")
-    if freeze:
-        parts = [p for p in parts if not p.startswith("store it as it is")] + [freeze]
+    remedy = _remedy_words(plan, k)
+    if remedy:
+        parts = [p for p in parts if not p.startswith("store it as it is")] + [remedy]
     if act != ACT.MAINTAINER and kind == KIND.INTAKE and f.lead[i]:
         parts.append("flooded: check the electrolyte level, top up with distilled water only"
                      if plan.chemistry[i] == "flooded" else "check terminals and case")
@@ -306,8 +307,7 @@ def charge_columns(plan: StoragePlan, chosen: np.ndarray) -> list[Column]:
         made = [cell(s) for s in settings]
         return [made[s] if s >= 0 else "" for s in shown]
 
-    currents = [(f"{a:.1f}" if a >= 0.95 else f"{a:.3f}") if s >= 0 else ""  # as amps()
-                for a, s in zip(current, shown, strict=True)]
+    currents = [amps(a) if s >= 0 else "" for a, s in zip(current, shown, strict=True)]
     codes = codes.ravel()
     return [Column(texts, codes), Column(cells(lambda s: s.chemistry_setting), codes),
             Column(cells(lambda s: f"{s.voltage_v:.2f}"), codes), Column(currents, codes),

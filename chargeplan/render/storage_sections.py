@@ -98,7 +98,8 @@ def _maintainers(plan: StoragePlan) -> Section:
     v = plan.visits
     held = (np.isfinite(plan.visit_hold_v) if plan.visit_hold_v is not None
             else np.zeros(len(v), dtype=bool))
-    picked = np.flatnonzero(held)[:LISTED_MAX]  # every setting, visit by visit
+    every = np.flatnonzero(held)  # every setting, visit by visit
+    picked = every[:LISTED_MAX]
     rows = [[plan.rows[int(v.battery[k])].id, plan.bay_names[int(v.bay[k])],
              plan.dates[int(v.day[k])].isoformat(), plan.dates[int(v.end_day[k])].isoformat(),
              f"{plan.visit_hold_v[k]:.2f} V", f"{plan.visit_hold_c[k]:.0f} °C"]
@@ -110,7 +111,9 @@ def _maintainers(plan: StoragePlan) -> Section:
         "the warmest month until the next round (a hold set for a colder month runs high as "
         "the bay warms, BU-410).",
         "Never measure the rest voltage of a battery on a maintainer: read the maintainer's "
-        f"display, or disconnect it for at least {REST_HOURS:g} h first."],
+        f"display, or disconnect it for at least {REST_HOURS:g} h first.",
+        *([f"The table lists the first {LISTED_MAX} of {every.size} settings; the round sheets "
+           "and schedule.csv give each one."] if every.size > LISTED_MAX else [])],
         header=["battery", "bay", "from", "to", "hold voltage", "for up to"], rows=rows)
 
 

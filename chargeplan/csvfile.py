@@ -25,7 +25,8 @@ from typing import Any
 from chargeplan.errors import InputError
 
 __all__ = ["MAX_CELL_CHARS", "MAX_CSV_BYTES", "InputErrors", "csv_cell", "csv_fields",
-           "csv_reader", "csv_row", "csv_rows", "csv_unguard", "read_rows"]
+           "csv_reader", "csv_row", "csv_rows", "csv_text", "csv_unguard", "read_rows",
+           "reader_of"]
 
 #: Characters that make a spreadsheet read a cell as a formula (OWASP "CSV Injection").
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -160,16 +161,27 @@ def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
     header cell are refused with their line, and so is a file separated by semicolons.
     Column names are read in any case.
     """
-    import io
+    shown = str(path)
+    return shown, reader_of(csv_text(path), shown)
 
+
+def csv_text(path: str | Path) -> str:
+    """The CSV file's text, as :func:`csv_reader` reads it."""
     from chargeplan.loading import read_input
 
-    shown = str(path)
     raw = read_input(path, what="CSV", limit=MAX_CSV_BYTES)
     try:
-        text = raw.decode("utf-8-sig")
+        return raw.decode("utf-8-sig")
     except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", file=shown, fix="save the CSV as UTF-8") from None
+        raise InputError("is not UTF-8 text", file=str(path),
+                         fix="save the CSV as UTF-8") from None
+
+
+def reader_of(text: str, shown: str) -> csv.DictReader:
+    """:func:`csv_reader`'s reader of a file's ``text`` (``shown``: its name in messages), its
+    header read and checked."""
+    import io
+
     nul = text.find("\x00")
     if nul >= 0:
         raise InputError(f"line {_line_of(text, nul)}: holds a NUL byte", file=shown,
@@ -195,7 +207,7 @@ def csv_reader(path: str | Path) -> tuple[str, csv.DictReader]:
         raise InputError(f"line 1: the column '{twice[:80]}' is named twice in the header",
                          file=shown,
                          fix="keep one column of each name: which one is meant is not clear")
-    return shown, reader
+    return reader
 
 
 def _csv_error(error: csv.Error, shown: str, line: int) -> InputError:
@@ -276,11 +288,12 @@ def read_rows(path: str | Path, model: Any, *, plain: Any = None) -> list[Any]:
             model = plain
     validate = model.__pydantic_validator__.validate_python  # what model_validate calls
     for line, data in csv_rows(reader, shown, errors):
-        if data.get("id") in seen:
-            errors.append(f"{shown}: line {line}: id: '{data['id']}' is listed twice; give "
+        battery = data.get("id")  # (a row without one is told so by the model)
+        if battery is not None and battery in seen:
+            errors.append(f"{shown}: line {line}: id: '{battery}' is listed twice; give "
                           "each battery its own id")
             continue
-        seen.add(data.get("id"))
+        seen.add(battery)
         try:
             rows.append(validate(data))
         except ValidationError as error:

@@ -130,6 +130,15 @@ def _days_and_hours(seconds: float) -> str:
     return f"{seconds / DAY_S:g} d ({seconds / 3600:g} h)"
 
 
+def _intake_problem(state_of_charge_pct: float | None, rest_voltage_v: float | None,
+                   arrive: dt.date | None, depart: dt.date | None) -> str | None:
+    if (state_of_charge_pct is None) == (rest_voltage_v is None):
+        return "give state_of_charge or rest_voltage at intake (one of them)"
+    if arrive and depart and depart < arrive:
+        return "depart is before arrive; check the dates"
+    return None
+
+
 class InventoryRow(BatteryRow):
     """One battery in store (a CSV row, or an inline entry)."""
 
@@ -155,13 +164,9 @@ class InventoryRow(BatteryRow):
     def _loads_any_case(cls, value: object) -> object:
         return value.strip().lower() if isinstance(value, str) else value
 
-    @model_validator(mode="after")
-    def _reading(self) -> InventoryRow:
-        if (self.state_of_charge_pct is None) == (self.rest_voltage_v is None):
-            raise ValueError("give state_of_charge or rest_voltage at intake (one of them)")
-        if self.arrive and self.depart and self.depart < self.arrive:
-            raise ValueError("depart is before arrive; check the dates")
-        return self
+    row_checks = (*BatteryRow.row_checks,
+                  (("state_of_charge_pct", "rest_voltage_v", "arrive", "depart"),
+                   _intake_problem))
 
     @property
     def load_connected(self) -> bool:

@@ -12,6 +12,7 @@ machine-readable codes.
 from __future__ import annotations
 
 import datetime as dt
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -19,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from chargeplan.csvcolumns import Table, read_columns
 from chargeplan.csvfile import InputErrors, csv_reader, csv_rows, read_rows
 from chargeplan.errors import InputError
 from chargeplan.loading import read_mapping, validate
@@ -71,10 +73,17 @@ def load_site(path: str | Path) -> SiteFile:
     return validate(SiteFile, read_mapping(path, what="storage site"), file=str(path))
 
 
-def read_inventory(path: str | Path) -> list[InventoryRow]:
+def read_inventory(path: str | Path) -> Table[InventoryRow]:
     """The inventory CSV; every bad row is reported (with its line) before anything is done.
-    Columns the model does not know are carried into each battery's notes."""
-    return read_rows(path, InventoryCsvRow, plain=InventoryRow)
+    Columns the model does not know are carried into each battery's notes.
+
+    A valid file with only the model's columns is read column by column
+    (:func:`chargeplan.csvcolumns.read_columns`), any other row by row."""
+    table = read_columns(path, InventoryRow)
+    if table is not None:
+        return table
+    return Table.of_rows(read_rows(path, InventoryCsvRow, plain=InventoryRow),
+                         list(InventoryRow.model_fields))
 
 
 @dataclass(frozen=True)
@@ -261,8 +270,13 @@ class StoragePlan:
 
     # the fleet's columns, under the names the documents use
     @property
-    def rows(self) -> list[InventoryRow]:
+    def rows(self) -> Table[InventoryRow]:
         return self.fleet.rows
+
+    @property
+    def ids(self) -> list[str]:
+        """Each battery's id (a column of :attr:`rows`)."""
+        return self.fleet.rows.column("id")
 
     @property
     def chemistry(self) -> list[str]:
@@ -507,7 +521,7 @@ class StoragePlan:
         if waits:
             lines.append(f"  charges waiting for a bay inside their window: {waits}")
         for note in self.notes[:SUMMARY_LINES]:
-            lines.append(f"  ! {self.rows[note.battery].id}: {note.text}")
+            lines.append(f"  ! {self.ids[note.battery]}: {note.text}")
         if len(self.notes) > SUMMARY_LINES:
             lines.append(f"  ! and {len(self.notes) - SUMMARY_LINES} more notes: see "
                          "procedure.md")
@@ -565,10 +579,10 @@ def _refused(fleet: Fleet, profile_set: ProfileSet) -> list[tuple[int, str]]:
     """Batteries whose intake voltage the core rules refuse (reversed, dead or shorted cell,
     over-discharged lithium): they are not to be stored as they are."""
     refused = []
-    for i, row in enumerate(fleet.rows):
-        if row.rest_voltage_v is None:
+    for i, volts in enumerate(fleet.rows.column("rest_voltage_v")):
+        if volts is None:
             continue
-        why = voltage_refusal(fleet, i, row.rest_voltage_v, profile_set)
+        why = voltage_refusal(fleet, i, volts, profile_set)
         if why is not None:
             refused.append((i, why))
     return refused
@@ -615,7 +629,7 @@ def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
                                                   list[ReadingFlag]]:
     """Each reading as an intake on its date (day, battery, state of charge), and the flags
     staff must see: readings the plan cannot use, and the sheet's failed checks."""
-    index = {row.id: i for i, row in enumerate(fleet.rows)}
+    index = {battery: i for i, battery in enumerate(fleet.rows.column("id"))}
     events, flags = [], []
     for r in readings:
         i, day = index.get(r.battery), (r.date - dates[0]).days
@@ -735,7 +749,7 @@ def _reading_results(events: list[tuple[int, int, float]], plan: StoragePlan) ->
     """Each reading against the forecast it replaces."""
     for day, i, soc in events:
         before = plan.soc_daily[i, day - 1] if day > fleet_first(plan, i) else np.nan
-        battery, date = plan.rows[i].id, plan.dates[day]
+        battery, date = plan.ids[i], plan.dates[day]
         if np.isfinite(before) and soc < before - FAST_LOSS_POINTS:
             plan.reading_flags.append(ReadingFlag(
                 "fast-loss", battery, date, f"{soc:.0f} % measured on {date.isoformat()}, "
@@ -778,7 +792,7 @@ def _season(site_file: SiteFile, fleet: Fleet, bay_mean: np.ndarray, bay_min: np
 
 def plan_storage(
     site_file: SiteFile,
-    inventory: list[InventoryRow] | None = None,
+    inventory: Sequence[InventoryRow] | None = None,
     *,
     profiles: ProfileSet | None = None,
     inventory_file: str = "inventory",
@@ -788,7 +802,9 @@ def plan_storage(
 ) -> StoragePlan:
     """Plan the season for every battery (see the module docstring)."""
     profile_set = profiles or ProfileSet(use_environment=False)
-    rows = list(site_file.inventory or []) + list(inventory or [])
+    fields = list(InventoryRow.model_fields)
+    rows = Table.joined([Table.of_rows(site_file.inventory or [], fields),
+                         Table.of_rows(inventory or [], fields)])
     if not rows:
         raise InputError("no batteries to store", file=site_path, field="inventory",
                          fix="list them under inventory: or give --inventory batteries.csv")
@@ -829,11 +845,12 @@ def _notes(plan: StoragePlan) -> None:
         plan.notes.append(Note(int(i), "lead-acid-low", f"lead-acid at {f.intake_soc[i]:.0f} % "
                                "at intake: after its charge, check it holds its charge before "
                                "storing it"))
-    for i in np.flatnonzero(f.connected & (f.draw_pct_day > 0)):
-        draw = f"its {f.rows[i].parasitic_draw_a * 1000:.0f} mA load"
-        plan.notes.append(Note(int(i), "load-connected", (
+    draws, loads = f.rows.column("parasitic_draw_a"), f.rows.column("loads")
+    for i in np.flatnonzero(f.connected & (f.draw_pct_day > 0)).tolist():
+        draw = f"its {draws[i] * 1000:.0f} mA load"
+        plan.notes.append(Note(i, "load-connected", (
             f"{draw} stays connected (loads: connected): it drains the battery"
-            if f.rows[i].loads == "connected" else
+            if loads[i] == "connected" else
             f"{draw} is left connected (loads: not given): it drains the battery; the plan "
             "disconnects it where it would freeze the battery. Write loads: disconnected if "
             "it may come off at intake, loads: connected if it must stay on")))

@@ -9,12 +9,13 @@ its curve says nothing usable, so that battery's state is unknown, NaN).
 from __future__ import annotations
 
 import datetime as dt
+from collections.abc import Sequence
 from dataclasses import dataclass, field
-from operator import attrgetter
 from typing import Any
 
 import numpy as np
 
+from chargeplan.csvcolumns import Table
 from chargeplan.csvfile import InputErrors
 from chargeplan.errors import InputError
 from chargeplan.model.storage import InventoryRow, SiteFile, load_connected
@@ -31,7 +32,7 @@ LITHIUM_STORAGE_BAND_PCT = (40.0, 50.0)
 class Fleet:
     """The batteries as arrays, one entry each; ``profiles`` and ``rows`` in the same order."""
 
-    rows: list[InventoryRow]
+    rows: Table[InventoryRow]  # a battery a row; its fields also as columns
     profiles: list[Any]
     chemistry: list[str]
     lead: np.ndarray  # bool
@@ -78,9 +79,9 @@ _COLUMNS = ("capacity_ah", "state_of_charge_pct", "rest_voltage_v", "parasitic_d
             "arrive", "depart")
 
 
-def _columns(rows: list[InventoryRow]) -> dict[str, list[Any]]:
+def _columns(rows: Table[InventoryRow]) -> dict[str, list[Any]]:
     """The rows' fields of _KIND and _COLUMNS, a list a field."""
-    return {name: list(map(attrgetter(name), rows)) for name in (*_KIND, *_COLUMNS)}
+    return {name: rows.column(name) for name in (*_KIND, *_COLUMNS)}
 
 
 def _cells(nominal_voltage_v: float | None, cells_in_series: int | None,
@@ -116,27 +117,28 @@ def _resolve_kind(kind: tuple[Any, ...], profile_set: ProfileSet,
     return profile, count, bay_names.index(bay)
 
 
-def resolve_fleet(site_file: SiteFile, rows: list[InventoryRow], profile_set: ProfileSet,
-                  inventory_file: str) -> Fleet:
+def resolve_fleet(site_file: SiteFile, rows: Sequence[InventoryRow],
+                  profile_set: ProfileSet, inventory_file: str) -> Fleet:
     """Every row resolved, or every bad row reported at once (each naming its file).
 
     Each kind of row (chemistry, nominal voltage, cells in series, bay) is resolved once;
     each battery's arrays are its kind's values, then its own capacity, reading, load and
     days (numpy, a column at a time)."""
     bay_names = [b.name for b in site_file.bays]
+    rows = Table.of_rows(rows, list(InventoryRow.model_fields))
     columns = _columns(rows)
     kinds: dict[tuple[Any, ...], int] = {}
     kind_of = [kinds.setdefault(kind, len(kinds))
                for kind in zip(*(columns[name] for name in _KIND), strict=True)]
     resolved = [_resolve_kind(kind, profile_set, bay_names) for kind in kinds]
     if any(isinstance(got, str) for got in resolved):
-        raise InputErrors([f"{inventory_file}: battery {row.id}: {resolved[k]}"
-                           for row, k in zip(rows, kind_of, strict=True)
+        raise InputErrors([f"{inventory_file}: battery {battery}: {resolved[k]}"
+                           for battery, k in zip(rows.column("id"), kind_of, strict=True)
                            if isinstance(resolved[k], str)])
     return _arrays(site_file, rows, columns, resolved, np.array(kind_of, dtype=np.intp))
 
 
-def _arrays(site_file: SiteFile, rows: list[InventoryRow], columns: dict[str, list[Any]],
+def _arrays(site_file: SiteFile, rows: Table[InventoryRow], columns: dict[str, list[Any]],
             resolved: list[Any], kind: np.ndarray) -> Fleet:
     """The fleet's arrays: each kind's values (``resolved``, one entry a kind) taken for each
     battery by its ``kind``, then the rows' own ``columns``."""

@@ -227,7 +227,7 @@ def freeze_action(plan: StoragePlan, k: int) -> str:
 def _reading_cells(plan: StoragePlan, chosen: np.ndarray) -> Column:
     if not plan.reading_flags:
         return Column.constant("", len(chosen))
-    index = {row.id: i for i, row in enumerate(plan.rows)}
+    index = {battery: i for i, battery in enumerate(plan.ids)}
     flags: dict[tuple[int, int], str] = {}
     for flag in plan.reading_flags:
         i = index.get(flag.battery)
@@ -322,8 +322,8 @@ class FleetTexts:
     def __init__(self, plan: StoragePlan) -> None:
         f = plan.fleet
         every = np.arange(f.n)
-        self.ids = Column([r.id for r in f.rows], every)
-        self.owners = Column([r.owner for r in f.rows], every)
+        self.ids = Column(plan.ids, every)
+        self.owners = Column(f.rows.column("owner"), every)
         self.chemistry = distinct(f.chemistry)
 
     @cached_property
@@ -395,7 +395,7 @@ def batteries_csv(plan: StoragePlan, texts: FleetTexts | None = None) -> str:
         notes[note.battery] = note.code if codes is None else codes + " " + note.code
     last = plan.bay_daily[np.arange(f.n), f.depart]
     return csv_text(BATTERY_COLUMNS, csv_lines([
-        texts.id_fields, texts.owner_fields, texts.chemistry, distinct(row.bay for row in f.rows),
+        texts.id_fields, texts.owner_fields, texts.chemistry, distinct(f.rows.column("bay")),
         Column(["", "yes"], plan.on_maintainer.astype(np.intp)),
         Column([*actions.texts, ""], intake_action), distinct(charges.tolist()),
         floats(hours, ".1f"), floats(np.where(np.isfinite(lowest), lowest, np.nan), ".0f",
@@ -422,7 +422,7 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     rounds = set(plan.round_days)
     for d in sorted(set(v.day[v.kind != Kind.RELEASE].tolist())):
         due = charging[charge_day == d]
-        lines = [f"Charge: {plan.rows[v.battery[k]].id} (in {plan.bay_names[v.where[k]]})"
+        lines = [f"Charge: {plan.ids[v.battery[k]]} (in {plan.bay_names[v.where[k]]})"
                  for k in due[:LISTED]]
         if len(due) > LISTED:
             lines.append(f"and {len(due) - LISTED} more charges: see schedule.csv")
@@ -437,7 +437,7 @@ def calendar_events(plan: StoragePlan) -> list[Any]:
     release_day = v.day[release]
     for d in sorted(set(release_day.tolist())):
         leaving = v.battery[release[release_day == d]]
-        ids = [plan.rows[int(b)].id for b in leaving[:LISTED]]
+        ids = [plan.ids[int(b)] for b in leaving[:LISTED]]
         count = len(leaving)
         events.append(EventSpec(
             f"release-{plan.dates[d].isoformat()}-{site_key}@chargeplan", plan.dates[d],

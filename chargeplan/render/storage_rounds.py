@@ -128,7 +128,8 @@ def _lines(plan: StoragePlan, kept: np.ndarray, round_of: np.ndarray,
                       lambda k: _location(plan, k))
     columns = [texts.ids.of(b), texts.owners.of(b), location, action_column(plan, kept, texts),
                charge_columns(plan, kept)[0], _expected(plan, kept)]
-    notes = distinct(plan.rows[i].notes for i in b.tolist())
+    every = plan.rows.column("notes")
+    notes = distinct(every[i] for i in b.tolist())
     return list(map(Line._make, zip(*(c.values() for c in [*columns, checks, notes]),
                                     strict=True)))
 

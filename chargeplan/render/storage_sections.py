@@ -78,7 +78,7 @@ def _intake(plan: StoragePlan) -> Section:
     def cells(k: int) -> list[str]:
         i = int(v.battery[k])
         found = "unknown" if np.isnan(v.soc_before[k]) else f"{v.soc_before[k]:.0f} %"
-        return [plan.dates[int(v.day[k])].isoformat(), f.rows[i].id, f.rows[i].owner,
+        return [plan.dates[int(v.day[k])].isoformat(), plan.ids[i], f.rows.column("owner")[i],
                 plan.bay_names[int(v.bay[k])], plan.chemistry[i], found, action_text(plan, k),
                 charge_text(plan, k)]
 
@@ -100,7 +100,7 @@ def _maintainers(plan: StoragePlan) -> Section:
             else np.zeros(len(v), dtype=bool))
     every = np.flatnonzero(held)  # every setting, visit by visit
     picked = every[:LISTED_MAX]
-    rows = [[plan.rows[int(v.battery[k])].id, plan.bay_names[int(v.bay[k])],
+    rows = [[plan.ids[int(v.battery[k])], plan.bay_names[int(v.bay[k])],
              plan.dates[int(v.day[k])].isoformat(), plan.dates[int(v.end_day[k])].isoformat(),
              f"{plan.visit_hold_v[k]:.2f} V", f"{plan.visit_hold_c[k]:.0f} °C"]
             for k in picked] if plan.visit_hold_c is not None else []
@@ -151,7 +151,7 @@ def _freeze(plan: StoragePlan) -> Section:
     def cells(k: int) -> list[str]:
         i = int(v.battery[k])
         return [plan.dates[int(v.day[k])].isoformat(),
-                plan.dates[int(v.end_day[k])].isoformat(), plan.rows[i].id,
+                plan.dates[int(v.end_day[k])].isoformat(), plan.ids[i],
                 plan.bay_names[int(v.bay[k])], f"{v.freeze_c[k]:.0f} °C", f"{v.low_c[k]:.0f} °C",
                 f"{v.margin_k[k]:.1f} K", freeze_action(plan, k) or "charged"]
 
@@ -160,7 +160,7 @@ def _freeze(plan: StoragePlan) -> Section:
     freezes = [] if not frozen.size else [
         "Under this plan these batteries freeze (the bay's minimum reaches their electrolyte's "
         "freezing point): " + ", ".join(
-            f"{plan.rows[int(i)].id} on {plan.dates[int(plan.first_freeze_day[i])].isoformat()}"
+            f"{plan.ids[int(i)]} on {plan.dates[int(plan.first_freeze_day[i])].isoformat()}"
             for i in frozen[:LISTED_MAX])
         + (f" and {frozen.size - LISTED_MAX} more" if frozen.size > LISTED_MAX else "")
         + ". Store them indoors, above freezing, before then; a frozen battery is never "
@@ -227,7 +227,7 @@ def _closing(plan: StoragePlan, profiles: ProfileSet) -> list[Section]:
             "reconnect loads, hand it back."])]
     if plan.notes:
         out.append(Section("Batteries to act on", items=[
-            f"{plan.rows[n.battery].id}: {n.text}" for n in plan.notes[:LISTED_MAX]]))
+            f"{plan.ids[n.battery]}: {n.text}" for n in plan.notes[:LISTED_MAX]]))
     out.append(Section("Cautions", items=cautions, paragraphs=[DEFERRAL]))
     return out
 

@@ -12,9 +12,10 @@ machine-readable codes.
 from __future__ import annotations
 
 import datetime as dt
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
+from itertools import repeat
 from pathlib import Path
 from typing import Any
 
@@ -629,7 +630,8 @@ def _reading_events(readings: list[Reading], fleet: Fleet, dates: list[dt.date],
                                                   list[ReadingFlag]]:
     """Each reading as an intake on its date (day, battery, state of charge), and the flags
     staff must see: readings the plan cannot use, and the sheet's failed checks."""
-    index = {battery: i for i, battery in enumerate(fleet.rows.column("id"))}
+    index = {battery: i for i, battery in enumerate(fleet.rows.column("id"))} if readings \
+        else {}
     events, flags = [], []
     for r in readings:
         i, day = index.get(r.battery), (r.date - dates[0]).days
@@ -840,20 +842,23 @@ def plan_storage(
 def _notes(plan: StoragePlan) -> None:
     """What staff must know about single batteries, each with its code."""
     f, v = plan.fleet, plan.visits
-    for i in np.flatnonzero(f.lead & (np.nan_to_num(f.intake_soc, nan=100.0) < 50)
-                            & ~plan.refused):
-        plan.notes.append(Note(int(i), "lead-acid-low", f"lead-acid at {f.intake_soc[i]:.0f} % "
-                               "at intake: after its charge, check it holds its charge before "
-                               "storing it"))
+    low = np.flatnonzero(f.lead & (np.nan_to_num(f.intake_soc, nan=100.0) < 50) & ~plan.refused)
+    plan.notes.extend(map(Note, low.tolist(), repeat("lead-acid-low"), _texts_of(
+        lambda soc: f"lead-acid at {soc} % at intake: after its charge, check it holds its "
+        "charge before storing it", [f"{soc:.0f}" for soc in f.intake_soc[low].tolist()])))
     draws, loads = f.rows.column("parasitic_draw_a"), f.rows.column("loads")
-    for i in np.flatnonzero(f.connected & (f.draw_pct_day > 0)).tolist():
-        draw = f"its {draws[i] * 1000:.0f} mA load"
-        plan.notes.append(Note(i, "load-connected", (
-            f"{draw} stays connected (loads: connected): it drains the battery"
-            if loads[i] == "connected" else
-            f"{draw} is left connected (loads: not given): it drains the battery; the plan "
-            "disconnects it where it would freeze the battery. Write loads: disconnected if "
-            "it may come off at intake, loads: connected if it must stay on")))
+    drawing = np.flatnonzero(f.connected & (f.draw_pct_day > 0)).tolist()
+
+    def load_text(given: tuple[float, str | None]) -> str:
+        draw = f"its {given[0] * 1000:.0f} mA load"
+        return (f"{draw} stays connected (loads: connected): it drains the battery"
+                if given[1] == "connected" else
+                f"{draw} is left connected (loads: not given): it drains the battery; the plan "
+                "disconnects it where it would freeze the battery. Write loads: disconnected if "
+                "it may come off at intake, loads: connected if it must stay on")
+
+    plan.notes.extend(map(Note, drawing, repeat("load-connected"), _texts_of(
+        load_text, [(draws[i], loads[i]) for i in drawing])))
     _fast_losers(plan)
     waits = v.act == Act.WAIT
     since = np.full(f.n, len(plan.dates))
@@ -861,27 +866,31 @@ def _notes(plan: StoragePlan) -> None:
     waiting = np.flatnonzero(since < len(plan.dates))
     lowest = np.nanmin(plan.soc_daily[waiting], axis=1) if waiting.size else []
     warmer = plan.warmer_room_words() if waiting.size else ""
-    for i, low in zip(waiting, lowest, strict=True):
-        plan.notes.append(Note(int(i), "no-charge-window", f"a charge is due from "
-                               f"{plan.dates[since[i]].isoformat()} but no bay with mains is "
-                               f"inside its charge window; it falls to {low:.0f} % this season: "
-                               + warmer))
-    lithium = np.flatnonzero(~f.lead)
-    lowest = plan.bay_min.min(axis=1)[f.bay[lithium]] if lithium.size else np.zeros(0)
-    cold: dict[float, str] = {}  # one text per bay minimum (a few), shared by its notes
-    for i, low in zip(lithium.tolist(), lowest.tolist(), strict=True):
-        if low < LITHIUM_DISCHARGE_MIN_C:
-            if low not in cold:
-                cold[low] = (
-                    f"its bay falls to {low:.0f} degC, below lithium's "
-                    f"{LITHIUM_DISCHARGE_MIN_C:.0f} degC discharge limit (BU-410 Table 1): store "
-                    "it where it stays warmer (the maker's datasheet gives its own storage "
-                    "range), and never charge or discharge it in that cold")
-            plan.notes.append(Note(i, "lithium-cold", cold[low]))
+    plan.notes.extend(map(Note, waiting.tolist(), repeat("no-charge-window"), _texts_of(
+        lambda due: f"a charge is due from {plan.dates[due[0]].isoformat()} but no bay with "
+        f"mains is inside its charge window; it falls to {due[1]} % this season: " + warmer,
+        [(int(day), f"{low:.0f}") for day, low in zip(since[waiting].tolist(),
+                                                      np.asarray(lowest).tolist(),
+                                                      strict=True)])))
+    coldest = plan.bay_min.min(axis=1)[f.bay]
+    cold = np.flatnonzero(~f.lead & (coldest < LITHIUM_DISCHARGE_MIN_C))
+    plan.notes.extend(map(Note, cold.tolist(), repeat("lithium-cold"), _texts_of(
+        lambda low: f"its bay falls to {low:.0f} degC, below lithium's "
+        f"{LITHIUM_DISCHARGE_MIN_C:.0f} degC discharge limit (BU-410 Table 1): store it where "
+        "it stays warmer (the maker's datasheet gives its own storage range), and never "
+        "charge or discharge it in that cold", coldest[cold].tolist())))
     for i in np.flatnonzero(plan.would_freeze):
         plan.notes.append(Note(int(i), "freezes-full", f"its bay falls to "
                                f"{plan.bay_min[f.bay[i]].min():.0f} degC, at or below the "
                                "freezing point of even a full battery: store it indoors"))
+
+
+def _texts_of(text: Callable[[Any], str], values: list[Any]) -> list[str]:
+    """``text`` of each value, made once for each distinct value (a note's text for a
+    hundred thousand batteries is a few texts)."""
+    made: dict[Any, str] = {}
+    return [made[value] if value in made else made.setdefault(value, text(value))
+            for value in values]
 
 
 def _fast_losers(plan: StoragePlan) -> None:

@@ -149,16 +149,21 @@ def read_columns(path: str | Path, model: Any) -> Table[Any] | None:
     is bad (see the module docstring). The file's own problems (not UTF-8, a NUL byte, a
     column named twice) are raised as the row-by-row reading raises them."""
     shown = str(path)
-    reader = reader_of(csv_text(path), shown)
+    text = csv_text(path)
+    reader = reader_of(text, shown)
     if reader.fieldnames is None or not _readable(model):
         return None
     keys = [csv_unguard(name.strip()) for name in reader.fieldnames]
     if "id" not in keys:
         return None
-    try:
-        table = [row for row in reader.reader if row]  # blank lines are skipped, as row by row
-    except csv.Error:
-        return None
+    if '"' not in text and "\r" not in text:  # no quoting, one line end: a record a line
+        lines = text.split("\n")[reader.reader.line_num:]
+        table = [line.split(",") for line in lines if line]  # blank lines are skipped
+    else:
+        try:
+            table = [row for row in reader.reader if row]  # blank lines skipped, as row by row
+        except csv.Error:
+            return None
     if not table:
         return None
     try:

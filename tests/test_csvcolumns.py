@@ -45,7 +45,7 @@ GOOD = {
     "state_of_charge": ["50 %", "100 %", "15 %"], "owner": ["", "owner 5", "=cmd|x", "'=kept"],
     "bay": ["north", "heated"], "parasitic_draw": ["", "20 mA"],
     "loads": ["", "connected", "Disconnected "], "arrive": ["", "2026-11-01"],
-    "depart": ["", "2027-02-01"], "notes": ["", "keep dry", "'-note"],
+    "depart": ["", "2027-02-01"], "notes": ["", "keep dry", "'-note", "dry, cool"],
 }
 
 
@@ -74,7 +74,8 @@ def _files(draw, cells: dict[str, list[str] | None], required: tuple[str, ...] =
         lines.append(",".join(map(_quoted, row)))
         if draw(st.integers(0, 14)) == 0:
             lines.append("")  # a blank line
-    return "\n".join(lines) + "\n"
+    end = draw(st.sampled_from(["\n", "\r\n"]))  # read with the csv module or by lines
+    return end.join(lines) + end
 
 
 def _reference(path) -> list[InventoryRow] | list[str]:

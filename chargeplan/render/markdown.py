@@ -23,6 +23,10 @@ _SYNTAX = re.compile(r"([\\`*\[\]|~]|(?<![A-Za-z0-9])_|_(?![A-Za-z0-9]))")
 _BREAKS = re.compile(r"[\r\n\v\f\x1c-\x1e\x85\u2028\u2029]+")
 
 
+#: Any character that :func:`md_text` changes: a text without one is inert as it is.
+_PLAIN = re.compile(r"[\\`*\[\]|~_&<\r\n\v\f\x1c-\x1e\x85\u2028\u2029]")
+
+
 def md_text(value: object) -> str:
     """``value`` as inert Markdown text: ``<`` and ``&`` as entities (no tag or entity can
     start, so quotes need nothing; a ``>`` inside a line starts nothing and stays as written,
@@ -36,7 +40,10 @@ def md_text(value: object) -> str:
     >>> print(md_text("> quoted, bulk -> absorption"))
     \\> quoted, bulk -> absorption
     """
-    text = _BREAKS.sub(" ", "" if value is None else str(value))
+    text = "" if value is None else str(value)
+    if _PLAIN.search(text) is None and not text.lstrip(" ").startswith(">"):
+        return text  # nothing in it that Markdown reads (most names and ids)
+    text = _BREAKS.sub(" ", text)
     text = _SYNTAX.sub(r"\\\1", text.replace("&", "&amp;").replace("<", "&lt;"))
     stripped = text.lstrip(" ")
     if stripped.startswith(">"):  # a block quote only at the start of a line (CommonMark)

@@ -454,11 +454,11 @@ def storage(
         plan = plan_storage(site_file, rows, profiles=found, readings=measured,
                             inventory_file=str(inventory or site), site_path=str(site))
         if output is not None:
-            from chargeplan.render.storage_docs import storage_files
+            from chargeplan.render.storage_docs import storage_makers
             from chargeplan.render.write import write_all
 
-            files = storage_files(plan, found, previous_folder=output)
-            write_all(output, files, force=force)
+            files = storage_makers(plan, found, previous_folder=output)
+            write_all(output, files, force=force)  # a file written while the next is made
             typer.echo(f"wrote {output}/: {', '.join(files)}", err=True)
         typer.echo(plan.summary(), nl=False)
 

@@ -595,3 +595,36 @@ def test_fields_joined_are_the_row_csv_row_writes():
         assert ",".join(csv_fields(row)) + "\n" == out.getvalue()
 
     check()
+
+
+def test_makers_are_called_once_in_order_while_the_file_before_is_written(tmp_path):
+    # write_all takes a function in place of a file's contents: the command line makes a
+    # file while the file before it is written (render.write._create_each)
+    out = tmp_path / "out"
+    made: list[str] = []
+
+    def maker(name: str, data: str | bytes):
+        def make():
+            made.append(name)
+            return data
+        return make
+
+    writer.write_all(out, {name: maker(name, data) for name, data in NEW.items()})
+    assert made == list(NEW)
+    assert _contents(out) == _expected(NEW)
+
+
+@pytest.mark.parametrize("at", range(len(NEW)))
+def test_a_maker_that_fails_leaves_the_old_folder(tmp_path, at):
+    out = _old_folder(tmp_path)
+    files: dict[str, object] = dict(NEW)
+    name = list(NEW)[at]
+
+    def broken():
+        raise InputError("cannot be made", file="x", fix="none")
+
+    files[name] = broken
+    with pytest.raises(InputError, match="cannot be made"):
+        writer.write_all(out, files, force=True)
+    assert _contents(out) == _expected(OLD)
+    _no_leftovers(tmp_path)

@@ -10,7 +10,8 @@ distinct action texts.
 
 from __future__ import annotations
 
-from functools import cached_property, lru_cache
+from collections.abc import Callable
+from functools import cache, cached_property, lru_cache
 from types import SimpleNamespace
 from typing import Any
 
@@ -26,7 +27,8 @@ from chargeplan.render.columns import Column, by_key, csv_lines, csv_text, disti
 
 __all__ = ["SCHEDULE_COLUMNS", "FleetTexts", "action_column", "action_text", "batteries_csv",
            "bench_batteries", "calendar_events", "calendar_ics", "charge_columns", "charge_text",
-           "procedure", "schedule_csv", "setting_currents", "storage_files"]
+           "procedure", "schedule_csv", "setting_currents", "storage_files",
+           "storage_makers"]
 
 SCHEDULE_COLUMNS = ("date", "battery", "owner", "chemistry", "bay", "predicted_soc_pct",
                     "action", "freeze_risk", "charge_plan", "visit", "soc_after_pct",
@@ -519,6 +521,15 @@ def storage_files(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any 
                   now: Any = None) -> dict[str, str | bytes]:
     """Every file the storage command writes into its folder, by name. The calendar already
     in ``previous_folder`` is read first, so changed and cancelled rounds are signalled."""
+    return {name: make() for name, make in storage_makers(plan, profiles, previous_folder,
+                                                            now).items()}
+
+
+def storage_makers(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any = None,
+                   now: Any = None) -> dict[str, Callable[[], str | bytes]]:
+    """:func:`storage_files` as a function a file, each to be called once, in order (the
+    command line's write_all writes a file while the next is made). The calendar already in
+    ``previous_folder`` is read here, before anything is written."""
     from pathlib import Path
 
     from chargeplan.render.ics import read_previous
@@ -529,17 +540,19 @@ def storage_files(plan: StoragePlan, profiles: ProfileSet, previous_folder: Any 
     # made once and shared: the batteries' texts, the procedure's sections, and the sheets
     # (the round sheets and the readings template show the same lines)
     texts = FleetTexts(plan)
-    sections = procedure_sections(plan, profiles)
-    found = sheets(plan, texts)
+    sections = cache(lambda: procedure_sections(plan, profiles))
+    found = cache(lambda: sheets(plan, texts))
+    bench = bench_batteries(plan, texts)
 
     return {
-        "procedure.md": procedure(plan, profiles=profiles, sections=sections),
-        "procedure.html": procedure(plan, profiles=profiles, html=True, sections=sections),
-        "schedule.csv": schedule_csv(plan, texts),
-        "batteries.csv": batteries_csv(plan, texts),
-        "calendar.ics": calendar_ics(plan, previous, now),
-        **bench_batteries(plan, texts),
-        "rounds.md": round_sheets(plan, found=found),
-        "rounds.html": round_sheets(plan, html=True, found=found),
-        "readings.csv": readings_template(plan, found=found),
+        "procedure.md": lambda: procedure(plan, profiles=profiles, sections=sections()),
+        "procedure.html": lambda: procedure(plan, profiles=profiles, html=True,
+                                            sections=sections()),
+        "schedule.csv": lambda: schedule_csv(plan, texts),
+        "batteries.csv": lambda: batteries_csv(plan, texts),
+        "calendar.ics": lambda: calendar_ics(plan, previous, now),
+        **{name: (lambda text=text: text) for name, text in bench.items()},
+        "rounds.md": lambda: round_sheets(plan, found=found()),
+        "rounds.html": lambda: round_sheets(plan, html=True, found=found()),
+        "readings.csv": lambda: readings_template(plan, found=found()),
     }

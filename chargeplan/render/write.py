@@ -25,7 +25,7 @@ import os
 import secrets
 import signal
 import sys
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from pathlib import Path
 
 from chargeplan.errors import InputError
@@ -42,6 +42,8 @@ STAGING_MARK = ".chargeplan-staging"
 ASIDE_MARK = ".chargeplan-aside"
 _NEW, _OLD = "chargeplan-new", "chargeplan-old"
 _FILE_MODE, _FOLDER_MODE = 0o666, 0o777  # less the umask, which the kernel applies
+#: A file's contents, or a function that makes them (called while the file before is written).
+Content = str | bytes | Callable[[], str | bytes]
 
 
 def _create(path: Path, data: bytes) -> None:
@@ -174,11 +176,14 @@ def _say(line: str) -> None:
     print(f"note: {line}", file=sys.stderr)
 
 
-def write_all(folder: str | Path, files: dict[str, str | bytes], *, force: bool = False,
+def write_all(folder: str | Path, files: Mapping[str, Content], *, force: bool = False,
               say: Callable[[str], None] = _say) -> Path:
-    """Write ``files`` (name: contents) as the whole of ``folder``, replacing a folder this
-    tool wrote before only with ``force``. ``say`` gets a line for each leftover of an
-    interrupted earlier write that is restored or removed.
+    """Write ``files`` (name: contents, or a function that makes them) as the whole of
+    ``folder``, replacing a folder this tool wrote before only with ``force``. ``say`` gets a
+    line for each leftover of an interrupted earlier write that is restored or removed.
+
+    A maker is called once, in order, while the file before it is being written; if one
+    raises, nothing of the new folder is left and the old one stands.
 
     The bench and storage planners write their output folders through this function only.
     """
@@ -213,7 +218,7 @@ def write_all(folder: str | Path, files: dict[str, str | bytes], *, force: bool 
     return out
 
 
-def _check_names(out: Path, files: dict[str, str | bytes]) -> None:
+def _check_names(out: Path, files: Mapping[str, Content]) -> None:
     for name in files:
         if not name or "/" in name or os.sep in name or name in (".", "..") or \
                 name.startswith(".chargeplan-"):
@@ -221,7 +226,7 @@ def _check_names(out: Path, files: dict[str, str | bytes]) -> None:
                              fix="report this with the input that caused it")
 
 
-def _owned_entries(out: Path, files: dict[str, str | bytes]) -> list[str]:
+def _owned_entries(out: Path, files: Mapping[str, Content]) -> list[str]:
     """The folder's entries (all written by this tool), or an InputError naming one that
     was not: the manifest lists what the tool wrote, and a folder from before the manifest
     may hold only the names this write would write."""
@@ -249,7 +254,7 @@ def _owned_entries(out: Path, files: dict[str, str | bytes]) -> list[str]:
     return [n for n in names if n != MANIFEST]
 
 
-def _stage(out: Path, files: dict[str, str | bytes]) -> Path:
+def _stage(out: Path, files: Mapping[str, Content]) -> Path:
     """A complete, synced copy of the new folder beside ``out``, marked as staging; removed
     again on any failure or interruption."""
     parent = out.parent if str(out.parent) else Path(".")
@@ -262,8 +267,7 @@ def _stage(out: Path, files: dict[str, str | bytes]) -> Path:
             continue
     try:
         _create(staging / STAGING_MARK, staging.name.encode())
-        for name, data in files.items():
-            _create(staging / name, data.encode("utf-8") if isinstance(data, str) else data)
+        _create_each(staging, files)
         _create(staging / MANIFEST, "".join(f"{name}\n" for name in files).encode("utf-8"))
         _sync_folder(staging)
     except BaseException:
@@ -271,6 +275,46 @@ def _stage(out: Path, files: dict[str, str | bytes]) -> Path:
             _remove_marked(staging, STAGING_MARK)
         raise
     return staging
+
+
+def _create_each(staging: Path, files: Mapping[str, Content]) -> None:
+    """Each file made (a maker is called here, in the calling thread) and handed to one
+    writer thread, so that writing a file (the kernel's work, outside the interpreter's
+    lock) overlaps making the next.
+
+    Every write has ended before this returns or raises. A failed write stops the writes
+    after it, and its error is raised; a maker's error or a signal stops the writes not yet
+    begun, waits for the one under way (signals held back meanwhile), and is raised."""
+    from concurrent.futures import Future, ThreadPoolExecutor
+
+    stopped: list[bool] = []
+
+    def write(path: Path, data: bytes) -> None:
+        if stopped:  # a write before failed, or the making did: the folder is abandoned
+            return
+        try:
+            _create(path, data)
+        except BaseException:
+            stopped.append(True)
+            raise
+
+    writer = ThreadPoolExecutor(max_workers=1, thread_name_prefix="chargeplan-write")
+    pending: list[Future[None]] = []
+    try:
+        for name, content in files.items():
+            data = content() if callable(content) else content
+            pending.append(writer.submit(write, staging / name,
+                                         data.encode("utf-8") if isinstance(data, str) else data))
+            if pending[0].done():  # a failed write (a full disk) stops the making early
+                pending.pop(0).result()
+        for done in pending:
+            done.result()
+    except BaseException:
+        stopped.append(True)
+        with _signals_deferred():
+            writer.shutdown(wait=True, cancel_futures=True)
+        raise
+    writer.shutdown(wait=True)
 
 
 def _exchange(first: Path, second: Path) -> bool:

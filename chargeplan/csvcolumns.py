@@ -27,6 +27,7 @@ import inspect
 import types
 import typing
 from collections.abc import Callable, Iterator, Sequence
+from operator import itemgetter
 from pathlib import Path
 from typing import Any, Generic, TypeVar, overload
 
@@ -114,10 +115,10 @@ class _Unsure(Exception):
     """This reading cannot give the rows as pydantic would: read the file row by row."""
 
 
-def _parsed_of(annotation: Any, metadata: list[Any]) -> Any:
-    """The field's reader, where its type is a Parsed one (or that, or None), else None."""
+def _parsed_of(annotation: Any, metadata: list[Any]) -> Parsed | None:
+    """The field's Parsed, where its type is a Parsed one (or that, or None), else None."""
     if len(metadata) == 1 and isinstance(metadata[0], Parsed):
-        return metadata[0].parse
+        return metadata[0]
     if metadata:
         return None
     args = typing.get_args(annotation)
@@ -126,7 +127,7 @@ def _parsed_of(annotation: Any, metadata: list[Any]) -> Any:
             and len(members) == 1 and typing.get_origin(members[0]) is typing.Annotated:
         inner = typing.get_args(members[0])
         if len(inner) == 2 and isinstance(inner[1], Parsed):
-            return inner[1].parse
+            return inner[1]
     return None
 
 
@@ -188,12 +189,13 @@ def _field_names(keys: list[str], model: Any) -> list[str]:
 def _texts(column: list[str]) -> dict[str, str]:
     """Each distinct cell of a column and its text as the row-by-row reading takes it
     (stripped and unguarded: "" where empty)."""
-    texts = {}
-    for raw in set(column):
-        if "\n" in raw or len(raw) > MAX_CELL_CHARS:  # a quote not closed, an over-long cell
-            raise _Unsure
-        text = raw.strip()
-        texts[raw] = csv_unguard(text) if "'" in text else text
+    cells = list(set(column))
+    if max(map(len, cells), default=0) > MAX_CELL_CHARS or "\n" in "".join(cells):
+        raise _Unsure  # an over-long cell, a quote not closed
+    texts = dict(zip(cells, map(str.strip, cells), strict=True))
+    for raw, text in texts.items():
+        if "'" in text:
+            texts[raw] = csv_unguard(text)
     return texts
 
 
@@ -206,7 +208,7 @@ def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
     names = _field_names(keys, model)
     fields = model.model_fields
     validate = model.__pydantic_validator__.validate_python
-    columns = [[row[j] for row in table] for j in range(width)]
+    columns = [list(map(itemgetter(j), table)) for j in range(width)]
     texts = [_texts(column) for column in columns]
     id_texts = list(map(texts[keys.index("id")].__getitem__, columns[keys.index("id")]))
     if "" in id_texts or len(set(id_texts)) != len(id_texts):  # reported row by row
@@ -218,14 +220,23 @@ def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
     for j, (key, name) in enumerate(zip(keys, names, strict=True)):
         info, read = fields[name], readers[j]
         value_of: dict[str, Any] = {}
+        if read is not None and read.parse_many is not None:  # a whole column at once
+            given = [raw for raw, text in texts[j].items() if text]
+            try:
+                value_of.update(zip(given, read.parse_many([texts[j][raw] for raw in given]),
+                                    strict=True))
+            except (ValueError, AssertionError):
+                raise _Unsure from None
         for raw, text in texts[j].items():
+            if raw in value_of:
+                continue
             if not text:
                 if info.is_required():
                     raise _Unsure
                 value_of[raw] = info.default
             elif read is not None:
                 try:
-                    value_of[raw] = read(text)
+                    value_of[raw] = read.parse(text)
                 except (ValueError, AssertionError):
                     raise _Unsure from None
             else:  # validated by pydantic itself, with the first row's other cells

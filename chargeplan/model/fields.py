@@ -74,6 +74,9 @@ class Parsed:
 
     parse: Callable[[Any], Any]
     json_schema: dict[str, Any]
+    #: ``parse`` of each of many texts at once, where the field has a quicker way to read a
+    #: column (chargeplan.csvcolumns): the same values, or the first one's error.
+    parse_many: Callable[[list[str]], list[Any]] | None = None
 
     def __get_pydantic_core_schema__(self, source: Any, handler: Any) -> Any:
         return core_schema.no_info_plain_validator_function(self.parse)
@@ -299,6 +302,8 @@ _CONTROL_BUT_LINES = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
 
 
 def _text_reader(*, identifier: bool, empty: bool, limit: int) -> Callable[[object], str]:
+    """A text field's reader; its ``many`` attribute reads a list of texts at once (the
+    same values, or the first bad text's error)."""
     control = _CONTROL_BUT_LINES if empty else _CONTROL
 
     def read(raw: object) -> str:
@@ -320,6 +325,18 @@ def _text_reader(*, identifier: bool, empty: bool, limit: int) -> Callable[[obje
                 raise ValueError(problem)
         return value
 
+    def many(raws: list[str]) -> list[str]:
+        # the checks of read, on all the texts joined by a tab (no control character, and
+        # not one either text reader refuses); any doubt: each text read on its own
+        if all(type(raw) is str for raw in raws):
+            values = list(map(str.strip, raws))
+            joined = "\t".join(values)
+            if (joined.isascii() and control.search(joined) is None
+                    and max(map(len, values), default=0) <= limit and (empty or all(values))):
+                return values
+        return [read(raw) for raw in raws]
+
+    read.many = many  # type: ignore[attr-defined]
     return read
 
 
@@ -329,14 +346,17 @@ free_text = _text_reader(identifier=False, empty=True, limit=FREE_TEXT_MAX)
 
 #: A name or other text a person reads: no control or invisible characters.
 Text = Annotated[str, Parsed(_remembered(_text),
-                             {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
+                             {"type": "string", "minLength": 1, "maxLength": TEXT_MAX},
+                             _text.many)]  # type: ignore[attr-defined]
+_ident = _text_reader(identifier=True, empty=False, limit=TEXT_MAX)
 #: An id, a bay or a channel: Text that also refuses lookalikes of other text.
-Ident = Annotated[str, Parsed(_remembered(_text_reader(identifier=True, empty=False,
-                                                       limit=TEXT_MAX)),
-                              {"type": "string", "minLength": 1, "maxLength": TEXT_MAX})]
+Ident = Annotated[str, Parsed(_remembered(_ident),
+                              {"type": "string", "minLength": 1, "maxLength": TEXT_MAX},
+                              _ident.many)]  # type: ignore[attr-defined]
 #: Free text that may be empty (an owner, notes): no control or invisible characters.
 FreeText = Annotated[str, Parsed(_remembered(free_text),
-                                 {"type": "string", "maxLength": FREE_TEXT_MAX})]
+                                 {"type": "string", "maxLength": FREE_TEXT_MAX},
+                                 free_text.many)]  # type: ignore[attr-defined]
 
 
 @dataclass(frozen=True, slots=True)

@@ -165,9 +165,11 @@ def _arrays(site_file: SiteFile, rows: Table[InventoryRow], columns: dict[str, l
     numbers: dict[int, int] = {}
     kind_profile = np.array([numbers.setdefault(id(p), len(numbers)) for p in kind_profiles],
                             dtype=np.intp)
+    each = kind.tolist()
+    loads = _objects(columns["loads"])
     return Fleet(
-        rows=rows, profiles=[kind_profiles[k] for k in kind.tolist()],
-        chemistry=[profile_ids[k] for k in kind.tolist()], lead=lead,
+        rows=rows, profiles=list(map(kind_profiles.__getitem__, each)),
+        chemistry=list(map(profile_ids.__getitem__, each)), lead=lead,
         lfp=np.array([p.rest_voltage.flat_band is not None for p in kind_profiles],
                      dtype=bool)[kind],
         cells=cells,
@@ -177,12 +179,11 @@ def _arrays(site_file: SiteFile, rows: Table[InventoryRow], columns: dict[str, l
         intake_soc=_intake_soc(columns, kind, kind_profiles, kind_cells),
         storage_soc=kind_storage[kind], threshold=kind_threshold[kind],
         storage_voltage_v=kind_storage_v[kind] * cells,
-        draw_pct_day=np.array([d or 0.0 for d in columns["parasitic_draw_a"]],
-                              dtype=float) * 24.0 / cap * 100.0,
+        draw_pct_day=np.nan_to_num(np.array(columns["parasitic_draw_a"], dtype=float),
+                                   nan=0.0) * 24.0 / cap * 100.0,  # None (no load): NaN, 0
         connected=np.fromiter(map(load_connected, columns["loads"], columns["parasitic_draw_a"]),
                               dtype=bool, count=len(rows)),
-        may_disconnect=np.array([loads != "connected" for loads in columns["loads"]],
-                                dtype=bool),
+        may_disconnect=np.asarray(loads != "connected", dtype=bool),
         charge_min_c=np.where(lead, low_c, np.maximum(low_c, 0.0)),  # never lithium below 0
         charge_max_c=kind_high_c[kind], profile_index=_in_order(kind_profile[kind]),
     )
@@ -225,8 +226,17 @@ def _intake_soc(columns: dict[str, list[Any]], kind: np.ndarray,
     return soc
 
 
+def _objects(column: list[Any]) -> np.ndarray:
+    """A column as a numpy array of its objects (texts, None), for comparisons at once."""
+    out = np.empty(len(column), dtype=object)
+    out[:] = column
+    return out
+
+
 def _days(site_file: SiteFile, column: list[dt.date | None], default: int) -> np.ndarray:
     """Each date as a day of the season (0 is its first day), ``default`` where none is given."""
     start = site_file.site.start
-    return np.array([default if day is None else (day - start).days for day in column],
-                    dtype=int)
+    given = np.flatnonzero(_objects(column) != None)  # noqa: E711  (elementwise, numpy)
+    out = np.full(len(column), default, dtype=int)
+    out[given] = [(column[i] - start).days for i in given.tolist()]
+    return out

@@ -31,8 +31,6 @@ from operator import itemgetter
 from pathlib import Path
 from typing import Any, Generic, TypeVar, overload
 
-from pydantic import ValidationError
-
 from chargeplan.csvfile import MAX_CELL_CHARS, csv_text, csv_unguard, reader_of
 from chargeplan.model.fields import Parsed
 
@@ -193,16 +191,18 @@ def _texts(column: list[str]) -> dict[str, str]:
     if max(map(len, cells), default=0) > MAX_CELL_CHARS or "\n" in "".join(cells):
         raise _Unsure  # an over-long cell, a quote not closed
     texts = dict(zip(cells, map(str.strip, cells), strict=True))
-    for raw, text in texts.items():
-        if "'" in text:
-            texts[raw] = csv_unguard(text)
+    if "'" in "".join(cells):  # a guarded cell, perhaps: take its apostrophe off
+        for raw, text in texts.items():
+            if "'" in text:
+                texts[raw] = csv_unguard(text)
     return texts
 
 
 def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
     width = len(keys)
-    if any(len(row) != width for row in table):
-        if any(len(row) > width for row in table):
+    widths = set(map(len, table))
+    if widths != {width}:
+        if max(widths) > width:
             raise _Unsure
         table = [row + [""] * (width - len(row)) for row in table]  # a short row: empty cells
     names = _field_names(keys, model)
@@ -219,31 +219,24 @@ def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
     values: dict[str, list[Any]] = {}
     for j, (key, name) in enumerate(zip(keys, names, strict=True)):
         info, read = fields[name], readers[j]
+        raws, given = list(texts[j]), list(texts[j].values())
         value_of: dict[str, Any] = {}
-        if read is not None and read.parse_many is not None:  # a whole column at once
-            given = [raw for raw, text in texts[j].items() if text]
-            try:
-                value_of.update(zip(given, read.parse_many([texts[j][raw] for raw in given]),
-                                    strict=True))
-            except (ValueError, AssertionError):
-                raise _Unsure from None
-        for raw, text in texts[j].items():
-            if raw in value_of:
-                continue
-            if not text:
-                if info.is_required():
-                    raise _Unsure
-                value_of[raw] = info.default
+        if "" in given:  # empty cells: the field's default, where it has one
+            if info.is_required():
+                raise _Unsure
+            value_of = dict.fromkeys((raw for raw, text in zip(raws, given, strict=True)
+                                      if not text), info.default)
+            raws, given = [r for r in raws if r not in value_of], [t for t in given if t]
+        try:
+            if read is not None and read.parse_many is not None:  # a whole column at once
+                value_of.update(zip(raws, read.parse_many(given), strict=True))
             elif read is not None:
-                try:
-                    value_of[raw] = read.parse(text)
-                except (ValueError, AssertionError):
-                    raise _Unsure from None
+                value_of.update(zip(raws, map(read.parse, given), strict=True))
             else:  # validated by pydantic itself, with the first row's other cells
-                try:
-                    value_of[raw] = getattr(validate({**first, key: text}), name)
-                except ValidationError:
-                    raise _Unsure from None
+                value_of.update((raw, getattr(validate({**first, key: text}), name))
+                                for raw, text in zip(raws, given, strict=True))
+        except (ValueError, AssertionError):  # (a ValidationError is a ValueError)
+            raise _Unsure from None
         values[name] = list(map(value_of.__getitem__, columns[j]))
     count = len(table)
     for name, info in fields.items():

@@ -328,7 +328,7 @@ def _text_reader(*, identifier: bool, empty: bool, limit: int) -> Callable[[obje
     def many(raws: list[str]) -> list[str]:
         # the checks of read, on all the texts joined by a tab (no control character, and
         # not one either text reader refuses); any doubt: each text read on its own
-        if all(type(raw) is str for raw in raws):
+        if set(map(type, raws)) <= {str}:
             values = list(map(str.strip, raws))
             joined = "\t".join(values)
             if (joined.isascii() and control.search(joined) is None

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from functools import cached_property
 from itertools import repeat
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -215,8 +215,9 @@ class ReadingFlag:
     text: str
 
 
-@dataclass(frozen=True)
-class Note:
+class Note(NamedTuple):
+    """What staff must know about one battery (a tuple: a fleet may have a note a battery)."""
+
     battery: int
     code: str
     text: str
@@ -954,9 +955,9 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
 
 
 def _kind_codes(f: Fleet) -> np.ndarray:
-    """One integer per distinct (chemistry, cells) of the fleet."""
-    _names, chem = np.unique(np.array(f.chemistry), return_inverse=True)
-    pair = chem.ravel().astype(np.int64) * (int(f.cells.max(initial=0)) + 1) + f.cells
+    """One integer per distinct (chemistry, cells) of the fleet (a chemistry is a profile:
+    its number is the fleet's profile_index)."""
+    pair = f.profile_index.astype(np.int64) * (int(f.cells.max(initial=0)) + 1) + f.cells
     _pairs, first, code = np.unique(pair, return_index=True, return_inverse=True)
     rank = np.empty(len(first), dtype=np.int64)
     rank[np.argsort(first)] = np.arange(len(first))  # numbered in order of appearance

@@ -27,7 +27,7 @@ import inspect
 import types
 import typing
 from collections.abc import Callable, Iterator, Sequence
-from operator import itemgetter
+from operator import itemgetter, methodcaller
 from pathlib import Path
 from typing import Any, Generic, TypeVar, overload
 
@@ -155,20 +155,35 @@ def read_columns(path: str | Path, model: Any) -> Table[Any] | None:
     keys = [csv_unguard(name.strip()) for name in reader.fieldnames]
     if "id" not in keys:
         return None
-    if '"' not in text and "\r" not in text:  # no quoting, one line end: a record a line
-        lines = text.split("\n")[reader.reader.line_num:]
-        table = [line.split(",") for line in lines if line]  # blank lines are skipped
-    else:
-        try:
-            table = [row for row in reader.reader if row]  # blank lines skipped, as row by row
-        except csv.Error:
-            return None
-    if not table:
-        return None
     try:
-        return _table(keys, table, model)
-    except _Unsure:
+        columns = _split(text, reader, len(keys))
+        return _table(keys, columns, model) if columns[0] else None
+    except (_Unsure, csv.Error):
         return None
+
+
+def _split(text: str, reader: Any, width: int) -> list[list[str]]:
+    """The cells below the header, column by column (blank lines skipped, a short row's
+    missing cells empty). A text without quotes and with one line end holds a record a line:
+    split at once, without a list a row; any other is read by the csv module."""
+    if '"' not in text and "\r" not in text:
+        lines = text.split("\n")[reader.reader.line_num:]
+        if "" in lines:  # blank lines are skipped
+            lines = [line for line in lines if line]
+        if not lines:
+            return [[] for _ in range(width)]
+        if set(map(methodcaller("count", ","), lines)) == {width - 1}:
+            flat = ",".join(lines).split(",")
+            return [flat[j::width] for j in range(width)]
+        table = [line.split(",") for line in lines]
+    else:
+        table = [row for row in reader.reader if row]  # blank lines skipped, as row by row
+    widths = set(map(len, table))
+    if widths - {width}:
+        if max(widths) > width:
+            raise _Unsure
+        table = [row + [""] * (width - len(row)) for row in table]  # a short row: empty cells
+    return [list(map(itemgetter(j), table)) for j in range(width)]
 
 
 def _field_names(keys: list[str], model: Any) -> list[str]:
@@ -198,24 +213,17 @@ def _texts(column: list[str]) -> dict[str, str]:
     return texts
 
 
-def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
-    width = len(keys)
-    widths = set(map(len, table))
-    if widths != {width}:
-        if max(widths) > width:
-            raise _Unsure
-        table = [row + [""] * (width - len(row)) for row in table]  # a short row: empty cells
+def _table(keys: list[str], columns: list[list[str]], model: Any) -> Table[Any]:
     names = _field_names(keys, model)
     fields = model.model_fields
     validate = model.__pydantic_validator__.validate_python
-    columns = [list(map(itemgetter(j), table)) for j in range(width)]
     texts = [_texts(column) for column in columns]
     id_texts = list(map(texts[keys.index("id")].__getitem__, columns[keys.index("id")]))
     if "" in id_texts or len(set(id_texts)) != len(id_texts):  # reported row by row
         raise _Unsure
     readers = [_parsed_of(fields[name].annotation, fields[name].metadata) for name in names]
-    first = {key: texts[j][table[0][j]] for j, key in enumerate(keys)
-             if texts[j][table[0][j]] and readers[j] is not None}
+    first = {key: texts[j][columns[j][0]] for j, key in enumerate(keys)
+             if texts[j][columns[j][0]] and readers[j] is not None}
     values: dict[str, list[Any]] = {}
     for j, (key, name) in enumerate(zip(keys, names, strict=True)):
         info, read = fields[name], readers[j]
@@ -238,7 +246,7 @@ def _table(keys: list[str], table: list[list[str]], model: Any) -> Table[Any]:
         except (ValueError, AssertionError):  # (a ValidationError is a ValueError)
             raise _Unsure from None
         values[name] = list(map(value_of.__getitem__, columns[j]))
-    count = len(table)
+    count = len(columns[0])
     for name, info in fields.items():
         if name not in values:
             if info.is_required():

@@ -1,7 +1,8 @@
 """Storage intake benchmark: reading an inventory CSV of N batteries, and resolving it.
 
 Run on its own: ``python tests/benchmarks/bench_inventory.py [--size 100000] [--runs 7]``.
-Times ``read_inventory`` (the CSV read into validated rows) and ``resolve_fleet`` (the rows
+Times ``read_inventory`` (the CSV read into a validated table, column by column:
+chargeplan/csvcolumns.py) and ``resolve_fleet`` (the rows
 resolved into the planner's per-battery arrays, the first step of ``plan_storage``) on the
 inventory bench_storage.py's ``--end-to-end`` writes, best of ``--runs`` in one process:
 once with Python's own garbage-collector thresholds (the library in someone's program), once

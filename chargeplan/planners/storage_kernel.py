@@ -200,7 +200,8 @@ class _State:
         draw = self.s.draw_pct_day[idx] * self.connected[idx]
         drawn = np.flatnonzero(draw)
         loss[drawn] += draw[drawn, None] * np.arange(1, end - d + 1)[None, :]
-        return np.maximum(soc[:, None] - loss, 0.0)
+        np.subtract(soc[:, None], loss, out=loss)  # (loss is a copy: by_key taken by rows)
+        return np.maximum(loss, 0.0, out=loss)
 
     def record(self, **columns: np.ndarray) -> None:
         for name in _COLUMNS:
@@ -295,9 +296,11 @@ class _Forecast:
         self.soc = soc[self.lead].copy()
         self.pred = st.predicted(idx[self.lead], self.soc, d, end)
         self.cold = self._cold(self.lead, self.pred)
+        self.risk = self.cold.any(axis=1)  # per lead-acid row: any day in its freezing range
 
     def _cold(self, rows: np.ndarray, pred: np.ndarray) -> np.ndarray:
-        return pred < self.st.safe_soc[self.st.bay[self.idx[rows]], self.d:self.end]
+        return pred < np.take(self.st.safe_soc[:, self.d:self.end], self.st.bay[self.idx[rows]],
+                              axis=0)
 
     def update(self, rows: np.ndarray, soc: np.ndarray | None = None) -> None:
         """Forecast again the visit's rows ``rows`` (positions in ``idx``), from ``soc``
@@ -312,11 +315,12 @@ class _Forecast:
         self.pred[at] = self.st.predicted(self.idx[self.lead[at]], self.soc[at], self.d,
                                           self.end)
         self.cold[at] = self._cold(self.lead[at], self.pred[at])
+        self.risk[at] = self.cold[at].any(axis=1)
 
     def at_risk(self) -> np.ndarray:
         """Per visit: its forecast reaches its freezing range before the next round."""
         out = np.zeros(len(self.idx), dtype=bool)
-        out[self.lead] = self.cold.any(axis=1)
+        out[self.lead] = self.risk
         return out
 
     def first_cold_day(self) -> np.ndarray:
@@ -340,18 +344,15 @@ class _Forecast:
         position[self.lead] = np.arange(len(self.lead))
         bays = st.bay[self.idx]
         group = bays.astype(np.int64) * (end - d) + (until - d)
-        found, which = np.unique(group, return_inverse=True)
-        order = np.argsort(which, kind="stable")
-        bounds = np.searchsorted(which[order], np.arange(len(found) + 1))
-        for g, code in enumerate(found.tolist()):
+        for code in np.flatnonzero(np.bincount(group)).tolist():  # a few: bays, a day or two
             bay, last = divmod(code, end - d)
             lows = st.s.bay_min[bay, d:d + last + 1]
             days = np.flatnonzero(np.r_[lows[:-1] != lows[1:], True])  # each stretch's last
-            rows = order[bounds[g]:bounds[g + 1]]
+            rows = np.flatnonzero(group == code)
             low_c[rows] = lows[days].min()
             lead = rows[position[rows] >= 0]
             if lead.size:
-                pred = self.pred[position[lead][:, None], days[None, :]]
+                pred = np.take(self.pred[:, days], position[lead], axis=0)
                 freeze_c[lead] = freezing_point_at(pred.min(axis=1))
                 margin[lead] = (lows[days][None, :] - freezing_point_at(pred)).min(axis=1)
         return freeze_c, low_c, margin

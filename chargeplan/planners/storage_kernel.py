@@ -498,7 +498,8 @@ def _walk_days(st: _State, d: int, stop: int, soc_daily: np.ndarray,
         days = np.arange(d, stop)[:, None]
         present = (s.arrive <= days) & (s.depart >= days)
         walk[1:][~present] = 0.0
-    np.cumsum(walk, axis=0, out=walk)
+    for k in range(1, len(walk)):  # the running sum, a day at a time (numpy's cumsum along
+        np.add(walk[k - 1], walk[k], out=walk[k])  # the first axis is 14x slower, same sums)
     np.maximum(walk, 0.0, out=walk)
     st.soc = walk[-1].copy()
     if not whole:

@@ -897,7 +897,7 @@ def _texts_of(text: Callable[[Any], str], values: list[Any]) -> list[str]:
 def _fast_losers(plan: StoragePlan) -> None:
     """Batteries that fall below their threshold within one round even when charged full."""
     f, v = plan.fleet, plan.visits
-    order = np.lexsort((v.day, v.battery))
+    order = np.argsort(v.battery, kind="stable")  # the visits are by day: now by battery, day
     b, before, after = v.battery[order], v.soc_before[order], v.soc_after[order]
     kind = v.kind[order]
     same = b[1:] == b[:-1]

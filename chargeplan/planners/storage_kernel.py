@@ -129,7 +129,8 @@ class Season:
 
 @dataclass
 class Visits:
-    """One entry per visit, as columns (all the same length)."""
+    """One entry per visit, as columns (all the same length), in order of day, then battery
+    (run_season sorts them so; a battery visited twice on a day keeps its visits in order)."""
 
     day: np.ndarray
     battery: np.ndarray

@@ -66,9 +66,10 @@ def csv_unguard(text: str) -> str:
 
 
 _FORMULA_CHARS = "".join(_FORMULA_START)
-#: A cell that may need a guard, in cells joined by NUL characters (at the start of the
-#: joined text, or after a NUL): a formula's first character, or an apostrophe before one.
-_GUARD_AT = re.compile("(?:^|\x00)'*[" + re.escape(_FORMULA_CHARS) + "]")
+#: A cell that may need a guard, in cells each after a NUL character: a formula's first
+#: character, or an apostrophe before one (a literal first character: the regular expression
+#: engine skips to each NUL, where ``^|\x00`` would try every position).
+_GUARD_AT = re.compile("\x00'*[" + re.escape(_FORMULA_CHARS) + "]")
 _FORMULA_SET = frozenset(_FORMULA_CHARS)
 
 
@@ -122,7 +123,7 @@ def csv_fields(cells: Iterable[object]) -> list[str]:
     fields = list(cells)
     try:  # all text: one look at the texts joined tells whether any cell needs a guard
         joined = "\x00".join(fields)
-        if _GUARD_AT.search(joined):
+        if _GUARD_AT.search("\x00" + joined):
             raise TypeError
     except TypeError:
         fields = _guarded(fields)

@@ -919,15 +919,17 @@ def _settings(plan: StoragePlan, profile_set: ProfileSet) -> None:
     """The charger settings of every charge and the maintainer's hold of every check."""
     f, v = plan.fleet, plan.visits
     charge = np.flatnonzero(np.isin(v.act, CHARGES))
-    temp = np.round(plan.bay_mean[v.where, v.day]).astype(int)
-    soc = np.where(np.isnan(v.soc_before), -1, v.soc_before // 5 * 5).astype(int)
+    # per charge: the bay's mean that day, and the charge before it in 5 % steps (-1 unknown)
+    temp = np.round(plan.bay_mean[v.where[charge], v.day[charge]]).astype(int)
+    before = v.soc_before[charge]
+    soc = np.where(np.isnan(before), -1, before // 5 * 5).astype(int)
     kind = _kind_codes(f)
-    codes = _pack(kind[v.battery[charge]], soc[charge], temp[charge],
-                  (v.act[charge] == Act.TO_STORAGE).astype(int))
+    storage = v.act[charge] == Act.TO_STORAGE
+    codes = _pack(kind[v.battery[charge]], soc, temp, storage.astype(int))
     unique, which = np.unique(codes, return_inverse=True)
-    first = charge[_firsts(codes, unique)]
-    keys = [(f.chemistry[int(v.battery[k])], int(f.cells[int(v.battery[k])]), int(soc[k]),
-             int(temp[k]), bool(v.act[k] == Act.TO_STORAGE)) for k in first]
+    first = _firsts(codes, unique)  # positions in charge
+    keys = [(f.chemistry[b], int(f.cells[b]), int(soc[k]), int(temp[k]), bool(storage[k]))
+            for b, k in zip(v.battery[charge[first]].tolist(), first.tolist(), strict=True)]
     plan.settings = charge_settings(keys, profile_set)
     plan.visit_setting = np.full(len(v), -1)
     plan.visit_setting[charge] = which

@@ -17,7 +17,8 @@ one once. How each field is read:
   each distinct cell is validated by pydantic itself, in the file's first row;
 - the checks across fields: the model's ``row_checks`` (:class:`chargeplan.model.rows.
   BatteryRow`), on each distinct set of the values they read. The model may have no other
-  model validator, no default factory, no private attributes and no post-init.
+  model validator, no default factory or default that is no key (rows share a default), no
+  private attributes and no post-init.
 """
 
 from __future__ import annotations
@@ -26,7 +27,7 @@ import csv
 import inspect
 import types
 import typing
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Hashable, Iterator, Sequence
 from operator import itemgetter, methodcaller
 from pathlib import Path
 from typing import Any, Generic, TypeVar, overload
@@ -137,7 +138,8 @@ def _readable(model: Any) -> bool:
             and model.__pydantic_post_init__ is None and not decorators.root_validators
             and not decorators.validators and afters == ["_row_checks"]
             and all(d.info.mode == "after" for d in decorators.model_validators.values())
-            and all(f.default_factory is None for f in model.model_fields.values())
+            and all(f.default_factory is None and isinstance(f.default, Hashable)
+                    for f in model.model_fields.values())  # a default rows may share
             and all(len(inspect.signature(d.func).parameters) == 1
                     for d in decorators.field_validators.values()))
 

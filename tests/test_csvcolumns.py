@@ -226,3 +226,23 @@ def test_a_text_column_read_at_once_is_each_text_read(texts):
         except ValueError as error:
             got = str(error)
         assert got == want, kind
+
+
+def test_a_model_it_cannot_read_as_pydantic_does_is_left_to_the_row_reading(tmp_path):
+    # a before-validator (the extra columns carried into notes), a default rows would share
+    from pydantic import Field
+
+    from chargeplan.model.rows import BatteryRow
+
+    class Listed(BatteryRow):  # (its checks across fields are BatteryRow's)
+        tags: list[str] = Field(default=[])
+
+    path = tmp_path / "inventory.csv"
+    path.write_text("id,chemistry,nominal_voltage,capacity,state_of_charge,bay\n"
+                    "A,agm,12 V,60 Ah,50 %,north\n", encoding="utf-8")
+    assert read_columns(path, InventoryRow) is not None
+    assert read_columns(path, InventoryCsvRow) is None
+    path.write_text("id,chemistry,nominal_voltage,capacity,state_of_charge\n"
+                    "A,agm,12 V,60 Ah,50 %\n", encoding="utf-8")
+    assert read_columns(path, BatteryRow) is not None
+    assert read_columns(path, Listed) is None

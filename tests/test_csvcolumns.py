@@ -246,3 +246,39 @@ def test_a_model_it_cannot_read_as_pydantic_does_is_left_to_the_row_reading(tmp_
                     "A,agm,12 V,60 Ah,50 %\n", encoding="utf-8")
     assert read_columns(path, BatteryRow) is not None
     assert read_columns(path, Listed) is None
+
+
+def test_the_planner_and_its_files_read_columns_and_make_no_row(tmp_path, monkeypatch):
+    # at 100,000 batteries a row's model costs more than its reading: the planner and every
+    # document read the inventory's columns (Table.column), and make no row model
+    import datetime as dt
+
+    from chargeplan.csvcolumns import Table
+    from chargeplan.planners.storage import plan_storage, read_readings
+    from chargeplan.profiles import ProfileSet
+    from chargeplan.render.storage_docs import storage_files
+    from tests.test_storage import _site
+
+    path = tmp_path / "inventory.csv"
+    path.write_text(
+        "id,owner,chemistry,nominal_voltage,cells_in_series,capacity,state_of_charge,"
+        "rest_voltage,bay,parasitic_draw,loads,arrive,depart,notes\n"
+        "F-1,dock 1,flooded,12 V,,80 Ah,40 %,,A,110 mA,,,,keep upright\n"
+        "F-2,dock 2,agm,12 V,,60 Ah,,12.4 V,A,,connected,2026-11-10,,\n"
+        "F-3,dock 2,lifepo4,12 V,,100 Ah,20 %,,A,20 mA,disconnected,,2026-12-20,\n"
+        "F-4,,nmc,,3,10 Ah,,-1.5 V,A,,,,,reversed?\n", encoding="utf-8")
+    table = read_inventory(path)
+    assert isinstance(table, Table)
+    made = []
+    monkeypatch.setattr(table, "_make", lambda i: made.append(i) or pytest.fail(f"row {i}"))
+    readings_path = tmp_path / "readings.csv"
+    readings_path.write_text("date,battery,rest_voltage,state_of_charge\n"
+                             "2026-11-20,F-1,12.1 V,\n2026-11-20,F-3,,35 %\n", encoding="utf-8")
+    plan = plan_storage(_site([], low="-12 degC", round_days=14, policy="maintainer"), table,
+                        profiles=ProfileSet(use_environment=False),
+                        readings=read_readings(readings_path))
+    assert plan.ids == ["F-1", "F-2", "F-3", "F-4"] and plan.fleet.arrive[1] == (
+        dt.date(2026, 11, 10) - dt.date(2026, 11, 1)).days
+    files = storage_files(plan, ProfileSet(use_environment=False))
+    assert "F-4" in files["procedure.md"] and "keep upright" in files["rounds.md"]
+    assert made == []

@@ -599,14 +599,14 @@ def voltage_refusal(fleet: Fleet, i: int, rest_voltage_v: float,
     from chargeplan.errors import PlanRefused
     from chargeplan.model.battery import State
 
-    row = fleet.rows[i]
-    data = battery_file(fleet.chemistry[i], int(fleet.cells[i]), row.capacity_ah, 20.0,
-                        name=row.id)
+    nominal_v = fleet.rows.column("nominal_voltage_v")[i]  # (columns: no row model is made)
+    data = battery_file(fleet.chemistry[i], int(fleet.cells[i]), float(fleet.capacity_ah[i]),
+                        20.0, name=fleet.rows.column("id")[i])
     data = data.model_copy(update={"state": State.model_construct(
         rest_voltage_v=rest_voltage_v)})
-    if row.nominal_voltage_v is not None:
+    if nominal_v is not None:
         data = data.model_copy(update={"battery": data.battery.model_copy(
-            update={"nominal_voltage_v": row.nominal_voltage_v})})
+            update={"nominal_voltage_v": nominal_v})})
     try:
         derive_state(data, profiles=profile_set)
     except PlanRefused as refusal:

@@ -85,6 +85,15 @@ CEILINGS: dict[str, Ceiling] = {
         "BU-808: 4.20 V/cell; BU-409 Charging Lithium-ion: 0.5-1 C; BU-410 Table 1: 0 to 45 "
         "degC; BU-702 and BU-808a: no float or trickle for Li-ion"),
 }
+#: The longest a stage may hold lithium at its voltage (BU-409: no float, the constant-voltage
+#: stage ends on the tail current or a set time; 4 h: charger ICs time it out after a few
+#: hours, common practice, from memory).
+LITHIUM_HELD_MAX_S = 4 * 3600.0
+_LITHIUM_HELD = frozenset({"absorption", "storage_hold"})
+#: The longest a lead-acid battery may dwell at a voltage above float (BU-403 Charging Lead
+#: Acid: not more than 48 h at the topping voltage).
+LEAD_DWELL_MAX_S = 48 * 3600.0
+_LEAD_DWELL = frozenset({"absorption", "equalization", "desulfation"})
 #: The smallest current a setpoint file carries (1 mA); below it a limit would read as 0.
 _LEAST_CURRENT_A = 0.001
 #: Float rounding allowance (1 µV, 1 µA, 1 mK).
@@ -208,6 +217,24 @@ def _lithium_stops(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
         yield "a lithium plan must stop at the end, not hold"
 
 
+def _held_bounded(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
+    """No stage holds a battery at a charging voltage without a bound: lithium's absorption
+    and storage hold, a lead-acid absorption, equalization or desulfation, each ended by its
+    own duration or its timer in time."""
+    lithium = _lithium(plan, env)
+    kinds, longest, what = ((_LITHIUM_HELD, LITHIUM_HELD_MAX_S, "lithium") if lithium else
+                            (_LEAD_DWELL, LEAD_DWELL_MAX_S, "a lead-acid battery"))
+    for index, stage in enumerate(plan.stages):
+        if stage.kind.value not in kinds:
+            continue
+        limits = [e.value for e in stage.exits if e.kind.value == "duration"]
+        if stage.timer_s is not None:
+            limits.append(stage.timer_s)
+        if not limits or min(limits) > longest + _EPS:
+            yield (f"{_name(index, stage)} may hold {what} at {stage.voltage_v:.3f} V for "
+                   f"more than {longest / 3600:g} h")
+
+
 def _cool_zone(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
     """Below the cool boundary no stage exceeds the cool current; the interlock carries it."""
     if env.cool_zone_below_c is None or env.cool_zone_current_it is None:
@@ -322,7 +349,8 @@ def _lead_acid_guards(plan: ChargePlan, env: HardEnvelope) -> Iterator[str]:
 #: The checks, in order; each takes the plan and the envelope and yields what it finds.
 CHECKS: tuple[Check, ...] = (
     _identity, _stage_kinds, _stage_numbers, _stage_envelope, _holds_below_charge,
-    _temperature_interlocks, _electrical_interlocks, _lithium_stops, _cool_zone, _warm_zone,
+    _temperature_interlocks, _electrical_interlocks, _lithium_stops, _held_bounded, _cool_zone,
+    _warm_zone,
     _overcharge_stages, _published_ceilings, _lead_acid_guards,
 )
 

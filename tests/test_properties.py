@@ -234,6 +234,9 @@ def battery_files(
             overrides["max_charge_current"] = f"{rate} It"
         else:
             overrides["max_charge_current"] = f"{max(0.001, _r(rate * capacity, 4))} A"
+    if draw(st.integers(0, 4)) == 0:  # a maker's absorption time, up to the 7 days allowed
+        overrides["absorption_time"] = draw(st.sampled_from(["30 min", "2 h", "3.5 h", "4 h",
+                                                             "6 h", "1 d", "7 d"]))
     if overrides:
         battery["overrides"] = overrides
 

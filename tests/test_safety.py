@@ -61,6 +61,63 @@ def test_lithium_that_holds_is_caught():
     assert safety.violations(plan, hard_envelope("lifepo4"))
 
 
+def test_lithium_held_at_its_voltage_without_bound_is_caught():
+    # BU-409: no float for lithium; its constant-voltage stage ends within 4 h (common
+    # practice, from memory: charger ICs time it out after a few hours)
+    plan = _lfp_plan()
+    absorption = plan.stage(StageKind.ABSORPTION)
+    assert absorption is not None and safety.violations(plan, hard_envelope("lifepo4")) == []
+    absorption.exits = [dataclasses.replace(e, value=6 * 3600.0) if e.kind.value == "duration"
+                        else e for e in absorption.exits]
+    absorption.timer_s = 6 * 3600.0
+    found = safety.violations(plan, hard_envelope("lifepo4"))
+    assert any("may hold lithium" in v and "more than 4 h" in v for v in found), found
+
+
+def test_a_makers_long_lithium_absorption_is_held_to_3_5_h():
+    # the engine never plans what safety.verify and the checker (CK316: a constant-voltage
+    # timer within 4 h, the program's backstop 10 % beyond the stage's limit) refuse
+    from chargeplan.plan import ExitKind
+
+    plan = plan_of(battery(battery={"chemistry": "lifepo4", "capacity": "50 Ah",
+                                    "overrides": {"absorption_time": "6 h"}},
+                           state={"rest_voltage": "13.1 V"}))
+    absorption = plan.stage(StageKind.ABSORPTION)
+    assert [e.value for e in absorption.exits if e.kind == ExitKind.DURATION] == [3.5 * 3600]
+    assert absorption.timer_s == 3.5 * 3600
+    assert any(f.rule_id == "CP201" and "held to 3 h 30 min" in f.message
+               for f in plan.findings), [f.message for f in plan.findings]
+    short = plan_of(battery(battery={"chemistry": "lifepo4", "capacity": "50 Ah",
+                                     "overrides": {"absorption_time": "90 min"}},
+                            state={"rest_voltage": "13.1 V"}))
+    assert short.stage(StageKind.ABSORPTION).timer_s == 5400.0
+    assert not any("held to" in f.message for f in short.findings)
+
+
+def test_a_lead_acid_dwell_above_48_h_is_caught():
+    # BU-403 Charging Lead Acid: not more than 48 h at the topping voltage
+    plan = plan_of(battery(battery={"chemistry": "flooded"}))
+    absorption = plan.stage(StageKind.ABSORPTION)
+    assert safety.violations(plan, hard_envelope("flooded")) == []
+    absorption.exits = [dataclasses.replace(e, value=50 * 3600.0) if e.kind.value == "duration"
+                        else e for e in absorption.exits]
+    absorption.timer_s = None
+    found = safety.violations(plan, hard_envelope("flooded"))
+    assert any("may hold a lead-acid battery" in v and "48 h" in v for v in found), found
+
+
+def test_a_makers_week_long_lead_acid_absorption_is_held_to_the_cold_ceiling():
+    # the profile's absorption_time_cold_max (24 h) is the longest the rules let absorption
+    # run; a program's timer 10 % beyond stays inside the checker's 48 h (CK309, BU-403)
+    from chargeplan.plan import ExitKind
+
+    plan = plan_of(battery(battery={"chemistry": "flooded", "overrides": {
+        "absorption_time": "7 d"}}))
+    absorption = plan.stage(StageKind.ABSORPTION)
+    assert max(e.value for e in absorption.exits if e.kind == ExitKind.DURATION) == 24 * 3600
+    assert any(f.rule_id == "CP201" and "held to 1 d" in f.message for f in plan.findings)
+
+
 def test_gel_equalization_is_caught():
     plan = plan_of(battery(battery={"chemistry": "gel"}))
     plan.stages.append(Stage(kind=StageKind.EQUALIZATION, voltage_v=14.4, current_a=0.5))

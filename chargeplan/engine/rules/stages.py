@@ -16,6 +16,13 @@ CHARGE_ORDER = (StageKind.PRECHARGE, StageKind.BULK, StageKind.ABSORPTION,
 
 #: The highest state of charge a lithium storage voltage may stand for (BU-702: 40-50 %).
 STORAGE_LEVEL_MAX_PCT = 60.0
+#: The longest a lithium battery is held at its charge voltage (BU-409: no float, the
+#: constant-voltage stage ends on the tail current or a set time). Charger ICs time that
+#: phase out after a few hours, 4 h at most (common practice, from memory: the checker's
+#: CK316), and a charge program's backstop timer runs 10 % beyond the stage's own limit
+#: (firmware.charge_program.TIMER_BEYOND_EXIT): 3.5 h leaves it inside the 4 h. A maker's
+#: longer absorption time is held to it.
+LITHIUM_ABSORPTION_MAX_S = 3.5 * 3600.0
 
 
 @rule("CP201", "settings.overrides", source="common practice: the maker's datasheet overrides "
@@ -163,6 +170,18 @@ def settings_overrides(ctx: Context) -> None:
     if o.absorption_time_s is not None:
         s.absorption_time_s = o.absorption_time_s
         ctx.note("absorption.duration", f"maker's {duration(o.absorption_time_s)}")
+        ceiling, why = (
+            (LITHIUM_ABSORPTION_MAX_S, "lithium is never held at its charge voltage longer "
+             "(BU-409: no float)") if ctx.lithium or p.termination is None else
+            (p.termination.absorption_time_cold_max.value, "the longest this profile lets "
+             "absorption run even in the cold (absorption_time_cold_max); a battery not full "
+             "by then is not made full by more, and a long absorption dries and corrodes it "
+             "(BU-403)"))
+        if s.absorption_time_s > ceiling:
+            s.absorption_time_s = ceiling
+            ctx.note("absorption.duration", f"held to {duration(ceiling)}")
+            ctx.warn(f"the maker's absorption time {duration(o.absorption_time_s)} is held to "
+                     f"{duration(ceiling)}: {why}; check the datasheet's value")
     if o.temperature_coefficient_mv_per_k_per_cell is not None:
         if ctx.lithium:
             raise ctx.bad_input(field("temperature_coefficient"),

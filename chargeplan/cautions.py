@@ -9,7 +9,8 @@ from __future__ import annotations
 from collections.abc import Iterable
 from typing import Any
 
-__all__ = ["DEFERRAL", "caution_groups", "caution_text", "cautions_for", "profile_cautions"]
+__all__ = ["DEFERRAL", "caution_groups", "caution_text", "cautions_for", "groups_text",
+           "profile_cautions"]
 
 LEAD_ACID = (
     "Charging lead-acid makes hydrogen, which explodes at 4 % in air: charge only in a "
@@ -87,3 +88,12 @@ def caution_text(cautions: list[str]) -> str:
     text for a terminal: a heading, a line per caution, then the deferral."""
     *lines, deferral = cautions
     return "\n".join(["Cautions", *(f"  * {line}" for line in lines), deferral]) + "\n"
+
+
+def groups_text(groups: list[tuple[str, list[str]]]) -> str:
+    """Cautions grouped by family (as :func:`caution_groups` gives them) as plain text for a
+    terminal: a heading, each group's name and lines, then the deferral."""
+    lines = ["Cautions"]
+    for label, cautions in groups:
+        lines += [f"  {label}:", *(f"    * {line}" for line in cautions)]
+    return "\n".join([*lines, DEFERRAL]) + "\n"

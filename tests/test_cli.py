@@ -531,3 +531,23 @@ def test_ventilation_and_thermistor_text_carry_cautions_and_the_deferral():
     assert codes.exit_code == 0
     assert "Never charge lithium below 0 °C" in codes.stdout
     assert "licensed practice" in codes.stdout
+
+
+def test_storage_and_bench_consoles_carry_each_chemistrys_cautions_and_the_deferral(tmp_path):
+    # project rule, as above: the console summaries of the two planners too, each profile's
+    # list whole (chargeplan.cautions.profile_cautions), grouped by family
+    from chargeplan.cautions import profile_cautions
+    from chargeplan.demo import example_paths
+    from chargeplan.profiles import load_builtin
+
+    examples = {p.name: p for p in example_paths(include_storage=True)}
+    store = run("storage", str(examples["storage-lakeside.yaml"]))
+    assert store.exit_code == 0, store.stderr
+    for pid in ("agm", "flooded", "lifepo4"):  # the lakeside shed's chemistries
+        for line in profile_cautions(load_builtin(pid))[:-1]:
+            assert line in store.stdout, (pid, line)
+    assert "Gel:" not in store.stdout and "maker's datasheet, local codes" in store.stdout
+    bench = run("bench", str(examples["bench-workshop.yaml"]))
+    assert bench.exit_code == 0, bench.stderr
+    assert "Lead-acid:" in bench.stdout and "Lithium:" in bench.stdout
+    assert "below 0 °C" in bench.stdout and "licensed practice" in bench.stdout

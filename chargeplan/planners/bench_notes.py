@@ -4,8 +4,9 @@ since the schedule already in the output folder."""
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
+from chargeplan.cautions import FAMILY_LABELS, groups_text
 from chargeplan.physics.ventilation import opening_area_iec62485
 
 if TYPE_CHECKING:
@@ -75,7 +76,19 @@ def summary(plan: BenchPlan) -> str:
     for i in plan.progress.finished:
         lines.append(f"  done: {plan.batteries[i].id}")
     lines += [f"  ! {note}" for note in plan.notes]
-    return "\n".join(lines) + "\n"
+    return "\n".join(lines) + "\n\n" + groups_text(chemistry_cautions(plan))
+
+
+def chemistry_cautions(plan: Any) -> list[tuple[str, list[str]]]:
+    """The cautions of every chemistry on the bench, once each, grouped by family (the
+    deferral is apart): each line as the plans carry it."""
+    groups: dict[str, list[str]] = {}
+    for job in sorted(plan.jobs, key=lambda j: j.battery):
+        charge = plan.plan_of(job)
+        label = FAMILY_LABELS[charge.battery.family]
+        seen = groups.setdefault(label, [])
+        seen.extend(line for line in charge.cautions[:-1] if line not in seen)
+    return sorted(groups.items())
 
 
 def moved(previous: dict[str, tuple[str, str, str]], plan: BenchPlan) -> list[str]:

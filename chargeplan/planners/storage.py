@@ -532,7 +532,10 @@ class StoragePlan:
         if len(self.reading_flags) > SUMMARY_LINES:
             lines.append(f"  reading: and {len(self.reading_flags) - SUMMARY_LINES} more: see "
                          "procedure.md")
-        return "\n".join(lines) + "\n"
+        from chargeplan.cautions import caution_groups, groups_text
+
+        profiles = [self.fleet.profiles[i] for i in np.unique(self.profile_first).tolist()]
+        return "\n".join(lines) + "\n\n" + groups_text(caution_groups(profiles))
 
 
 def _series(dates: list[dt.date], monthly: Any, periods: Any) -> tuple[np.ndarray, np.ndarray]:

@@ -12,7 +12,7 @@ from functools import lru_cache
 from typing import Any
 
 from chargeplan import fmt
-from chargeplan.cautions import DEFERRAL, FAMILY_LABELS
+from chargeplan.cautions import DEFERRAL
 from chargeplan.plan import ChargePlan
 from chargeplan.planners.bench import (
     AFTER_CHECK_PASS_SOC_PCT,
@@ -21,7 +21,7 @@ from chargeplan.planners.bench import (
     overcharge_stage,
 )
 from chargeplan.planners.bench_intake import COLD_INSTRUCTION
-from chargeplan.planners.bench_notes import headline
+from chargeplan.planners.bench_notes import chemistry_cautions, headline
 from chargeplan.render.bench_chart import gantt_svg
 from chargeplan.render.text import describe_exit
 
@@ -160,18 +160,6 @@ def _findings(plan: BenchPlan) -> list[tuple[str, list[tuple[str, str]]]]:
             if plan.plan_of(job).findings]
 
 
-def _chemistry_cautions(plan: BenchPlan) -> list[tuple[str, list[str]]]:
-    """The cautions of every chemistry on the bench, once each, grouped by family (the
-    deferral is apart): each line as the plans carry it."""
-    groups: dict[str, list[str]] = {}
-    for job in sorted(plan.jobs, key=lambda j: j.battery):
-        charge = plan.plan_of(job)
-        label = FAMILY_LABELS[charge.battery.family]
-        seen = groups.setdefault(label, [])
-        seen.extend(line for line in charge.cautions[:-1] if line not in seen)
-    return sorted(groups.items())
-
-
 def _ventilation(plan: BenchPlan) -> list[str]:
     from chargeplan.physics.ventilation import opening_area_iec62485
 
@@ -224,7 +212,7 @@ def _context(plan: BenchPlan, html: bool) -> dict[str, Any]:
         "headline": headline(plan), "schedule": _schedule(plan),
         "matrix": matrix, "legend": legend, "findings": _findings(plan),
         "unscheduled": _unscheduled(plan), "cautions": BENCH_CAUTIONS, "deferral": DEFERRAL,
-        "chemistry_cautions": _chemistry_cautions(plan), "ventilation": _ventilation(plan),
+        "chemistry_cautions": chemistry_cautions(plan), "ventilation": _ventilation(plan),
         "gantt": Markup(gantt_svg(plan)) if html else "", "cards": _cards(plan),
         "queues": _queues(plan), "rest_h": AFTER_CHECK_REST_H,
         "pass_soc": AFTER_CHECK_PASS_SOC_PCT, "unattended_rule": UNATTENDED_RULE,

@@ -144,11 +144,16 @@ def _readable(model: Any) -> bool:
                     for d in decorators.field_validators.values()))
 
 
-def read_columns(path: str | Path, model: Any) -> Table[Any] | None:
+def read_columns(path: str | Path, model: Any, *, carry: Any = None) -> Table[Any] | None:
     """The CSV at ``path`` as a :class:`Table` of ``model`` (every field a column), or None
     where this reading cannot be sure of giving what the row-by-row reading gives, or a row
     is bad (see the module docstring). The file's own problems (not UTF-8, a NUL byte, a
-    column named twice) are raised as the row-by-row reading raises them."""
+    column named twice) are raised as the row-by-row reading raises them.
+
+    ``carry``: the model a row of a file with columns ``model`` does not know is read as
+    (``model`` extended by a before-validator that carries them into one of its fields): its
+    ``carry_into`` names the field, ``carried(text, [(column, text)...])`` makes it, as the
+    validator does; without it, such a file is read row by row."""
     shown = str(path)
     text = csv_text(path)
     reader = reader_of(text, shown)
@@ -159,9 +164,59 @@ def read_columns(path: str | Path, model: Any) -> Table[Any] | None:
         return None
     try:
         columns = _split(text, reader, len(keys))
-        return _table(keys, columns, model) if columns[0] else None
+        if not columns[0]:
+            return None
+        texts = [_texts(column) for column in columns]
+        make = _maker(keys, columns, texts, model)
+        unknown = [j for j, key in enumerate(keys) if key not in _known(model)]
+        if unknown:
+            if carry is None:
+                return None
+            make = _maker(keys, columns, texts, carry)  # each row's model as the file's
+            keys, columns, texts = _carried(keys, columns, texts, unknown, carry)
+        return _table(keys, columns, texts, model, make)
     except (_Unsure, csv.Error):
         return None
+
+
+def _known(model: Any) -> set[str]:
+    """The columns a model reads: its fields' names and aliases."""
+    fields = model.model_fields
+    return set(fields) | {f.alias for f in fields.values() if f.alias}
+
+
+def _maker(keys: list[str], columns: list[list[str]], texts: list[dict[str, str]],
+           model: Any) -> Callable[[int], Any]:
+    """A row's model as pydantic reads it, from its cells' texts."""
+    validate = model.__pydantic_validator__.validate_python
+
+    def make(i: int) -> Any:
+        return validate({key: texts[j][columns[j][i]] for j, key in enumerate(keys)
+                         if texts[j][columns[j][i]]})
+
+    return make
+
+
+def _carried(keys: list[str], columns: list[list[str]], texts: list[dict[str, str]],
+             unknown: list[int], carry: Any) -> tuple[list[str], list[list[str]],
+                                                       list[dict[str, str]]]:
+    """The columns with the unknown ones carried into ``carry.carry_into`` as its
+    validator carries them: a row's non-empty unknown cells, in the header's order, made
+    into the field's text (made once for each distinct combination of cells)."""
+    into = carry.carry_into
+    count = len(columns[0])
+    at = keys.index(into) if into in keys else None
+    own, own_texts = (columns[at], texts[at]) if at is not None else ([""] * count, {"": ""})
+    rows = list(zip(own, *(columns[j] for j in unknown), strict=True))
+    made: dict[tuple[str, ...], str] = {}
+    for cells in set(rows):
+        extra = [(keys[j], texts[j][raw]) for j, raw in zip(unknown, cells[1:], strict=True)
+                 if texts[j][raw]]
+        made[cells] = carry.carried(own_texts[cells[0]], extra) if extra else own_texts[cells[0]]
+    carried = list(map(made.__getitem__, rows))
+    kept = [j for j in range(len(keys)) if j not in unknown and j != at]
+    return ([*(keys[j] for j in kept), into], [*(columns[j] for j in kept), carried],
+            [*(texts[j] for j in kept), {text: text for text in made.values()}])
 
 
 def _split(text: str, reader: Any, width: int) -> list[list[str]]:
@@ -215,11 +270,11 @@ def _texts(column: list[str]) -> dict[str, str]:
     return texts
 
 
-def _table(keys: list[str], columns: list[list[str]], model: Any) -> Table[Any]:
+def _table(keys: list[str], columns: list[list[str]], texts: list[dict[str, str]], model: Any,
+           make: Callable[[int], Any]) -> Table[Any]:
     names = _field_names(keys, model)
     fields = model.model_fields
     validate = model.__pydantic_validator__.validate_python
-    texts = [_texts(column) for column in columns]
     id_texts = list(map(texts[keys.index("id")].__getitem__, columns[keys.index("id")]))
     if "" in id_texts or len(set(id_texts)) != len(id_texts):  # reported row by row
         raise _Unsure
@@ -261,9 +316,5 @@ def _table(keys: list[str], columns: list[list[str]], model: Any) -> Table[Any]:
             raise _Unsure from None
         if any(check(*given) is not None for given in distinct):
             raise _Unsure
-
-    def make(i: int) -> Any:  # the row as pydantic reads it, from its cells' texts
-        return validate({key: texts[j][columns[j][i]] for j, key in enumerate(keys)
-                         if texts[j][columns[j][i]]})
 
     return Table(values, make, count)

@@ -38,6 +38,9 @@ CELLS = {
     "depart": ["", "2027-02-01", "2026-10-20", "01/02/2027"],
     "notes": ["", "keep dry", "line\u2028break", "'-note"],
     "capacity_ah": ["", "40 Ah"],
+    # a facility's own columns, carried into notes as "berth: B4" (model.storage.InventoryCsvRow)
+    "berth": ["", "B4", "'=x", "a, b", "  spaced ", "x\u200by", "a\x07b"],
+    "phone": ["", "555 0100", "'-1"],
 }
 #: The cells of a good file (every row valid).
 GOOD = {
@@ -46,7 +49,8 @@ GOOD = {
     "state_of_charge": ["50 %", "100 %", "15 %"], "owner": ["", "owner 5", "=cmd|x", "'=kept"],
     "bay": ["north", "heated"], "parasitic_draw": ["", "20 mA"],
     "loads": ["", "connected", "Disconnected "], "arrive": ["", "2026-11-01"],
-    "depart": ["", "2027-02-01"], "notes": ["", "keep dry", "'-note", "dry, cool"],
+    "depart": ["", "2027-02-01"], "notes": ["", "keep dry", "'-note", "dry, cool", "''-x"],
+    "berth": ["", "B4", "'=x", "a, b", "''=y"], "phone": ["", "555 0100"],
 }
 
 
@@ -124,9 +128,9 @@ def test_a_good_file_is_read_column_by_column_as_pydantic_reads_it(tmp_path, tex
     want = _reference(path)
     if not want or isinstance(want[0], str):  # no rows (a row of one empty cell is a blank
         # line), or a good cell in a bad place (a size missing): read row by row
-        assert read_columns(path, InventoryRow) is None
+        assert read_columns(path, InventoryRow, carry=InventoryCsvRow) is None
         return
-    table = read_columns(path, InventoryRow)
+    table = read_columns(path, InventoryRow, carry=InventoryCsvRow)
     assert table is not None  # read column by column, not row by row
     _same(table, want)
 
@@ -170,7 +174,7 @@ def test_each_row_check_is_met_by_the_column_reading(tmp_path):
                     "B,agm,,60 Ah,50 %,,north,,\n"
                     "C,agm,12 V,60 Ah,50 %,12.6 V,north,,\n"
                     "D,agm,12 V,60 Ah,50 %,,north,2026-12-01,2026-11-01\n", encoding="utf-8")
-    assert read_columns(path, InventoryRow) is None
+    assert read_columns(path, InventoryRow, carry=InventoryCsvRow) is None
     with pytest.raises(InputErrors) as caught:
         read_inventory(path)
     assert [line.split(": ", 2)[1] for line in caught.value.lines] == ["line 3", "line 4",
@@ -201,7 +205,7 @@ def test_an_id_is_compared_as_read_not_as_typed(tmp_path):
     path.write_text("id,chemistry,nominal_voltage,capacity,state_of_charge,bay\n"
                     "K-3,agm,12 V,60 Ah,50 %,north\n K-3 ,gel,12 V,40 Ah,80 %,south\n",
                     encoding="utf-8")
-    assert read_columns(path, InventoryRow) is None
+    assert read_columns(path, InventoryRow, carry=InventoryCsvRow) is None
     assert _read(path) == _reference(path) == [
         f"{path}: line 3: id: 'K-3' is listed twice; give each battery its own id"]
 

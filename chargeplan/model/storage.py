@@ -6,15 +6,15 @@ from __future__ import annotations
 import datetime as dt
 from functools import cache
 from itertools import pairwise
-from typing import Literal
+from typing import Any, ClassVar, Literal
 
 from pydantic import Field, field_validator, model_validator
 
 from chargeplan.model.fields import FreeText, Ident, InputModel, Text, local_date, quantity
 from chargeplan.model.rows import BatteryRow
 
-__all__ = ["DAY_S", "Bay", "InventoryRow", "MonthTemperature", "Period", "Site", "SiteFile",
-           "load_connected"]
+__all__ = ["DAY_S", "Bay", "InventoryCsvRow", "InventoryRow", "MonthTemperature", "Period", "Site",
+           "SiteFile", "carried_notes", "load_connected"]
 
 #: Seconds in a day: the storage season is counted in whole days.
 DAY_S = 86400
@@ -225,6 +225,14 @@ class SiteFile(InputModel):
                                  f"season ({first.isoformat()} to {last.isoformat()})")
 
 
+def carried_notes(notes: str, extra: list[tuple[str, Any]]) -> str:
+    """A row's notes with its own columns carried in, each as "column: value", in the
+    header's order (:class:`InventoryCsvRow`; the column reader, chargeplan.csvcolumns,
+    makes the notes column with it too)."""
+    carried = "; ".join(f"{k}: {v}" for k, v in extra)
+    return "; ".join(p for p in (notes, carried) if p)
+
+
 @cache
 def _known_columns(model: type[InputModel]) -> frozenset[str]:
     return frozenset({f.alias or name for name, f in model.model_fields.items()}
@@ -235,6 +243,11 @@ class InventoryCsvRow(InventoryRow):
     """An inventory CSV row: columns the model does not know (a phone number, a berth) are
     carried into ``notes`` as "column: value", so a facility's own columns are kept."""
 
+    #: For the column reader (chargeplan.csvcolumns.read_columns): the field the columns the
+    #: model does not know are carried into, and how (as the validator below carries them).
+    carry_into: ClassVar[str] = "notes"
+    carried: ClassVar[Any] = staticmethod(carried_notes)
+
     @model_validator(mode="before")
     @classmethod
     def _extra_columns_to_notes(cls, data: object) -> object:
@@ -243,8 +256,7 @@ class InventoryCsvRow(InventoryRow):
         known = _known_columns(cls)
         if known.issuperset(data):  # the usual row: every column is the model's
             return data
-        extra = {k: v for k, v in data.items() if k not in known}
+        extra = [(k, v) for k, v in data.items() if k not in known]
         kept = {k: v for k, v in data.items() if k in known}
-        carried = "; ".join(f"{k}: {v}" for k, v in extra.items())
-        kept["notes"] = "; ".join(p for p in (str(kept.get("notes", "")), carried) if p)
+        kept["notes"] = carried_notes(str(kept.get("notes", "")), extra)
         return kept

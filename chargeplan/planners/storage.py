@@ -78,9 +78,9 @@ def read_inventory(path: str | Path) -> Table[InventoryRow]:
     """The inventory CSV; every bad row is reported (with its line) before anything is done.
     Columns the model does not know are carried into each battery's notes.
 
-    A valid file with only the model's columns is read column by column
-    (:func:`chargeplan.csvcolumns.read_columns`), any other row by row."""
-    table = read_columns(path, InventoryRow)
+    A valid file is read column by column (:func:`chargeplan.csvcolumns.read_columns`),
+    any other row by row."""
+    table = read_columns(path, InventoryRow, carry=InventoryCsvRow)
     if table is not None:
         return table
     return Table.of_rows(read_rows(path, InventoryCsvRow, plain=InventoryRow),

@@ -18,7 +18,10 @@ one once. How each field is read:
 - the checks across fields: the model's ``row_checks`` (:class:`chargeplan.model.rows.
   BatteryRow`), on each distinct set of the values they read. The model may have no other
   model validator, no default factory or default that is no key (rows share a default), no
-  private attributes and no post-init.
+  private attributes and no post-init;
+- columns the model does not know, where a ``carry`` model takes them into one of its fields
+  (an inventory's own columns into its notes): by the function its validator uses, once for
+  each distinct combination of cells.
 """
 
 from __future__ import annotations
